@@ -1,0 +1,130 @@
+//! Working fluids (the fluid that flows past the probe and fills the
+//! manometer lines) and their state at the measuring temperature and pressure.
+
+use crate::error::{Result, Warning, positive};
+use crate::gas_mixture::GasMixture;
+use crate::gauge_liquid::UserLiquid;
+use crate::humid_air::{AIR_ISENTROPIC_EXPONENT, HumidAir, sutherland_viscosity};
+use crate::quantity::{Density, DynamicViscosity, MolarMass, Pressure, Temperature};
+use crate::water::Water;
+
+/// A working fluid.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Fluid {
+    /// Liquid water.
+    Water(Water),
+    /// Moist air by CIPM-2007.
+    HumidAir(HumidAir),
+    /// An ideal-gas mixture (stack gas).
+    Gas(GasMixture),
+    /// A user gas given by molar mass, γ and viscosity.
+    IdealGas {
+        /// Name for reports.
+        name: String,
+        /// Molar mass.
+        molar_mass: MolarMass,
+        /// Ratio of specific heats.
+        isentropic_exponent: f64,
+        /// Dynamic viscosity, if known.
+        viscosity: Option<DynamicViscosity>,
+    },
+    /// A user liquid given by density law and viscosity.
+    Liquid {
+        /// Density law.
+        liquid: UserLiquid,
+        /// Dynamic viscosity, if known.
+        viscosity: Option<DynamicViscosity>,
+    },
+}
+
+/// Properties of a fluid at one temperature and pressure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FluidState {
+    /// Absolute pressure.
+    pub pressure: Pressure,
+    /// Temperature.
+    pub temperature: Temperature,
+    /// Density.
+    pub density: Density,
+    /// Dynamic viscosity, where the fluid model has one.
+    pub viscosity: Option<DynamicViscosity>,
+    /// Ratio of specific heats for gases (`None` for liquids).
+    pub isentropic_exponent: Option<f64>,
+    /// Which model gave the density.
+    pub model: &'static str,
+    /// Remarks on validity.
+    pub warnings: Vec<Warning>,
+}
+
+impl Fluid {
+    /// State at absolute pressure `p` and temperature `t`.
+    ///
+    /// ```
+    /// use stagna::{Fluid, HumidAir, Pressure, Temperature};
+    /// let air = Fluid::HumidAir(HumidAir::relative(0.5).unwrap());
+    /// let s = air.state(Pressure::pa(101_325.0), Temperature::celsius(20.0)).unwrap();
+    /// assert!((s.density.si() - 1.199314).abs() < 1e-6); // CIPM-2007, check-values.md §2.1
+    /// ```
+    pub fn state(&self, p: Pressure, t: Temperature) -> Result<FluidState> {
+        Ok(match self {
+            Fluid::Water(w) => FluidState {
+                pressure: p,
+                temperature: t,
+                density: w.density(t, p)?,
+                viscosity: Some(w.viscosity(t, p)?),
+                isentropic_exponent: None,
+                model: w.model.describe(),
+                warnings: w.warnings(t, p),
+            },
+            Fluid::HumidAir(a) => {
+                let s = a.state(p, t)?;
+                FluidState {
+                    pressure: p,
+                    temperature: t,
+                    density: s.density,
+                    viscosity: Some(sutherland_viscosity(t)),
+                    isentropic_exponent: Some(AIR_ISENTROPIC_EXPONENT),
+                    model: "CIPM-2007 moist air (Picard et al. 2008)",
+                    warnings: s.warnings,
+                }
+            }
+            Fluid::Gas(g) => FluidState {
+                pressure: p,
+                temperature: t,
+                density: g.density(p, t)?,
+                viscosity: g.viscosity(t),
+                isentropic_exponent: Some(g.isentropic_exponent()),
+                model: "ideal-gas mixture",
+                warnings: Vec::new(),
+            },
+            Fluid::IdealGas { molar_mass, isentropic_exponent, viscosity, .. } => {
+                let m = positive("gas", "molar mass", molar_mass.si(), "kg/mol")?;
+                positive("gas", "absolute pressure", p.si(), "Pa")?;
+                positive("gas", "temperature", t.k(), "K")?;
+                FluidState {
+                    pressure: p,
+                    temperature: t,
+                    density: Density::kg_m3(p.si() * m / (crate::constants::MOLAR_GAS_CONSTANT * t.k())),
+                    viscosity: *viscosity,
+                    isentropic_exponent: Some(*isentropic_exponent),
+                    model: "ideal gas",
+                    warnings: Vec::new(),
+                }
+            }
+            Fluid::Liquid { liquid, viscosity } => FluidState {
+                pressure: p,
+                temperature: t,
+                density: liquid.density(t)?,
+                viscosity: *viscosity,
+                isentropic_exponent: None,
+                model: "user liquid",
+                warnings: Vec::new(),
+            },
+        })
+    }
+
+    /// True for gases (compressibility corrections apply).
+    pub fn is_gas(&self) -> bool {
+        matches!(self, Fluid::HumidAir(_) | Fluid::Gas(_) | Fluid::IdealGas { .. })
+    }
+}

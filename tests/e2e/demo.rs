@@ -1,0 +1,120 @@
+//! `stagna demo` and `stagna units` from the command line.
+
+use std::path::Path;
+use std::process::{Command, Output};
+
+fn stagna(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_stagna")).args(args).output().expect("the stagna binary runs")
+}
+
+fn text(o: &Output) -> (String, String) {
+    (String::from_utf8_lossy(&o.stdout).into_owned(), String::from_utf8_lossy(&o.stderr).into_owned())
+}
+
+fn copy_demo_data(dir: &Path) {
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("../demo-data");
+    for f in ["larkfield-ahu2-supply.csv", "hollin-brook-main.csv"] {
+        std::fs::copy(src.join(f), dir.join(f)).expect("copy demo data");
+    }
+}
+
+/// Pulls the number after a label on the line that contains it.
+fn number_after(out: &str, label: &str) -> f64 {
+    let line = out.lines().find(|l| l.contains(label)).unwrap_or_else(|| panic!("no line with '{label}' in:\n{out}"));
+    let rest = &line[line.find(label).map(|i| i + label.len()).unwrap_or(0)..];
+    rest.split_whitespace()
+        .find_map(|w| w.parse::<f64>().ok())
+        .unwrap_or_else(|| panic!("no number after '{label}': {line}"))
+}
+
+#[test]
+fn demo_prints_results_with_units_and_cautions() {
+    let o = stagna(&["demo"]);
+    let (out, err) = text(&o);
+    assert!(o.status.success(), "stderr: {err}");
+    for needle in ["Δp (Pa)", "v (m/s)", "ρ air (kg/m³)", "m³/s", "kg/s", "Caution:", "mercury", "source:"] {
+        assert!(out.contains(needle), "missing '{needle}' in:\n{out}");
+    }
+    // Duct point 5 by an independent chain: CoolProp 8.0.0 HAPropsSI humid air at 17.9 °C,
+    // 51 %, 101 172 Pa → ρ = 1.20676 kg/m³; oil 826/(1 + 7.5e-4·1.5); WGS84 g(52.2°, 35 m);
+    // Δp = 122.939 Pa, v = 14.2456 m/s incompressible; isentropic lowers it by M²/8 → 14.2425.
+    let p5 = row_cells(&out, "5");
+    assert_eq!(p5[3], "122.94", "{p5:?}");
+    assert!((p5[4].parse::<f64>().unwrap_or(0.0) - 1.20676).abs() < 1.5e-4, "CIPM vs CoolProp: {p5:?}");
+    assert!((p5[5].parse::<f64>().unwrap_or(0.0) - 14.2425).abs() < 2e-3, "{p5:?}");
+    let mean = number_after(&out, "mean velocity (arithmetic mean of 10 equal-area points, one diameter)");
+    let q = number_after(&out, "volume flow at duct conditions");
+    assert!((q - mean * std::f64::consts::PI * 0.09).abs() < 1e-3, "Q = v̄·πD²/4: {q} vs {mean}");
+    // Water main 09:00 by an independent chain: `iapws` 1.5.5 IAPWS97 water at 9.6 °C,
+    // 513.2 kPa → 999.9328 kg/m³; mercury 13595.1/(1 + 1.818e-4·12) = 13565.51; g(53.4°, 112 m);
+    // Δp = 5117.38 Pa, v = 3.19929 m/s.
+    let r1 = row_cells(&out, "09:00");
+    assert_eq!(r1[2], "5.117", "{r1:?}");
+    assert_eq!(r1[3], "999.933", "{r1:?}");
+    assert_eq!(r1[5], "3.199", "{r1:?}");
+    assert!(out.contains("= 5117.38 Pa") && out.contains("= 3.19929 m/s"), "worked steps");
+}
+
+#[test]
+fn demo_reads_the_same_layout_from_a_folder() {
+    let dir = tempdir();
+    copy_demo_data(&dir);
+    let a = text(&stagna(&["demo"])).0;
+    let b = text(&stagna(&["demo", "--data-dir", dir.to_str().unwrap_or_default()])).0;
+    assert_eq!(a, b.replace(&format!("{}", dir.display()), "bundled"));
+}
+
+#[test]
+fn bad_files_give_clear_errors_and_exit_non_zero() {
+    let cases: [(&str, &str, &str); 4] = [
+        ("point,insertion_mm\n1,2\n", "larkfield-ahu2-supply.csv: missing column 'gauge_reading_mm'", "missing column"),
+        (
+            "point,insertion_mm,gauge_reading_mm,gauge_zero_mm,gauge_temp_c,air_temp_c,rel_humidity_pct,barometer_hpa,duct_static_pa\n1,15.6,NaN,1,21,18,50,1008,300\n",
+            "line 2, column 'gauge_reading_mm' (mm): 'NaN' is not a finite number",
+            "NaN reading",
+        ),
+        (
+            "point,insertion_mm,gauge_reading_mm,gauge_zero_mm,gauge_temp_c,air_temp_c,rel_humidity_pct,barometer_hpa,duct_static_pa\n1,15.6,30,1,21,18,150,1008,300\n",
+            "line 2: humid air: relative humidity must be in [0, 1], got 1.5 (fraction)",
+            "humidity over 100 %",
+        ),
+        ("", "the file is empty", "empty file"),
+    ];
+    for (content, expected, what) in cases {
+        let dir = tempdir();
+        copy_demo_data(&dir);
+        std::fs::write(dir.join("larkfield-ahu2-supply.csv"), content).expect("write");
+        let o = stagna(&["demo", "--data-dir", dir.to_str().unwrap_or_default()]);
+        let (out, err) = text(&o);
+        assert!(!o.status.success(), "{what}: should fail");
+        assert!(err.contains(expected), "{what}: stderr was: {err}");
+        assert!(out.is_empty(), "{what}: nothing half-printed, got: {out}");
+    }
+}
+
+#[test]
+fn units_lists_names_and_sources() {
+    let o = stagna(&["units"]);
+    let (out, _) = text(&o);
+    assert!(o.status.success());
+    for needle in ["inH2O@60F", "NIST SP 811", "mmHg", "delta_degC", "kg/m^3"] {
+        assert!(out.contains(needle), "missing {needle}");
+    }
+}
+
+/// The cells of the table row whose first cell is `first`.
+fn row_cells(out: &str, first: &str) -> Vec<String> {
+    out.lines()
+        .map(|l| l.trim_matches(|c| c == '│' || c == ' ').split('┆').map(|c| c.trim().to_string()).collect::<Vec<_>>())
+        .find(|cells| cells.len() > 3 && cells[0] == first)
+        .unwrap_or_else(|| panic!("no table row '{first}' in:\n{out}"))
+}
+
+fn tempdir() -> std::path::PathBuf {
+    use std::sync::atomic::{AtomicUsize, Ordering};
+    static N: AtomicUsize = AtomicUsize::new(0);
+    let d =
+        std::env::temp_dir().join(format!("stagna-e2e-{}-{}", std::process::id(), N.fetch_add(1, Ordering::SeqCst)));
+    std::fs::create_dir_all(&d).expect("temp dir");
+    d
+}

@@ -1,0 +1,3 @@
+//! End-to-end tests: drive the built `stagna` binary as a user would.
+
+mod demo;
