@@ -128,3 +128,59 @@ impl Fluid {
         matches!(self, Fluid::HumidAir(_) | Fluid::Gas(_) | Fluid::IdealGas { .. })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::gas_mixture::Component;
+
+    const ATM: Pressure = Pressure::pa(101_325.0);
+
+    // Ideal-gas N2 at 20 °C, 1 atm: p·M/(R·T) = 1.164554 kg/m³ (arithmetic with CoolProp 8.0.0's
+    // molar mass 28.01348 g/mol); CoolProp's real-gas density is 1.164830, 2.4e-4 higher.
+    #[test]
+    fn ideal_gas_and_mixture_agree() {
+        let n2 = Fluid::IdealGas {
+            name: "nitrogen".into(),
+            molar_mass: MolarMass::g_mol(28.013_48),
+            isentropic_exponent: 1.4,
+            viscosity: None,
+        };
+        let s = n2.state(ATM, Temperature::celsius(20.0)).unwrap();
+        assert!((s.density.si() - 1.164_554).abs() < 1e-6);
+        assert!((s.density.si() / 1.164_830 - 1.0).abs() < 3e-4);
+        let mix = Fluid::Gas(GasMixture::new(&[(Component::N2, 1.0)], 0.0).unwrap());
+        let m = mix.state(ATM, Temperature::celsius(20.0)).unwrap();
+        assert!((m.density.si() - s.density.si()).abs() < 1e-12);
+        assert!(m.viscosity.is_some() && n2.is_gas() && mix.is_gas());
+        let bad = Fluid::IdealGas {
+            name: "x".into(),
+            molar_mass: MolarMass::g_mol(0.0),
+            isentropic_exponent: 1.4,
+            viscosity: None,
+        };
+        assert_eq!(
+            bad.state(ATM, Temperature::celsius(20.0)).unwrap_err().to_string(),
+            "gas: molar mass must be greater than 0, got 0 kg/mol"
+        );
+    }
+
+    #[test]
+    fn water_state_carries_viscosity_and_warnings() {
+        let w = Fluid::Water(Water::default());
+        let s = w.state(ATM, Temperature::celsius(20.0)).unwrap();
+        assert!((s.viscosity.unwrap().si() * 1e6 - 1001.60).abs() < 0.02); // IAPWS 2008, check-values.md §1.2
+        assert!(s.isentropic_exponent.is_none() && !w.is_gas());
+        assert_eq!(w.state(ATM, Temperature::celsius(100.0)).unwrap().warnings.len(), 1);
+    }
+
+    #[test]
+    fn user_liquid_state() {
+        let glycol =
+            UserLiquid::new("glycol 30 %", Density::kg_m3(1040.0), Temperature::celsius(20.0), Some(5e-4)).unwrap();
+        let f = Fluid::Liquid { liquid: glycol, viscosity: Some(DynamicViscosity::from_si(2.5e-3)) };
+        let s = f.state(ATM, Temperature::celsius(30.0)).unwrap();
+        assert!((s.density.si() - 1040.0 / 1.005).abs() < 1e-9); // ρ_ref/(1 + β·Δt), definition
+        assert_eq!(s.viscosity.unwrap().si(), 2.5e-3);
+    }
+}

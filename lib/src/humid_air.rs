@@ -74,6 +74,12 @@ impl Default for HumidAir {
 /// Detailed CIPM-2007 result, for worked steps and tests.
 #[derive(Debug, Clone, PartialEq)]
 pub struct HumidAirState {
+    /// Absolute pressure used.
+    pub pressure: Pressure,
+    /// Temperature used.
+    pub temperature: Temperature,
+    /// Moisture as given.
+    pub humidity: Humidity,
     /// Density.
     pub density: Density,
     /// Compressibility factor Z.
@@ -203,7 +209,18 @@ impl HumidAir {
                 ),
             ));
         }
-        Ok(HumidAirState { density: Density::kg_m3(rho), z, x_v, p_sv: psv, f, molar_mass_dry: m_a, warnings })
+        Ok(HumidAirState {
+            pressure: p,
+            temperature: t,
+            humidity: self.humidity,
+            density: Density::kg_m3(rho),
+            z,
+            x_v,
+            p_sv: psv,
+            f,
+            molar_mass_dry: m_a,
+            warnings,
+        })
     }
 
     /// Density only.
@@ -226,6 +243,71 @@ impl HumidAir {
             *o = self.state(p, t).map_err(|e| e.at_row(row))?.density.si();
         }
         Ok(())
+    }
+}
+
+impl HumidAirState {
+    /// How the density was obtained (CIPM-2007, step by step).
+    pub fn steps(&self) -> crate::Steps {
+        use crate::quantity::format_number as n;
+        let src = "CIPM-2007, Picard et al., Metrologia 45 (2008) 149";
+        let (p, tk) = (self.pressure.si(), self.temperature.k());
+        let mut s = crate::Steps::default();
+        s.push(
+            "saturation vapour pressure",
+            "p_sv = exp(A·T² + B·T + C + D/T)",
+            "p_{sv} = \\exp(A T^2 + B T + C + D/T)",
+            format!("exp(A·{0}² + B·{0} + C + D/{0}) with T in K", n(tk)),
+            format!("{} Pa", n(self.p_sv)),
+            src,
+        );
+        s.push(
+            "enhancement factor",
+            "f = α + β·p + γ·t²",
+            "f = \\alpha + \\beta p + \\gamma t^2",
+            format!("1.00062 + 3.14e-8 · {} + 5.6e-7 · {}²", n(p), n(self.temperature.c())),
+            n(self.f),
+            src,
+        );
+        let (formula, latex, subst) = match self.humidity {
+            Humidity::Relative(h) => (
+                "x_v = h·f·p_sv/p",
+                "x_v = h f p_{sv}/p",
+                format!("{} · {} · {} Pa / {} Pa", n(h), n(self.f), n(self.p_sv), n(p)),
+            ),
+            Humidity::DewPoint(td) => (
+                "x_v = f(p,t_d)·p_sv(T_d)/p",
+                "x_v = f(p,t_d)\\, p_{sv}(T_d)/p",
+                format!("f(p, {td}) · p_sv({td}) / {} Pa", n(p)),
+            ),
+            Humidity::MoleFraction(x) => ("x_v (given)", "x_v", n(x)),
+        };
+        s.push("water-vapour mole fraction", formula, latex, subst, n(self.x_v), src);
+        s.push(
+            "compressibility factor",
+            "Z = 1 − (p/T)[a0 + a1·t + a2·t² + (b0 + b1·t)·x_v + (c0 + c1·t)·x_v²] + (p/T)²(d + e·x_v²)",
+            "Z = 1 - \\tfrac{p}{T}[\\dots] + \\tfrac{p^2}{T^2}(d + e x_v^2)",
+            format!("p/T = {} Pa/K, x_v = {}", n(p / tk), n(self.x_v)),
+            n(self.z),
+            src,
+        );
+        s.push(
+            "moist-air density",
+            "ρ = p·M_a/(Z·R·T)·[1 − x_v·(1 − M_v/M_a)]",
+            "\\rho = \\frac{p M_a}{Z R T}\\left[1 - x_v\\left(1 - \\frac{M_v}{M_a}\\right)\\right]",
+            format!(
+                "{} Pa · {} kg/mol / ({} · 8.314472 · {} K) · [1 − {} · (1 − 0.01801528/{})]",
+                n(p),
+                n(self.molar_mass_dry),
+                n(self.z),
+                n(tk),
+                n(self.x_v),
+                n(self.molar_mass_dry)
+            ),
+            format!("{} kg/m³", n(self.density.si())),
+            src,
+        );
+        s
     }
 }
 
@@ -309,6 +391,43 @@ mod tests {
             let got = sutherland_viscosity(Temperature::celsius(t)).si() * 1e6;
             assert!((got - mu).abs() < 1e-4, "{t}: {got}");
         }
+    }
+
+    // Picard et al. 2008: M_a = [28.965 46 + 12.011 (x_CO2 − 0.0004)] g/mol; for dry air the
+    // density scales with M_a alone (Z does not depend on x_CO2).
+    #[test]
+    fn co2_fraction_changes_molar_mass() {
+        let base = HumidAir::default().state(Pressure::pa(101_325.0), Temperature::celsius(20.0)).unwrap();
+        let more = HumidAir::default()
+            .with_co2(0.0005)
+            .unwrap()
+            .state(Pressure::pa(101_325.0), Temperature::celsius(20.0))
+            .unwrap();
+        let ratio = (28.965_46 + 12.011 * 0.0001) / 28.965_46;
+        assert!((more.density.si() / base.density.si() - ratio).abs() < 1e-12);
+        assert!(HumidAir::default().with_co2(0.2).is_err());
+    }
+
+    #[test]
+    fn column_matches_scalar() {
+        let air = HumidAir::relative(0.4).unwrap();
+        let t = [288.15, 293.15, 298.15];
+        let mut out = [0.0; 3];
+        air.density_column(&[101_325.0], &t, &mut out).unwrap();
+        for (tk, o) in t.iter().zip(out) {
+            assert_eq!(air.density(Pressure::pa(101_325.0), Temperature::kelvin(*tk)).unwrap().si(), o);
+        }
+        let e = air.density_column(&[101_325.0, -1.0, 1.0], &t, &mut out).unwrap_err();
+        assert!(e.to_string().starts_with("row 2: humid air: pressure"), "{e}");
+    }
+
+    #[test]
+    fn steps_reach_the_density() {
+        let s = state(101_325.0, 20.0, 0.5);
+        let text = s.steps().to_string();
+        assert!(text.contains("2339.16 Pa"), "{text}"); // p_sv(20 °C), check-values.md §2.1
+        assert!(text.contains("1.19931 kg/m³"), "{text}");
+        assert_eq!(s.steps().0.len(), 5);
     }
 
     #[test]

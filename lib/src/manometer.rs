@@ -533,6 +533,19 @@ mod tests {
         assert!((r.dp.si() - 997.0 * 9.80665 * 0.1).abs() < 1e-9);
     }
 
+    proptest::proptest! {
+        // Δp grows with the deflection and with the gauge-liquid density (hydrostatics,
+        // common practice, no source).
+        #[test]
+        fn dp_monotonic(h1 in 0.0f64..0.5, dh in 1e-4f64..0.1, rho in 900.0f64..14_000.0) {
+            let k = ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.01 };
+            let a = dp(k.clone(), user("a", rho), h1 * 1e3, 1.2);
+            let b = dp(k.clone(), user("a", rho), (h1 + dh) * 1e3, 1.2);
+            let c = dp(k, user("a", rho + 50.0), (h1 + dh) * 1e3, 1.2);
+            proptest::prop_assert!(b > a && c > b);
+        }
+    }
+
     #[test]
     fn column_matches_scalar_and_names_rows() {
         let m = Manometer::new(

@@ -456,6 +456,21 @@ mod tests {
         assert_eq!(e.to_string(), "row 2: probe: fluid density must be greater than 0, got -1 kg/m³");
     }
 
+    proptest::proptest! {
+        // Velocity grows with Δp, the isentropic value stays below the incompressible one
+        // (by about M²/8, ISO 3966 compressibility correction), and the sign follows Δp.
+        #[test]
+        fn velocity_monotonic(dp in 0.1f64..20_000.0, ddp in 0.1f64..1000.0) {
+            let p = Probe::new(ProbeKind::PitotStatic, 1.0).unwrap();
+            let st = gas_state(101_325.0, 1.2, Some(1.4));
+            let a = p.velocity(Pressure::pa(dp), &st, VelocityMethod::Auto).unwrap().velocity.si();
+            let b = p.velocity(Pressure::pa(dp + ddp), &st, VelocityMethod::Auto).unwrap().velocity.si();
+            let inc = p.velocity(Pressure::pa(dp), &st, VelocityMethod::Incompressible).unwrap().velocity.si();
+            let neg = p.velocity(Pressure::pa(-dp), &st, VelocityMethod::Auto).unwrap().velocity.si();
+            proptest::prop_assert!(b > a && a <= inc && neg == -a);
+        }
+    }
+
     #[test]
     fn steps_show_substitution() {
         let p = Probe::new(ProbeKind::PitotStatic, 0.997).unwrap();

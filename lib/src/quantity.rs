@@ -73,6 +73,17 @@ impl Quantity {
         Ok(u.from_si(self.si))
     }
 
+    /// The value written in `unit`, e.g. `"3.00001 inH2O@60F"` (up to 6 significant digits).
+    ///
+    /// ```
+    /// use stagna::Quantity;
+    /// let p = Quantity::new(746.52, "Pa").unwrap();
+    /// assert_eq!(p.display_in("inH2O@60F").unwrap(), "3 inH2O@60F");
+    /// ```
+    pub fn display_in(&self, unit: &str) -> Result<String> {
+        Ok(format!("{} {}", format_number(self.value_in(unit)?), unit.trim()))
+    }
+
     /// Sum of two quantities of the same dimension.
     pub fn try_add(self, rhs: Self) -> Result<Self> {
         self.same_dimension(&rhs, "addition")?;
@@ -493,6 +504,19 @@ mod tests {
         let v = Velocity::new(1000.0, "ft/min").unwrap();
         assert!((v.si() - 5.08).abs() < 1e-12); // 1 ft/min = 5.08e-3 m/s, NIST SP 811 B.8
         assert_eq!(format!("{}", Pressure::pa(249.08891)), "249.089 Pa");
+    }
+
+    #[test]
+    fn comparison_and_powers() {
+        let a = Quantity::new(1.0, "inH2O").unwrap();
+        let b = Quantity::new(249.0, "Pa").unwrap();
+        // 1 inH2O (conventional) = 249.0889 Pa > 249 Pa: NIST SP 811 B.8
+        assert_eq!(a.try_cmp(&b).unwrap(), Some(std::cmp::Ordering::Greater));
+        assert!(a.try_cmp(&Quantity::new(1.0, "m").unwrap()).is_err());
+        let area = Quantity::new(2.0, "ft").unwrap().powi(2);
+        assert!((area.value_in("m^2").unwrap() - 4.0 * 0.3048 * 0.3048).abs() < 1e-15); // ft exact, NIST SP 811
+        assert_eq!(Quantity::new(4.0, "m^2").unwrap().sqrt().unwrap().dimension, Dimension::LENGTH);
+        assert_eq!(Quantity::new(1.0, "mmHg@60F").unwrap().display_in("inHg@60F").unwrap(), "0.0393701 inHg@60F");
     }
 
     #[test]

@@ -427,6 +427,14 @@ mod tests {
     }
 
     #[test]
+    fn saturation_pressure_api() {
+        // IF97 region 4 at 373.15 K: 101.418 kPa (`iapws` 1.5.5 `_PSat_T(373.15)` = 0.10141797792 MPa)
+        let p = saturation_pressure(Temperature::kelvin(373.15)).unwrap().si();
+        assert!((p - 101_417.977_92).abs() < 1e-3);
+        assert!(saturation_pressure(Temperature::celsius(400.0)).is_err());
+    }
+
+    #[test]
     fn density_falls_above_4c() {
         let w = Water::default();
         let mut last = f64::INFINITY;
