@@ -123,6 +123,33 @@ impl Fluid {
         })
     }
 
+    /// Density in kg/m³ at p (Pa, absolute) and T (K) without collecting
+    /// warnings or viscosity: the per-row path of column kernels.
+    pub fn density_si(&self, p_pa: f64, t_k: f64) -> Result<f64> {
+        match self {
+            Fluid::Water(w) => Ok(w.density(Temperature::kelvin(t_k), Pressure::pa(p_pa))?.si()),
+            Fluid::HumidAir(a) => a.density_si(p_pa, t_k),
+            Fluid::Gas(g) => Ok(g.density(Pressure::pa(p_pa), Temperature::kelvin(t_k))?.si()),
+            Fluid::IdealGas { molar_mass, .. } => {
+                let m = positive("gas", "molar mass", molar_mass.si(), "kg/mol")?;
+                positive("gas", "absolute pressure", p_pa, "Pa")?;
+                positive("gas", "temperature", t_k, "K")?;
+                Ok(p_pa * m / (crate::constants::MOLAR_GAS_CONSTANT * t_k))
+            }
+            Fluid::Liquid { liquid, .. } => Ok(liquid.density(Temperature::kelvin(t_k))?.si()),
+        }
+    }
+
+    /// Ratio of specific heats for gases, `None` for liquids.
+    pub fn isentropic_exponent(&self) -> Option<f64> {
+        match self {
+            Fluid::HumidAir(_) => Some(AIR_ISENTROPIC_EXPONENT),
+            Fluid::Gas(g) => Some(g.isentropic_exponent()),
+            Fluid::IdealGas { isentropic_exponent, .. } => Some(*isentropic_exponent),
+            Fluid::Water(_) | Fluid::Liquid { .. } => None,
+        }
+    }
+
     /// True for gases (compressibility corrections apply).
     pub fn is_gas(&self) -> bool {
         matches!(self, Fluid::HumidAir(_) | Fluid::Gas(_) | Fluid::IdealGas { .. })

@@ -167,38 +167,8 @@ impl HumidAir {
                 allowed: "above absolute zero".into(),
             });
         }
+        let (rho, z, x_v, psv, f, m_a) = self.compute(p_pa, t_k)?;
         let t_c = t_k - ZERO_CELSIUS;
-        let psv = p_sv(t_k);
-        let f = enhancement(p_pa, t_c);
-        let x_v = match self.humidity {
-            Humidity::Relative(h) => {
-                within("humid air", "relative humidity", h, "(fraction)", 0.0, 1.0)?;
-                h * f * psv / p_pa
-            }
-            Humidity::DewPoint(td) => {
-                let td_k = finite("humid air", "dew point", td.k())?;
-                if td_k > t_k + 1e-9 {
-                    return Err(Error::Inconsistent {
-                        context: "humid air",
-                        message: format!(
-                            "dew point {td} is above the air temperature {t}; the air cannot hold that much water"
-                        ),
-                    });
-                }
-                enhancement(p_pa, td_k - ZERO_CELSIUS) * p_sv(td_k) / p_pa
-            }
-            Humidity::MoleFraction(x) => within("humid air", "water mole fraction", x, "(fraction)", 0.0, 1.0)?,
-        };
-        let m_a = (28.965_46 + 12.011 * (self.x_co2 - 0.0004)) * 1e-3;
-        let z = 1.0
-            - p_pa / t_k
-                * (Z_A[0]
-                    + Z_A[1] * t_c
-                    + Z_A[2] * t_c * t_c
-                    + (Z_B[0] + Z_B[1] * t_c) * x_v
-                    + (Z_C[0] + Z_C[1] * t_c) * x_v * x_v)
-            + (p_pa / t_k).powi(2) * (Z_D + Z_E * x_v * x_v);
-        let rho = p_pa * m_a / (z * R_CIPM * t_k) * (1.0 - x_v * (1.0 - MOLAR_MASS_WATER / m_a));
         let mut warnings = Vec::new();
         if !(15.0..=27.0).contains(&t_c) || !(60_000.0..=110_000.0).contains(&p_pa) {
             warnings.push(Warning::new(
@@ -221,6 +191,58 @@ impl HumidAir {
             molar_mass_dry: m_a,
             warnings,
         })
+    }
+
+    /// CIPM-2007 core: (ρ, Z, x_v, p_sv, f, M_a) for p in Pa and T in K, no warnings.
+    fn compute(&self, p_pa: f64, t_k: f64) -> Result<(f64, f64, f64, f64, f64, f64)> {
+        let t_c = t_k - ZERO_CELSIUS;
+        let psv = p_sv(t_k);
+        let f = enhancement(p_pa, t_c);
+        let x_v = match self.humidity {
+            Humidity::Relative(h) => {
+                within("humid air", "relative humidity", h, "(fraction)", 0.0, 1.0)?;
+                h * f * psv / p_pa
+            }
+            Humidity::DewPoint(td) => {
+                let td_k = finite("humid air", "dew point", td.k())?;
+                if td_k > t_k + 1e-9 {
+                    return Err(Error::Inconsistent {
+                        context: "humid air",
+                        message: format!(
+                            "dew point {td} is above the air temperature {}; the air cannot hold that much water",
+                            Temperature::kelvin(t_k)
+                        ),
+                    });
+                }
+                enhancement(p_pa, td_k - ZERO_CELSIUS) * p_sv(td_k) / p_pa
+            }
+            Humidity::MoleFraction(x) => within("humid air", "water mole fraction", x, "(fraction)", 0.0, 1.0)?,
+        };
+        let m_a = (28.965_46 + 12.011 * (self.x_co2 - 0.0004)) * 1e-3;
+        let z = 1.0
+            - p_pa / t_k
+                * (Z_A[0]
+                    + Z_A[1] * t_c
+                    + Z_A[2] * t_c * t_c
+                    + (Z_B[0] + Z_B[1] * t_c) * x_v
+                    + (Z_C[0] + Z_C[1] * t_c) * x_v * x_v)
+            + (p_pa / t_k).powi(2) * (Z_D + Z_E * x_v * x_v);
+        let rho = p_pa * m_a / (z * R_CIPM * t_k) * (1.0 - x_v * (1.0 - MOLAR_MASS_WATER / m_a));
+        Ok((rho, z, x_v, psv, f, m_a))
+    }
+
+    /// Density in kg/m³ for p in Pa (absolute) and T in K, without collecting
+    /// warnings: the per-row path of column kernels.
+    pub fn density_si(&self, p_pa: f64, t_k: f64) -> Result<f64> {
+        finite("humid air", "pressure", p_pa)?;
+        finite("humid air", "temperature", t_k)?;
+        if p_pa <= 0.0 || t_k <= 0.0 {
+            return Err(Error::Inconsistent {
+                context: "humid air",
+                message: format!("pressure {p_pa} Pa and temperature {t_k} K must be absolute and positive"),
+            });
+        }
+        Ok(self.compute(p_pa, t_k)?.0)
     }
 
     /// Density only.

@@ -26,31 +26,45 @@
 //! # Ok::<(), stagna::Error>(())
 //! ```
 
+pub mod analysis;
+pub mod campaign;
 pub mod columns;
+pub mod conduit;
 pub mod constants;
 pub mod dimension;
 pub mod epa;
 pub mod error;
+pub mod flow;
 pub mod fluid;
+pub mod friction;
 pub mod gas_mixture;
 pub mod gauge_liquid;
 pub mod gravity;
 pub mod humid_air;
+pub mod integration;
+pub mod layout;
 pub mod manometer;
 pub mod probe;
+pub mod profile;
 pub mod quantity;
 pub mod steps;
 pub mod unit;
 pub mod water;
 
+pub use conduit::{Conduit, Section};
 pub use dimension::Dimension;
 pub use error::{Error, Result, Warning};
+pub use flow::{FlowOptions, FlowResult, WallFactor, flow};
 pub use fluid::{Fluid, FluidState};
+pub use friction::{FrictionModel, Regime};
 pub use gas_mixture::{Component, GasMixture, ReferenceCondition};
 pub use gauge_liquid::{GaugeLiquid, UserLiquid};
 pub use humid_air::{HumidAir, Humidity};
+pub use integration::{Averaging, SectionMean, section_mean};
+pub use layout::{LayoutRule, Position, TraverseLayout};
 pub use manometer::{Manometer, ManometerKind, ManometerResult, Reading};
 pub use probe::{FlowDirection, PointVelocity, Probe, ProbeKind, VelocityMethod};
+pub use profile::{ProfileFamily, ProfileModel, SinglePointResult, single_point};
 pub use quantity::{
     Acceleration, Area, Density, DynamicViscosity, KinematicViscosity, Length, MassFlow, MolarMass, Pressure, Quantity,
     Temperature, TemperatureDifference, Velocity, VolumeFlow,

@@ -212,14 +212,9 @@ impl Manometer {
         })
     }
 
-    fn dp_si(
-        &self,
-        h: f64,
-        rho_m: f64,
-        rho_f: f64,
-        gauge_temperature: Temperature,
-        warnings: &mut Vec<Warning>,
-    ) -> Result<(f64, Option<Density>)> {
+    /// Δp in Pa from h (m), gauge-liquid density ρ_m, light-liquid density (two-liquid
+    /// gauges only) and working-fluid density ρ_f: the per-row path of column kernels.
+    pub fn dp_from_densities(&self, h: f64, rho_m: f64, rho_light: Option<f64>, rho_f: f64) -> Result<f64> {
         let g = self.gravity.si();
         let denser = |rho_m: f64| -> Result<()> {
             if rho_m > rho_f {
@@ -236,7 +231,7 @@ impl Manometer {
         Ok(match &self.kind {
             ManometerKind::UTube => {
                 denser(rho_m)?;
-                ((rho_m - rho_f) * g * h, None)
+                (rho_m - rho_f) * g * h
             }
             ManometerKind::InvertedUTube => {
                 if rho_m >= rho_f {
@@ -247,19 +242,21 @@ impl Manometer {
                         hint: " in an inverted U-tube",
                     });
                 }
-                ((rho_f - rho_m) * g * h, None)
+                (rho_f - rho_m) * g * h
             }
             ManometerKind::Inclined { angle_deg, area_ratio } => {
                 denser(rho_m)?;
-                ((rho_m - rho_f) * g * h * (angle_deg.to_radians().sin() + area_ratio), None)
+                (rho_m - rho_f) * g * h * (angle_deg.to_radians().sin() + area_ratio)
             }
             ManometerKind::Well { area_ratio } => {
                 denser(rho_m)?;
-                ((rho_m - rho_f) * g * h * (1.0 + area_ratio), None)
+                (rho_m - rho_f) * g * h * (1.0 + area_ratio)
             }
-            ManometerKind::TwoLiquid { light, area_ratio } => {
-                let rho1 = light.density(gauge_temperature)?.si();
-                warnings.extend(light.warnings(gauge_temperature));
+            ManometerKind::TwoLiquid { area_ratio, .. } => {
+                let rho1 = rho_light.ok_or_else(|| Error::Inconsistent {
+                    context: "manometer",
+                    message: "a two-liquid gauge needs the light liquid's density".into(),
+                })?;
                 if rho_m <= rho1 {
                     return Err(Error::Inconsistent {
                         context: "manometer",
@@ -276,9 +273,32 @@ impl Manometer {
                         hint: " (light liquid of a two-liquid gauge)",
                     });
                 }
-                (g * h * (rho_m - rho1 * (1.0 - area_ratio)) - rho_f * g * h * area_ratio, Some(Density::kg_m3(rho1)))
+                g * h * (rho_m - rho1 * (1.0 - area_ratio)) - rho_f * g * h * area_ratio
             }
         })
+    }
+
+    /// Light-liquid density of a two-liquid gauge at `t` (None for other kinds).
+    pub fn light_density(&self, t: Temperature) -> Result<Option<f64>> {
+        match &self.kind {
+            ManometerKind::TwoLiquid { light, .. } => Ok(Some(light.density(t)?.si())),
+            _ => Ok(None),
+        }
+    }
+
+    fn dp_si(
+        &self,
+        h: f64,
+        rho_m: f64,
+        rho_f: f64,
+        gauge_temperature: Temperature,
+        warnings: &mut Vec<Warning>,
+    ) -> Result<(f64, Option<Density>)> {
+        let light = self.light_density(gauge_temperature)?;
+        if let ManometerKind::TwoLiquid { light: l, .. } = &self.kind {
+            warnings.extend(l.warnings(gauge_temperature));
+        }
+        Ok((self.dp_from_densities(h, rho_m, light, rho_f)?, light.map(Density::kg_m3)))
     }
 
     /// Differential pressure over whole columns: deflections h (m), gauge

@@ -125,14 +125,16 @@ pub struct PointVelocity {
     pub warnings: Vec<Warning>,
 }
 
+/// v = C√(2|Δp|/ρ) signed by Δp (m/s from Pa and kg/m³).
 #[inline(always)]
-fn incompressible(c: f64, dp: f64, rho: f64) -> f64 {
+pub fn incompressible(c: f64, dp: f64, rho: f64) -> f64 {
     let v = c * (2.0 * dp.abs() / rho).sqrt();
     if dp < 0.0 { -v } else { v }
 }
 
+/// Isentropic subsonic velocity signed by Δp, from C, Δp (Pa), static ρ (kg/m³), static p (Pa), γ.
 #[inline(always)]
-fn isentropic(c: f64, dp: f64, rho: f64, p: f64, gamma: f64) -> f64 {
+pub fn isentropic(c: f64, dp: f64, rho: f64, p: f64, gamma: f64) -> f64 {
     let e = (gamma - 1.0) / gamma;
     let q = c * c * dp.abs();
     let v = (2.0 / e * p / rho * ((1.0 + q / p).powf(e) - 1.0)).sqrt();

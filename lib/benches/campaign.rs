@@ -1,0 +1,162 @@
+//! Campaign-scale benchmark: 500 000 traverses × 20 points (10 M readings) of a
+//! synthetic duct campaign, reduced by `reduce_campaign` and by a hand-written
+//! single-pass loop over the same columns in the same run. Prints times, their
+//! ratio and the peak resident memory during the reduction against the raw column bytes.
+//!
+//! Run by hand, in release mode: `cargo bench -p stagna --bench campaign`
+//! (`-- --traverses N` for another size).
+
+use std::time::Instant;
+
+use polars::prelude::*;
+use stagna::campaign::{CampaignColumns, CampaignSpec, reduce_campaign};
+use stagna::probe::isentropic;
+use stagna::*;
+
+/// A field of /proc/self/status in bytes (Linux), e.g. "VmRSS" or "VmHWM".
+fn proc_status(field: &str) -> Option<usize> {
+    let s = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = s.lines().find(|l| l.starts_with(field))?;
+    let kb: usize = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kb * 1024)
+}
+
+/// Resets the peak-RSS mark (writing 5 to /proc/self/clear_refs, Linux ≥ 4.0).
+fn reset_peak() -> bool {
+    std::fs::write("/proc/self/clear_refs", "5").is_ok()
+}
+
+fn mib(b: usize) -> f64 {
+    b as f64 / (1024.0 * 1024.0)
+}
+
+fn main() -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let args: Vec<String> = std::env::args().collect();
+    let traverses: usize = args
+        .iter()
+        .position(|a| a == "--traverses")
+        .and_then(|i| args.get(i + 1))
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(500_000);
+    let per = 20usize;
+    let n = traverses * per;
+
+    // Synthetic campaign: ducts of 400–1600 mm, equal-area positions (10 per diameter, 2 diameters),
+    // a power-law-like deflection pattern and a temperature per traverse.
+    let ea: Vec<f64> = (1..=5).map(|i| (1.0 - ((2 * i - 1) as f64 / 10.0).sqrt()) / 2.0).rev().collect();
+    let mut frac: Vec<f64> = ea.clone();
+    frac.extend(ea.iter().rev().map(|y| 1.0 - y));
+    let (mut id, mut pos, mut defl, mut temp, mut dia) = (
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+    );
+    for t in 0..traverses {
+        let d = 400.0 + (t % 13) as f64 * 100.0;
+        let tc = 15.0 + (t % 17) as f64;
+        let level = 20.0 + (t % 29) as f64;
+        for k in 0..per {
+            let y = frac[k % 10];
+            id.push(t as i64);
+            pos.push(y * d);
+            defl.push(level * (2.0 * y.min(1.0 - y)).powf(2.0 / 7.0));
+            temp.push(tc);
+            dia.push(d);
+        }
+    }
+    let df = DataFrame::new_infer_height(vec![
+        Column::new("traverse".into(), id),
+        Column::new("position_mm".into(), pos),
+        Column::new("deflection_mm".into(), defl),
+        Column::new("fluid_temp_c".into(), temp),
+        Column::new("diameter_mm".into(), dia),
+    ])?;
+    let raw = n * 8 * 5;
+    let oil = UserLiquid::new("oil", Density::kg_m3(826.0), Temperature::celsius(20.0), Some(7.5e-4))?;
+    let spec = CampaignSpec {
+        columns: CampaignColumns::standard()?,
+        fluid: Fluid::HumidAir(HumidAir::relative(0.5)?),
+        static_pressure: Pressure::pa(101_000.0),
+        manometer: Manometer::new(
+            ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 },
+            GaugeLiquid::User(oil),
+            gravity::standard(),
+        )?,
+        probe: Probe::new(ProbeKind::PitotStatic, 0.998)?,
+        averaging: Averaging::Arithmetic,
+        min_points: per,
+    };
+
+    println!("campaign: {traverses} traverses × {per} points = {n} readings; raw columns {:.0} MiB", mib(raw));
+    let mut best_lib = f64::MAX;
+    let mut best_loop = f64::MAX;
+    let mut peak_lib = 0usize;
+    let rss_with_data = proc_status("VmRSS").unwrap_or(0);
+    let mut check = (0.0, 0.0);
+    for _ in 0..3 {
+        let can_reset = reset_peak();
+        let t0 = Instant::now();
+        let r = reduce_campaign(&df, &spec)?;
+        best_lib = best_lib.min(t0.elapsed().as_secs_f64());
+        if can_reset {
+            peak_lib = peak_lib.max(proc_status("VmHWM").unwrap_or(0));
+        }
+        check.0 = r.traverses.column("volume_flow_m3_s")?.f64()?.sum().unwrap_or(0.0);
+
+        let t1 = Instant::now();
+        check.1 = baseline(&df, &spec)?;
+        best_loop = best_loop.min(t1.elapsed().as_secs_f64());
+    }
+    println!("reduce_campaign (polars groups + fused kernel): {:8.1} ms", best_lib * 1e3);
+    println!("hand-written single-pass loop:                  {:8.1} ms", best_loop * 1e3);
+    println!("ratio library/loop: {:.2} (goal ≤ 1.5)", best_lib / best_loop);
+    if peak_lib > 0 {
+        println!(
+            "peak RSS during reduction: {:.0} MiB = {:.2} × raw column bytes (goal < 2); RSS with the data loaded {:.0} MiB",
+            mib(peak_lib),
+            peak_lib as f64 / raw as f64,
+            mib(rss_with_data)
+        );
+    } else {
+        println!("peak RSS: not measurable here (no /proc/self/clear_refs)");
+    }
+    println!("check: total flow library {:.6e} m³/s, loop {:.6e} m³/s", check.0, check.1);
+    Ok(())
+}
+
+/// The same reduction as one loop over the column slices, ids sorted: what an engineer
+/// would write by hand for this one fluid, gauge and probe.
+fn baseline(df: &DataFrame, spec: &CampaignSpec) -> std::result::Result<f64, Box<dyn std::error::Error>> {
+    let id = df.column("traverse")?.i64()?.cont_slice()?;
+    let defl = df.column("deflection_mm")?.f64()?.cont_slice()?;
+    let temp = df.column("fluid_temp_c")?.f64()?.cont_slice()?;
+    let dia = df.column("diameter_mm")?.f64()?.cont_slice()?;
+    let p = spec.static_pressure.si();
+    let c = spec.probe.coefficient;
+    let (mut flows, mut means) = (Vec::new(), Vec::new());
+    let (mut last_t, mut rho_f, mut rho_m) = (f64::NAN, 0.0, 0.0);
+    let mut i = 0;
+    while i < id.len() {
+        let key = id[i];
+        let d = dia[i] * 1e-3;
+        let (mut sum, mut k) = (0.0, 0);
+        while i < id.len() && id[i] == key {
+            let t = temp[i] + 273.15;
+            if t != last_t {
+                rho_f = spec.fluid.density_si(p, t)?;
+                rho_m = spec.manometer.liquid.density(Temperature::kelvin(t))?.si();
+                last_t = t;
+            }
+            let dp = spec.manometer.dp_from_densities(defl[i] * 1e-3, rho_m, None, rho_f)?;
+            sum += isentropic(c, dp, rho_f, p, 1.4);
+            k += 1;
+            i += 1;
+        }
+        let mean = sum / k as f64;
+        means.push(mean);
+        flows.push(mean * std::f64::consts::PI * d * d / 4.0);
+    }
+    Ok(flows.iter().sum())
+}

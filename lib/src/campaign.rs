@@ -1,0 +1,582 @@
+//! Whole campaigns: many traverses in one polars `DataFrame`, reduced in one
+//! call. Per-row physics (fluid density, Δp from the deflection, point
+//! velocity) runs in one fused pass over the column buffers; polars finds the
+//! traverse groups (slices when the key column is sorted); each traverse is
+//! then averaged (arithmetic mean, or integration over positions). A traverse
+//! with bad data fails alone, is listed with the reason, and the rest of the
+//! campaign still reduces.
+//!
+//! Columns are read in declared units (`mm`, `degC`, ...) and converted to SI
+//! on the fly; no intermediate column is allocated unless a column is not
+//! `f64` without nulls.
+
+use std::borrow::Cow;
+
+use polars::prelude::*;
+
+use crate::error::{Error, Result};
+use crate::fluid::Fluid;
+use crate::integration::{Averaging, section_mean};
+use crate::layout::Position;
+use crate::manometer::Manometer;
+use crate::probe::{Probe, incompressible, isentropic};
+use crate::quantity::Pressure;
+use crate::unit::Unit;
+
+/// Which columns hold what, in which units.
+#[derive(Debug, Clone)]
+pub struct CampaignColumns {
+    /// Traverse identifier (any type).
+    pub traverse: String,
+    /// Manometer deflection, and its unit.
+    pub deflection: (String, Unit),
+    /// Working-fluid temperature, and its unit (absolute temperature unit).
+    pub fluid_temperature: (String, Unit),
+    /// Inside diameter of the conduit, and its unit.
+    pub diameter: (String, Unit),
+    /// Distance of the point from the port-side wall along its diameter, and its unit
+    /// (needed for integration and for position checks).
+    pub position: Option<(String, Unit)>,
+    /// Diameter (line) number within the traverse, if several.
+    pub line: Option<String>,
+    /// Gauge-liquid temperature column; the fluid temperature is used when absent.
+    pub gauge_temperature: Option<(String, Unit)>,
+}
+
+impl CampaignColumns {
+    /// Columns with the usual names and units: `traverse`, `deflection_mm`,
+    /// `fluid_temp_c`, `diameter_mm`, `position_mm`.
+    pub fn standard() -> Result<Self> {
+        Ok(Self {
+            traverse: "traverse".into(),
+            deflection: ("deflection_mm".into(), Unit::parse("mm")?),
+            fluid_temperature: ("fluid_temp_c".into(), Unit::parse("degC")?),
+            diameter: ("diameter_mm".into(), Unit::parse("mm")?),
+            position: Some(("position_mm".into(), Unit::parse("mm")?)),
+            line: None,
+            gauge_temperature: None,
+        })
+    }
+}
+
+/// How a campaign is measured.
+#[derive(Debug, Clone)]
+pub struct CampaignSpec {
+    /// Column names and units.
+    pub columns: CampaignColumns,
+    /// Working fluid.
+    pub fluid: Fluid,
+    /// Absolute static pressure at the section.
+    pub static_pressure: Pressure,
+    /// The manometer.
+    pub manometer: Manometer,
+    /// The probe.
+    pub probe: Probe,
+    /// Averaging over each traverse.
+    pub averaging: Averaging,
+    /// Fewest points a traverse must have.
+    pub min_points: usize,
+}
+
+/// A traverse that could not be reduced.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TraverseFailure {
+    /// The traverse identifier as text.
+    pub traverse: String,
+    /// Why.
+    pub message: String,
+}
+
+/// Result of a campaign reduction.
+#[derive(Debug, Clone)]
+pub struct CampaignResult {
+    /// One row per reduced traverse: the key column, `points`,
+    /// `mean_velocity_m_s`, `volume_flow_m3_s`, `mass_flow_kg_s`,
+    /// `mean_density_kg_m3`, `max_velocity_m_s`, `flatness`, `reversed_points`.
+    pub traverses: DataFrame,
+    /// Traverses that failed, with the reason.
+    pub failures: Vec<TraverseFailure>,
+}
+
+fn table_err(e: PolarsError) -> Error {
+    Error::Inconsistent { context: "campaign", message: e.to_string() }
+}
+
+/// A column as f64 in SI: borrowed when it already is a single-chunk f64
+/// column without nulls (the unit conversion is then applied on the fly).
+struct SiColumn<'a> {
+    data: Cow<'a, [f64]>,
+    factor: f64,
+    offset: f64,
+}
+
+impl SiColumn<'_> {
+    #[inline(always)]
+    fn at(&self, i: usize) -> f64 {
+        self.data[i] * self.factor + self.offset
+    }
+}
+
+fn column<'a>(df: &'a DataFrame, name: &str, unit: &Unit, what: &str) -> Result<SiColumn<'a>> {
+    let col = df.column(name).map_err(|_| Error::Inconsistent {
+        context: "campaign",
+        message: format!(
+            "missing column '{name}' ({what}); columns present: {}",
+            df.get_column_names().iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
+        ),
+    })?;
+    let s = col.as_materialized_series();
+    let data: Cow<'a, [f64]> = match s.f64() {
+        Ok(ca) if ca.null_count() == 0 && ca.chunks().len() == 1 => Cow::Borrowed(ca.cont_slice().map_err(table_err)?),
+        _ => {
+            let cast = s.cast(&DataType::Float64).map_err(|_| Error::Inconsistent {
+                context: "campaign",
+                message: format!("column '{name}' ({what}) is {}, not numeric", s.dtype()),
+            })?;
+            let ca = cast.f64().map_err(table_err)?;
+            Cow::Owned(ca.iter().map(|v| v.unwrap_or(f64::NAN)).collect())
+        }
+    };
+    Ok(SiColumn { data, factor: unit.factor, offset: unit.offset })
+}
+
+/// Memo of the last input and result of an expensive scalar function: readings
+/// of one traverse usually repeat their temperatures.
+struct Memo {
+    key: u64,
+    value: f64,
+}
+
+impl Memo {
+    fn new() -> Self {
+        Self { key: f64::NAN.to_bits() ^ 1, value: 0.0 }
+    }
+    #[inline(always)]
+    fn get(&mut self, x: f64, f: impl FnOnce(f64) -> Result<f64>) -> Result<f64> {
+        if x.to_bits() != self.key {
+            self.value = f(x)?;
+            self.key = x.to_bits();
+        }
+        Ok(self.value)
+    }
+}
+
+/// Groups of the key column: slices when sorted (checked here for integer keys), else indices.
+fn groups(df: &DataFrame, key: &str) -> Result<GroupPositions> {
+    let col = df.column(key).map_err(|_| Error::Inconsistent {
+        context: "campaign",
+        message: format!("missing column '{key}' (traverse identifier)"),
+    })?;
+    let mut s = col.as_materialized_series().clone();
+    if s.dtype().is_integer() && s.null_count() == 0 {
+        let as_i64 = s.cast(&DataType::Int64).map_err(table_err)?;
+        let ca = as_i64.i64().map_err(table_err)?;
+        let mut sorted = true;
+        let mut last = i64::MIN;
+        for v in ca.into_no_null_iter() {
+            if v < last {
+                sorted = false;
+                break;
+            }
+            last = v;
+        }
+        if sorted {
+            s.set_sorted_flag(polars::series::IsSorted::Ascending);
+        }
+    }
+    let keys = DataFrame::new_infer_height(vec![s.into()]).map_err(table_err)?;
+    let gb = keys.group_by_stable([key]).map_err(table_err)?;
+    Ok(gb.get_groups().clone())
+}
+
+struct TraverseOut {
+    first_row: usize,
+    points: u32,
+    mean_v: f64,
+    q: f64,
+    m: f64,
+    rho: f64,
+    vmax: f64,
+    reversed: u32,
+}
+
+/// Reduces every traverse of a campaign (see the module doc).
+pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignResult> {
+    let cols = &spec.columns;
+    let defl = column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?;
+    let temp = column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?;
+    let dia = column(df, &cols.diameter.0, &cols.diameter.1, "diameter")?;
+    let pos = match &cols.position {
+        Some((n, u)) => Some(column(df, n, u, "position")?),
+        None => None,
+    };
+    let gauge_t = match &cols.gauge_temperature {
+        Some((n, u)) => Some(column(df, n, u, "gauge temperature")?),
+        None => None,
+    };
+    let line_col: Option<Vec<usize>> = match &cols.line {
+        None => None,
+        Some(n) => {
+            let c = column(df, n, &Unit::parse("1")?, "line number")?;
+            Some(c.data.iter().map(|v| if v.is_finite() && *v >= 0.0 { *v as usize } else { usize::MAX }).collect())
+        }
+    };
+    if !matches!(spec.averaging, Averaging::Arithmetic) && pos.is_none() {
+        return Err(Error::Inconsistent { context: "campaign", message: "integration needs a position column".into() });
+    }
+    let key_series = df.column(&cols.traverse).map_err(table_err)?.as_materialized_series().clone();
+    let groups = groups(df, &cols.traverse)?;
+
+    let p = spec.static_pressure.si();
+    let gamma = spec.fluid.isentropic_exponent();
+    let c = spec.probe.coefficient;
+    let mut rho_f_memo = Memo::new();
+    let mut rho_m_memo = Memo::new();
+    let mut light_memo = Memo::new();
+    let two_liquid = matches!(spec.manometer.kind, crate::manometer::ManometerKind::TwoLiquid { .. });
+
+    let mut outs: Vec<TraverseOut> = Vec::with_capacity(groups.len());
+    let mut failures = Vec::new();
+    let mut buf_lines: Vec<usize> = Vec::new();
+    let mut buf_pos: Vec<Position> = Vec::new();
+    let mut buf_v: Vec<f64> = Vec::new();
+
+    let mut reduce_one = |rows: &mut dyn Iterator<Item = usize>, first: usize| -> Result<TraverseOut> {
+        let d = dia.at(first);
+        if !(d.is_finite() && d > 0.0) {
+            return Err(Error::Inconsistent {
+                context: "traverse",
+                message: format!("diameter {} is not a positive number", dia.data[first]),
+            });
+        }
+        let area = std::f64::consts::PI * d * d / 4.0;
+        let (mut n, mut sum_v, mut sum_rho, mut vmax, mut reversed) = (0u32, 0.0, 0.0, f64::MIN, 0u32);
+        buf_lines.clear();
+        buf_pos.clear();
+        buf_v.clear();
+        for (k, row) in rows.enumerate() {
+            let at = |e: Error| Error::Inconsistent {
+                context: "traverse",
+                message: format!("point {} (row {}): {e}", k + 1, row + 1),
+            };
+            if dia.at(row) != d {
+                return Err(at(Error::Inconsistent {
+                    context: "traverse",
+                    message: "the diameter changes within the traverse".into(),
+                }));
+            }
+            let h = defl.at(row);
+            let t = temp.at(row);
+            if !h.is_finite() {
+                return Err(at(Error::NotFinite { context: "reading", param: "deflection", value: defl.data[row] }));
+            }
+            let rho_f = rho_f_memo.get(t, |t| spec.fluid.density_si(p, t)).map_err(at)?;
+            let tg = gauge_t.as_ref().map_or(t, |g| g.at(row));
+            let rho_m = rho_m_memo
+                .get(tg, |t| Ok(spec.manometer.liquid.density(crate::Temperature::kelvin(t))?.si()))
+                .map_err(at)?;
+            let light = if two_liquid {
+                Some(
+                    light_memo
+                        .get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))
+                        .map_err(at)?,
+                )
+            } else {
+                None
+            };
+            let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f).map_err(at)?;
+            let v = match gamma {
+                Some(g) => isentropic(c, dp, rho_f, p, g),
+                None => incompressible(c, dp, rho_f),
+            };
+            n += 1;
+            sum_v += v;
+            sum_rho += rho_f;
+            vmax = vmax.max(v);
+            reversed += u32::from(dp < 0.0);
+            if let Some(pc) = &pos {
+                let s = pc.at(row);
+                if !(s > 0.0 && s < d) {
+                    return Err(at(Error::Inconsistent {
+                        context: "position",
+                        message: format!(
+                            "{} m from the wall lies outside the section (diameter {d} m)",
+                            crate::quantity::format_number(s)
+                        ),
+                    }));
+                }
+                let line = line_col.as_ref().map_or(0, |l| l[row]);
+                if line == usize::MAX {
+                    return Err(at(Error::Inconsistent {
+                        context: "line",
+                        message: "line number is not a whole number ≥ 0".into(),
+                    }));
+                }
+                buf_lines.push(line);
+                buf_pos.push(Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 });
+                buf_v.push(v);
+            }
+        }
+        if (n as usize) < spec.min_points.max(1) {
+            return Err(Error::Inconsistent {
+                context: "traverse",
+                message: format!("{n} points, fewer than the {} the layout needs", spec.min_points),
+            });
+        }
+        if pos.is_some() {
+            // duplicate positions on one line
+            let mut keyed: Vec<(usize, f64)> = buf_lines
+                .iter()
+                .zip(&buf_pos)
+                .map(|(l, p)| (*l, if let Position::Radial { r_over_r, .. } = p { *r_over_r } else { 0.0 }))
+                .collect();
+            keyed.sort_by(|a, b| a.0.cmp(&b.0).then(a.1.total_cmp(&b.1)));
+            if let Some(w) = keyed.windows(2).find(|w| w[0].0 == w[1].0 && (w[0].1 - w[1].1).abs() < 1e-12) {
+                return Err(Error::Inconsistent {
+                    context: "traverse",
+                    message: format!("duplicate position r/R = {:.4} on line {}", w[0].1, w[0].0 + 1),
+                });
+            }
+        }
+        let mean_v = match spec.averaging {
+            Averaging::Arithmetic => sum_v / f64::from(n),
+            integ => section_mean(&buf_lines, &buf_pos, &buf_v, integ)?.mean.si(),
+        };
+        let rho = sum_rho / f64::from(n);
+        let q = mean_v * area;
+        Ok(TraverseOut { first_row: first, points: n, mean_v, q, m: q * rho, rho, vmax, reversed })
+    };
+
+    for g in groups.iter() {
+        let (first, result) = match g {
+            GroupsIndicator::Slice([off, len]) => {
+                let (off, len) = (off as usize, len as usize);
+                (off, reduce_one(&mut (off..off + len), off))
+            }
+            GroupsIndicator::Idx((first, idx)) => {
+                (first as usize, reduce_one(&mut idx.iter().map(|i| *i as usize), first as usize))
+            }
+        };
+        match result {
+            Ok(o) => outs.push(o),
+            Err(e) => failures.push(TraverseFailure {
+                traverse: key_series
+                    .get(first)
+                    .map(|v| v.to_string().trim_matches('"').to_string())
+                    .unwrap_or_default(),
+                message: e.to_string(),
+            }),
+        }
+    }
+
+    let idx: Vec<IdxSize> = outs.iter().map(|o| o.first_row as IdxSize).collect();
+    let keys = key_series.take_slice(&idx).map_err(table_err)?;
+    let f = |name: &str, v: Vec<f64>| Column::new(name.into(), v);
+    let traverses = DataFrame::new_infer_height(vec![
+        keys.into(),
+        Column::new("points".into(), outs.iter().map(|o| o.points).collect::<Vec<u32>>()),
+        f("mean_velocity_m_s", outs.iter().map(|o| o.mean_v).collect()),
+        f("volume_flow_m3_s", outs.iter().map(|o| o.q).collect()),
+        f("mass_flow_kg_s", outs.iter().map(|o| o.m).collect()),
+        f("mean_density_kg_m3", outs.iter().map(|o| o.rho).collect()),
+        f("max_velocity_m_s", outs.iter().map(|o| o.vmax).collect()),
+        f("flatness", outs.iter().map(|o| if o.vmax > 0.0 { o.mean_v / o.vmax } else { f64::NAN }).collect()),
+        Column::new("reversed_points".into(), outs.iter().map(|o| o.reversed).collect::<Vec<u32>>()),
+    ])
+    .map_err(table_err)?;
+    Ok(CampaignResult { traverses, failures })
+}
+
+/// Per-row Δp, density and velocity as new columns `dp_pa`, `density_kg_m3`,
+/// `velocity_m_s` (a copy of `df` with them appended). Stops at the first bad row.
+pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame> {
+    let cols = &spec.columns;
+    let defl = column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?;
+    let temp = column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?;
+    let gauge_t = match &cols.gauge_temperature {
+        Some((n, u)) => Some(column(df, n, u, "gauge temperature")?),
+        None => None,
+    };
+    let n = df.height();
+    let (mut dps, mut rhos, mut vs) = (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
+    let p = spec.static_pressure.si();
+    let gamma = spec.fluid.isentropic_exponent();
+    let (mut mf, mut mm, mut ml) = (Memo::new(), Memo::new(), Memo::new());
+    for row in 0..n {
+        let at = |e: Error| e.at_row(row);
+        let h = defl.at(row);
+        if !h.is_finite() {
+            return Err(at(Error::NotFinite { context: "reading", param: "deflection", value: defl.data[row] }));
+        }
+        let t = temp.at(row);
+        let tg = gauge_t.as_ref().map_or(t, |g| g.at(row));
+        let rho_f = mf.get(t, |t| spec.fluid.density_si(p, t)).map_err(at)?;
+        let rho_m =
+            mm.get(tg, |t| Ok(spec.manometer.liquid.density(crate::Temperature::kelvin(t))?.si())).map_err(at)?;
+        let light = match spec.manometer.kind {
+            crate::manometer::ManometerKind::TwoLiquid { .. } => Some(
+                ml.get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))
+                    .map_err(at)?,
+            ),
+            _ => None,
+        };
+        let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f).map_err(at)?;
+        let v = match gamma {
+            Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, p, g),
+            None => incompressible(spec.probe.coefficient, dp, rho_f),
+        };
+        dps.push(dp);
+        rhos.push(rho_f);
+        vs.push(v);
+    }
+    let mut out = df.clone();
+    for (name, v) in [("dp_pa", dps), ("density_kg_m3", rhos), ("velocity_m_s", vs)] {
+        out.with_column(Column::new(name.into(), v)).map_err(table_err)?;
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::gauge_liquid::GaugeLiquid;
+    use crate::gravity;
+    use crate::manometer::{ManometerKind, Reading};
+    use crate::probe::{ProbeKind, VelocityMethod};
+    use crate::quantity::{Length, Temperature};
+    use crate::water::Water;
+    use crate::{HumidAir, UserLiquid};
+
+    fn air_spec() -> CampaignSpec {
+        let oil =
+            UserLiquid::new("oil", crate::Density::kg_m3(826.0), Temperature::celsius(20.0), Some(7.5e-4)).unwrap();
+        CampaignSpec {
+            columns: CampaignColumns::standard().unwrap(),
+            fluid: Fluid::HumidAir(HumidAir::relative(0.5).unwrap()),
+            static_pressure: Pressure::pa(101_000.0),
+            manometer: Manometer::new(
+                ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 },
+                GaugeLiquid::User(oil),
+                gravity::standard(),
+            )
+            .unwrap(),
+            probe: Probe::new(ProbeKind::PitotStatic, 0.998).unwrap(),
+            averaging: Averaging::Arithmetic,
+            min_points: 4,
+        }
+    }
+
+    fn frame(ids: Vec<i64>, defl: Vec<f64>, temp: Vec<f64>, pos: Vec<f64>) -> DataFrame {
+        let n = ids.len();
+        DataFrame::new_infer_height(vec![
+            Column::new("traverse".into(), ids),
+            Column::new("deflection_mm".into(), defl),
+            Column::new("fluid_temp_c".into(), temp),
+            Column::new("diameter_mm".into(), vec![500.0; n]),
+            Column::new("position_mm".into(), pos),
+        ])
+        .unwrap()
+    }
+
+    const EA4: [f64; 4] = [33.5, 125.0, 375.0, 466.5]; // EPA Table 1-1, 4 points: 6.7/25/75/93.3 % of 500 mm
+
+    // The campaign path must agree with the scalar path (Manometer + Fluid + Probe), which is
+    // tested against published values in its own modules.
+    #[test]
+    fn matches_scalar_path_and_isolates_bad_traverses() {
+        let spec = air_spec();
+        let defl = vec![20.0, 30.0, 31.0, 21.0, 22.0, 33.0, f64::NAN, 23.0, 18.0, 25.0, 26.0, 19.0];
+        let df = frame(vec![1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3], defl.clone(), vec![18.0; 12], [EA4; 3].concat());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert_eq!(r.traverses.height(), 2);
+        assert_eq!(r.failures.len(), 1);
+        assert_eq!(r.failures[0].traverse, "2");
+        assert!(
+            r.failures[0].message.contains("point 3 (row 7)") && r.failures[0].message.contains("NaN"),
+            "{}",
+            r.failures[0].message
+        );
+        let state = spec.fluid.state(spec.static_pressure, Temperature::celsius(18.0)).unwrap();
+        let scalar: Vec<f64> = defl[..4]
+            .iter()
+            .map(|h| {
+                let dp = spec
+                    .manometer
+                    .differential_pressure(
+                        Reading::Deflection(Length::mm(*h)),
+                        Temperature::celsius(18.0),
+                        state.density,
+                    )
+                    .unwrap();
+                spec.probe.velocity(dp.dp, &state, VelocityMethod::Auto).unwrap().velocity.si()
+            })
+            .collect();
+        let mean = scalar.iter().sum::<f64>() / 4.0;
+        let got = r.traverses.column("mean_velocity_m_s").unwrap().f64().unwrap().get(0).unwrap();
+        assert!((got - mean).abs() < 1e-12, "{got} vs {mean}");
+        let q = r.traverses.column("volume_flow_m3_s").unwrap().f64().unwrap().get(0).unwrap();
+        assert!((q - mean * std::f64::consts::PI * 0.0625).abs() < 1e-12);
+        let per_row = point_velocities(&df.slice(0, 4), &spec).unwrap();
+        let v = per_row.column("velocity_m_s").unwrap().f64().unwrap();
+        for (i, s) in scalar.iter().enumerate() {
+            assert!((v.get(i).unwrap() - s).abs() < 1e-12);
+        }
+    }
+
+    #[test]
+    fn unsorted_text_keys_and_integration() {
+        let mut spec = air_spec();
+        spec.averaging = Averaging::Integrate { wall_exponent: 7.0 };
+        let df = DataFrame::new_infer_height(vec![
+            Column::new("traverse".into(), vec!["B", "A", "B", "A", "B", "A", "B", "A"]),
+            Column::new("deflection_mm".into(), vec![20.0, 20.0, 30.0, 30.0, 30.0, 30.0, 20.0, 20.0]),
+            Column::new("fluid_temp_c".into(), vec![18.0; 8]),
+            Column::new("diameter_mm".into(), vec![500.0; 8]),
+            Column::new("position_mm".into(), vec![33.5, 33.5, 125.0, 125.0, 375.0, 375.0, 466.5, 466.5]),
+        ])
+        .unwrap();
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert!(r.failures.is_empty(), "{:?}", r.failures);
+        assert_eq!(r.traverses.column("traverse").unwrap().str().unwrap().get(0), Some("B"));
+        let v = r.traverses.column("mean_velocity_m_s").unwrap().f64().unwrap();
+        assert!((v.get(0).unwrap() - v.get(1).unwrap()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn bad_traverses_are_named_and_listed() {
+        let spec = air_spec();
+        let ids = vec![1, 1, 1, 1, 2, 2, 2, 3, 3, 3, 3];
+        let mut pos = [EA4; 3].concat();
+        pos.remove(4); // traverse 2 keeps 3 points
+        pos[8] = 600.0; // traverse 3: outside
+        let df = frame(ids, vec![20.0; 11], vec![18.0; 11], pos);
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert_eq!(r.traverses.height(), 1);
+        let msgs: Vec<&str> = r.failures.iter().map(|f| f.message.as_str()).collect();
+        assert!(msgs[0].contains("3 points, fewer than the 4"), "{msgs:?}");
+        assert!(msgs[1].contains("outside the section"), "{msgs:?}");
+        let dup = frame(vec![1, 1, 1, 1], vec![20.0; 4], vec![18.0; 4], vec![33.5, 125.0, 125.0, 466.5]);
+        assert!(reduce_campaign(&dup, &spec).unwrap().failures[0].message.contains("duplicate position"));
+        let e = reduce_campaign(&df.drop("fluid_temp_c").unwrap(), &spec).unwrap_err();
+        assert!(
+            e.to_string().contains("missing column 'fluid_temp_c' (fluid temperature); columns present: traverse"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn water_campaign_with_mercury() {
+        let spec = CampaignSpec {
+            fluid: Fluid::Water(Water::default()),
+            static_pressure: Pressure::pa(101_325.0),
+            manometer: Manometer::new(ManometerKind::UTube, GaugeLiquid::Mercury, gravity::standard()).unwrap(),
+            probe: Probe::new(ProbeKind::WallTapPitot, 1.0).unwrap(),
+            ..air_spec()
+        };
+        // 50 mm Hg under 20 °C water → 3.511 m/s (check-values.md §4.1, with g_n)
+        let df = frame(vec![7; 4], vec![50.0; 4], vec![20.0; 4], EA4.to_vec());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        let v = r.traverses.column("mean_velocity_m_s").unwrap().f64().unwrap().get(0).unwrap();
+        assert!((v - 3.5110).abs() < 2e-4, "{v}");
+    }
+}
