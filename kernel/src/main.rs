@@ -1,8 +1,8 @@
 //! `stagna`: differential-pressure flow reduction from the command line.
 //!
 //! For now: `stagna demo` reduces the bundled demo data (or the same layout
-//! from `--data-dir`), `stagna units` lists the unit names with their
-//! sources. The script session, REPL, batch runner and Jupyter kernel build
+//! from `--data-dir`), `stagna layout` plans a traverse, `stagna units` lists
+//! the unit names with their sources. The script session, REPL, batch runner and Jupyter kernel build
 //! on this binary.
 
 use std::path::PathBuf;
@@ -11,6 +11,7 @@ use std::process::ExitCode;
 use clap::{Parser, Subcommand};
 
 mod demo;
+mod layout_cmd;
 mod readings;
 
 /// Differential-pressure flow measurement: fluids, manometers, probes, traverses.
@@ -30,6 +31,8 @@ enum Command {
         #[arg(long, value_name = "DIR")]
         data_dir: Option<PathBuf>,
     },
+    /// Plan a traverse: point positions and insertion depths (field sheet), optionally an SVG drawing.
+    Layout(layout_cmd::LayoutArgs),
     /// List every unit name the unit parser accepts, with its SI factor and source.
     Units,
 }
@@ -38,6 +41,7 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Some(Command::Demo { data_dir }) => demo::run(data_dir.as_deref()),
+        Some(Command::Layout(args)) => layout_cmd::run(&args),
         Some(Command::Units) => {
             print!("{}", demo::units_table());
             Ok(())

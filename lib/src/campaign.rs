@@ -10,8 +10,6 @@
 //! on the fly; no intermediate column is allocated unless a column is not
 //! `f64` without nulls.
 
-use std::borrow::Cow;
-
 use polars::prelude::*;
 
 use crate::error::{Error, Result};
@@ -76,6 +74,8 @@ pub struct CampaignSpec {
     pub averaging: Averaging,
     /// Fewest points a traverse must have.
     pub min_points: usize,
+    /// Reference condition, moisture (dry basis) and wall factor for the reported flows.
+    pub flow: crate::flow::FlowOptions,
 }
 
 /// A traverse that could not be reduced.
@@ -92,7 +92,9 @@ pub struct TraverseFailure {
 pub struct CampaignResult {
     /// One row per reduced traverse: the key column, `points`,
     /// `mean_velocity_m_s`, `volume_flow_m3_s`, `mass_flow_kg_s`,
-    /// `mean_density_kg_m3`, `max_velocity_m_s`, `flatness`, `reversed_points`.
+    /// `mean_density_kg_m3`, `max_velocity_m_s`, `flatness`, `reversed_points`, and
+    /// with a reference condition `reference_flow_m3_s` (and `dry_reference_flow_m3_s`
+    /// with a moisture fraction). A wall factor scales the mean velocity and the flows.
     pub traverses: DataFrame,
     /// Traverses that failed, with the reason.
     pub failures: Vec<TraverseFailure>,
@@ -102,18 +104,37 @@ fn table_err(e: PolarsError) -> Error {
     Error::Inconsistent { context: "campaign", message: e.to_string() }
 }
 
-/// A column as f64 in SI: borrowed when it already is a single-chunk f64
-/// column without nulls (the unit conversion is then applied on the fly).
+/// A column read in place when it is a single-chunk f64, i64 or i32 column without
+/// nulls (any other numeric column is copied once into f64 with NaN for nulls); the
+/// unit conversion to SI is applied on the fly.
 struct SiColumn<'a> {
-    data: Cow<'a, [f64]>,
+    data: ColumnData<'a>,
     factor: f64,
     offset: f64,
 }
 
+enum ColumnData<'a> {
+    F64(&'a [f64]),
+    I64(&'a [i64]),
+    I32(&'a [i32]),
+    Owned(Vec<f64>),
+}
+
 impl SiColumn<'_> {
+    /// The raw value (before unit conversion).
+    #[inline(always)]
+    fn raw(&self, i: usize) -> f64 {
+        match &self.data {
+            ColumnData::F64(d) => d[i],
+            ColumnData::I64(d) => d[i] as f64,
+            ColumnData::I32(d) => f64::from(d[i]),
+            ColumnData::Owned(d) => d[i],
+        }
+    }
+
     #[inline(always)]
     fn at(&self, i: usize) -> f64 {
-        self.data[i] * self.factor + self.offset
+        self.raw(i) * self.factor + self.offset
     }
 }
 
@@ -126,15 +147,18 @@ fn column<'a>(df: &'a DataFrame, name: &str, unit: &Unit, what: &str) -> Result<
         ),
     })?;
     let s = col.as_materialized_series();
-    let data: Cow<'a, [f64]> = match s.f64() {
-        Ok(ca) if ca.null_count() == 0 && ca.chunks().len() == 1 => Cow::Borrowed(ca.cont_slice().map_err(table_err)?),
+    let single = s.null_count() == 0 && s.n_chunks() == 1;
+    let data = match s.dtype() {
+        DataType::Float64 if single => ColumnData::F64(s.f64().map_err(table_err)?.cont_slice().map_err(table_err)?),
+        DataType::Int64 if single => ColumnData::I64(s.i64().map_err(table_err)?.cont_slice().map_err(table_err)?),
+        DataType::Int32 if single => ColumnData::I32(s.i32().map_err(table_err)?.cont_slice().map_err(table_err)?),
         _ => {
             let cast = s.cast(&DataType::Float64).map_err(|_| Error::Inconsistent {
                 context: "campaign",
                 message: format!("column '{name}' ({what}) is {}, not numeric", s.dtype()),
             })?;
             let ca = cast.f64().map_err(table_err)?;
-            Cow::Owned(ca.iter().map(|v| v.unwrap_or(f64::NAN)).collect())
+            ColumnData::Owned(ca.iter().map(|v| v.unwrap_or(f64::NAN)).collect())
         }
     };
     Ok(SiColumn { data, factor: unit.factor, offset: unit.offset })
@@ -198,86 +222,96 @@ struct TraverseOut {
     rho: f64,
     vmax: f64,
     reversed: u32,
+    t_mean: f64,
 }
 
-/// Reduces every traverse of a campaign (see the module doc).
-pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignResult> {
-    let cols = &spec.columns;
-    let defl = column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?;
-    let temp = column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?;
-    let dia = column(df, &cols.diameter.0, &cols.diameter.1, "diameter")?;
-    let pos = match &cols.position {
-        Some((n, u)) => Some(column(df, n, u, "position")?),
-        None => None,
-    };
-    let gauge_t = match &cols.gauge_temperature {
-        Some((n, u)) => Some(column(df, n, u, "gauge temperature")?),
-        None => None,
-    };
-    let line_col: Option<Vec<usize>> = match &cols.line {
-        None => None,
-        Some(n) => {
-            let c = column(df, n, &Unit::parse("1")?, "line number")?;
-            Some(c.data.iter().map(|v| if v.is_finite() && *v >= 0.0 { *v as usize } else { usize::MAX }).collect())
+/// Everything a traverse reduction reads, shared by all threads.
+struct Kernel<'a> {
+    spec: &'a CampaignSpec,
+    defl: SiColumn<'a>,
+    temp: SiColumn<'a>,
+    dia: SiColumn<'a>,
+    pos: Option<SiColumn<'a>>,
+    line: Option<SiColumn<'a>>,
+    gauge_t: Option<SiColumn<'a>>,
+    p: f64,
+    gamma: Option<f64>,
+    two_liquid: bool,
+    integrate: bool,
+    wall_factor: f64,
+}
+
+/// Per-thread memos and buffers, reused from traverse to traverse.
+struct Scratch {
+    rho_f: Memo,
+    rho_m: Memo,
+    light: Memo,
+    lines: Vec<usize>,
+    pos: Vec<Position>,
+    v: Vec<f64>,
+    keyed: Vec<(usize, f64)>,
+}
+
+impl Scratch {
+    fn new() -> Self {
+        Self {
+            rho_f: Memo::new(),
+            rho_m: Memo::new(),
+            light: Memo::new(),
+            lines: vec![],
+            pos: vec![],
+            v: vec![],
+            keyed: vec![],
         }
-    };
-    if !matches!(spec.averaging, Averaging::Arithmetic) && pos.is_none() {
-        return Err(Error::Inconsistent { context: "campaign", message: "integration needs a position column".into() });
     }
-    let key_series = df.column(&cols.traverse).map_err(table_err)?.as_materialized_series().clone();
-    let groups = groups(df, &cols.traverse)?;
+}
 
-    let p = spec.static_pressure.si();
-    let gamma = spec.fluid.isentropic_exponent();
-    let c = spec.probe.coefficient;
-    let mut rho_f_memo = Memo::new();
-    let mut rho_m_memo = Memo::new();
-    let mut light_memo = Memo::new();
-    let two_liquid = matches!(spec.manometer.kind, crate::manometer::ManometerKind::TwoLiquid { .. });
-
-    let mut outs: Vec<TraverseOut> = Vec::with_capacity(groups.len());
-    let mut failures = Vec::new();
-    let mut buf_lines: Vec<usize> = Vec::new();
-    let mut buf_pos: Vec<Position> = Vec::new();
-    let mut buf_v: Vec<f64> = Vec::new();
-
-    let mut reduce_one = |rows: &mut dyn Iterator<Item = usize>, first: usize| -> Result<TraverseOut> {
-        let d = dia.at(first);
+impl Kernel<'_> {
+    fn traverse(&self, rows: impl Iterator<Item = usize>, first: usize, sc: &mut Scratch) -> Result<TraverseOut> {
+        let spec = self.spec;
+        let d = self.dia.at(first);
         if !(d.is_finite() && d > 0.0) {
             return Err(Error::Inconsistent {
                 context: "traverse",
-                message: format!("diameter {} is not a positive number", dia.data[first]),
+                message: format!("diameter {} is not a positive number", self.dia.raw(first)),
             });
         }
         let area = std::f64::consts::PI * d * d / 4.0;
-        let (mut n, mut sum_v, mut sum_rho, mut vmax, mut reversed) = (0u32, 0.0, 0.0, f64::MIN, 0u32);
-        buf_lines.clear();
-        buf_pos.clear();
-        buf_v.clear();
+        let (mut n, mut sum_v, mut sum_rho, mut vmax, mut reversed, mut sum_t) = (0u32, 0.0, 0.0, f64::MIN, 0u32, 0.0);
+        let (mut ordered, mut last_line, mut last_s) = (true, 0usize, f64::MIN);
+        sc.lines.clear();
+        sc.pos.clear();
+        sc.v.clear();
+        sc.keyed.clear();
         for (k, row) in rows.enumerate() {
             let at = |e: Error| Error::Inconsistent {
                 context: "traverse",
                 message: format!("point {} (row {}): {e}", k + 1, row + 1),
             };
-            if dia.at(row) != d {
+            if self.dia.at(row) != d {
                 return Err(at(Error::Inconsistent {
                     context: "traverse",
                     message: "the diameter changes within the traverse".into(),
                 }));
             }
-            let h = defl.at(row);
-            let t = temp.at(row);
+            let h = self.defl.at(row);
+            let t = self.temp.at(row);
             if !h.is_finite() {
-                return Err(at(Error::NotFinite { context: "reading", param: "deflection", value: defl.data[row] }));
+                return Err(at(Error::NotFinite {
+                    context: "reading",
+                    param: "deflection",
+                    value: self.defl.raw(row),
+                }));
             }
-            let rho_f = rho_f_memo.get(t, |t| spec.fluid.density_si(p, t)).map_err(at)?;
-            let tg = gauge_t.as_ref().map_or(t, |g| g.at(row));
-            let rho_m = rho_m_memo
+            let rho_f = sc.rho_f.get(t, |t| spec.fluid.density_si(self.p, t)).map_err(at)?;
+            let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
+            let rho_m = sc
+                .rho_m
                 .get(tg, |t| Ok(spec.manometer.liquid.density(crate::Temperature::kelvin(t))?.si()))
                 .map_err(at)?;
-            let light = if two_liquid {
+            let light = if self.two_liquid {
                 Some(
-                    light_memo
+                    sc.light
                         .get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))
                         .map_err(at)?,
                 )
@@ -285,16 +319,17 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
                 None
             };
             let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f).map_err(at)?;
-            let v = match gamma {
-                Some(g) => isentropic(c, dp, rho_f, p, g),
-                None => incompressible(c, dp, rho_f),
+            let v = match self.gamma {
+                Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, self.p, g),
+                None => incompressible(spec.probe.coefficient, dp, rho_f),
             };
             n += 1;
             sum_v += v;
             sum_rho += rho_f;
+            sum_t += t;
             vmax = vmax.max(v);
             reversed += u32::from(dp < 0.0);
-            if let Some(pc) = &pos {
+            if let Some(pc) = &self.pos {
                 let s = pc.at(row);
                 if !(s > 0.0 && s < d) {
                     return Err(at(Error::Inconsistent {
@@ -305,16 +340,30 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
                         ),
                     }));
                 }
-                let line = line_col.as_ref().map_or(0, |l| l[row]);
-                if line == usize::MAX {
-                    return Err(at(Error::Inconsistent {
-                        context: "line",
-                        message: "line number is not a whole number ≥ 0".into(),
-                    }));
+                let line = match &self.line {
+                    None => 0,
+                    Some(l) => {
+                        let x = l.at(row);
+                        let whole = x as usize;
+                        if !(x >= 0.0 && whole as f64 == x) {
+                            return Err(at(Error::Inconsistent {
+                                context: "line",
+                                message: format!("line number {x} is not a whole number ≥ 0"),
+                            }));
+                        }
+                        whole
+                    }
+                };
+                ordered &= line > last_line || (line == last_line && s > last_s);
+                last_line = line;
+                last_s = s;
+                let r = 2.0 * s / d - 1.0;
+                sc.keyed.push((line, r));
+                if self.integrate {
+                    sc.lines.push(line);
+                    sc.pos.push(Position::Radial { r_over_r: r, angle_deg: 0.0 });
+                    sc.v.push(v);
                 }
-                buf_lines.push(line);
-                buf_pos.push(Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 });
-                buf_v.push(v);
             }
         }
         if (n as usize) < spec.min_points.max(1) {
@@ -323,41 +372,133 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
                 message: format!("{n} points, fewer than the {} the layout needs", spec.min_points),
             });
         }
-        if pos.is_some() {
-            // duplicate positions on one line
-            let mut keyed: Vec<(usize, f64)> = buf_lines
-                .iter()
-                .zip(&buf_pos)
-                .map(|(l, p)| (*l, if let Position::Radial { r_over_r, .. } = p { *r_over_r } else { 0.0 }))
-                .collect();
-            keyed.sort_by(|a, b| a.0.cmp(&b.0).then(a.1.total_cmp(&b.1)));
-            if let Some(w) = keyed.windows(2).find(|w| w[0].0 == w[1].0 && (w[0].1 - w[1].1).abs() < 1e-12) {
+        if self.pos.is_some() && !ordered {
+            // Positions not strictly increasing along each line: look for duplicates.
+            sc.keyed.sort_by(|a, b| a.0.cmp(&b.0).then(a.1.total_cmp(&b.1)));
+            if let Some(w) = sc.keyed.windows(2).find(|w| w[0].0 == w[1].0 && (w[0].1 - w[1].1).abs() < 1e-12) {
                 return Err(Error::Inconsistent {
                     context: "traverse",
                     message: format!("duplicate position r/R = {:.4} on line {}", w[0].1, w[0].0 + 1),
                 });
             }
         }
-        let mean_v = match spec.averaging {
-            Averaging::Arithmetic => sum_v / f64::from(n),
-            integ => section_mean(&buf_lines, &buf_pos, &buf_v, integ)?.mean.si(),
-        };
+        let mean_v = self.wall_factor
+            * match spec.averaging {
+                Averaging::Arithmetic => sum_v / f64::from(n),
+                integ => section_mean(&sc.lines, &sc.pos, &sc.v, integ)?.mean.si(),
+            };
         let rho = sum_rho / f64::from(n);
         let q = mean_v * area;
-        Ok(TraverseOut { first_row: first, points: n, mean_v, q, m: q * rho, rho, vmax, reversed })
-    };
+        Ok(TraverseOut {
+            first_row: first,
+            points: n,
+            mean_v,
+            q,
+            m: q * rho,
+            rho,
+            vmax,
+            reversed,
+            t_mean: sum_t / f64::from(n),
+        })
+    }
+}
 
-    for g in groups.iter() {
-        let (first, result) = match g {
-            GroupsIndicator::Slice([off, len]) => {
-                let (off, len) = (off as usize, len as usize);
-                (off, reduce_one(&mut (off..off + len), off))
+/// Traverses per parallel work item.
+const CHUNK: usize = 2048;
+
+/// Reduces every traverse of a campaign (see the module doc).
+pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignResult> {
+    use rayon::prelude::*;
+    let cols = &spec.columns;
+    let opt = |c: &Option<(String, Unit)>, what: &str| -> Result<Option<SiColumn<'_>>> {
+        c.as_ref().map(|(n, u)| column(df, n, u, what)).transpose()
+    };
+    let one = Unit::parse("1")?;
+    let gamma = spec.fluid.isentropic_exponent();
+    let kernel = Kernel {
+        spec,
+        defl: column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?,
+        temp: column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?,
+        dia: column(df, &cols.diameter.0, &cols.diameter.1, "diameter")?,
+        pos: opt(&cols.position, "position")?,
+        line: cols.line.as_ref().map(|n| column(df, n, &one, "line number")).transpose()?,
+        gauge_t: opt(&cols.gauge_temperature, "gauge temperature")?,
+        p: spec.static_pressure.si(),
+        gamma,
+        two_liquid: matches!(spec.manometer.kind, crate::manometer::ManometerKind::TwoLiquid { .. }),
+        integrate: !matches!(spec.averaging, Averaging::Arithmetic),
+        wall_factor: match spec.flow.wall_factor {
+            Some(w) => crate::error::within("campaign", "wall adjustment factor", w.value(), "", 0.9, 1.0)?,
+            None => 1.0,
+        },
+    };
+    if !matches!(spec.averaging, Averaging::Arithmetic) && kernel.pos.is_none() {
+        return Err(Error::Inconsistent { context: "campaign", message: "integration needs a position column".into() });
+    }
+    let reference = match spec.flow.reference {
+        Some(r) => {
+            if gamma.is_none() {
+                return Err(Error::Inconsistent {
+                    context: "campaign",
+                    message: "a flow at reference conditions is for gases".into(),
+                });
             }
-            GroupsIndicator::Idx((first, idx)) => {
-                (first as usize, reduce_one(&mut idx.iter().map(|i| *i as usize), first as usize))
+            Some(r.state())
+        }
+        None => {
+            if spec.flow.moisture.is_some() {
+                return Err(Error::Inconsistent {
+                    context: "campaign",
+                    message: "a dry-basis flow needs a reference condition".into(),
+                });
             }
-        };
-        match result {
+            None
+        }
+    };
+    let dry = spec
+        .flow
+        .moisture
+        .map(|b| crate::error::within("campaign", "moisture fraction B_ws", b, "", 0.0, 1.0))
+        .transpose()?
+        .map(|b| 1.0 - b);
+    let key_series = df.column(&cols.traverse).map_err(table_err)?.as_materialized_series().clone();
+    let groups = groups(df, &cols.traverse)?;
+
+    // One result per traverse, in group order, computed in parallel chunks.
+    let results: Vec<(usize, Result<TraverseOut>)> = match &*groups {
+        GroupsType::Slice { groups, .. } => groups
+            .par_chunks(CHUNK)
+            .flat_map_iter(|chunk| {
+                let mut sc = Scratch::new();
+                chunk
+                    .iter()
+                    .map(|&[off, len]| {
+                        let (off, len) = (off as usize, len as usize);
+                        (off, kernel.traverse(off..off + len, off, &mut sc))
+                    })
+                    .collect::<Vec<_>>()
+            })
+            .collect(),
+        GroupsType::Idx(idx) => idx
+            .first()
+            .par_chunks(CHUNK)
+            .zip(idx.all().par_chunks(CHUNK))
+            .flat_map_iter(|(firsts, alls)| {
+                let mut sc = Scratch::new();
+                firsts
+                    .iter()
+                    .zip(alls)
+                    .map(|(&first, rows)| {
+                        (first as usize, kernel.traverse(rows.iter().map(|i| *i as usize), first as usize, &mut sc))
+                    })
+                    .collect::<Vec<_>>()
+            })
+            .collect(),
+    };
+    let mut outs = Vec::with_capacity(results.len());
+    let mut failures = Vec::new();
+    for (first, r) in results {
+        match r {
             Ok(o) => outs.push(o),
             Err(e) => failures.push(TraverseFailure {
                 traverse: key_series
@@ -368,11 +509,12 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             }),
         }
     }
+    let p = kernel.p;
 
     let idx: Vec<IdxSize> = outs.iter().map(|o| o.first_row as IdxSize).collect();
     let keys = key_series.take_slice(&idx).map_err(table_err)?;
     let f = |name: &str, v: Vec<f64>| Column::new(name.into(), v);
-    let traverses = DataFrame::new_infer_height(vec![
+    let mut traverses = DataFrame::new_infer_height(vec![
         keys.into(),
         Column::new("points".into(), outs.iter().map(|o| o.points).collect::<Vec<u32>>()),
         f("mean_velocity_m_s", outs.iter().map(|o| o.mean_v).collect()),
@@ -384,6 +526,15 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         Column::new("reversed_points".into(), outs.iter().map(|o| o.reversed).collect::<Vec<u32>>()),
     ])
     .map_err(table_err)?;
+    if let Some((t_ref, p_ref)) = reference {
+        let q_ref: Vec<f64> = outs.iter().map(|o| o.q * (p / p_ref.si()) * (t_ref.k() / o.t_mean)).collect();
+        if let Some(k) = dry {
+            traverses
+                .with_column(f("dry_reference_flow_m3_s", q_ref.iter().map(|q| q * k).collect()))
+                .map_err(table_err)?;
+        }
+        traverses.with_column(f("reference_flow_m3_s", q_ref)).map_err(table_err)?;
+    }
     Ok(CampaignResult { traverses, failures })
 }
 
@@ -406,7 +557,7 @@ pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame
         let at = |e: Error| e.at_row(row);
         let h = defl.at(row);
         if !h.is_finite() {
-            return Err(at(Error::NotFinite { context: "reading", param: "deflection", value: defl.data[row] }));
+            return Err(at(Error::NotFinite { context: "reading", param: "deflection", value: defl.raw(row) }));
         }
         let t = temp.at(row);
         let tg = gauge_t.as_ref().map_or(t, |g| g.at(row));
@@ -463,6 +614,7 @@ mod tests {
             probe: Probe::new(ProbeKind::PitotStatic, 0.998).unwrap(),
             averaging: Averaging::Arithmetic,
             min_points: 4,
+            flow: Default::default(),
         }
     }
 
@@ -562,6 +714,28 @@ mod tests {
             e.to_string().contains("missing column 'fluid_temp_c' (fluid temperature); columns present: traverse"),
             "{e}"
         );
+    }
+
+    // Reference and dry-basis flows follow crate::flow::flow (tested against the EPA worked
+    // example there) for the traverse's mean temperature.
+    #[test]
+    fn reference_and_dry_flows_match_the_scalar_flow() {
+        let mut spec = air_spec();
+        spec.flow = crate::flow::FlowOptions {
+            reference: Some(crate::ReferenceCondition::Normal0C),
+            moisture: Some(0.02),
+            wall_factor: Some(crate::flow::WallFactor::EpaOtherStacks),
+        };
+        let df = frame(vec![1; 4], vec![20.0, 30.0, 31.0, 21.0], vec![18.0; 4], EA4.to_vec());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        let col = |n: &str| r.traverses.column(n).unwrap().f64().unwrap().get(0).unwrap();
+        let state = spec.fluid.state(spec.static_pressure, Temperature::celsius(18.0)).unwrap();
+        let conduit = crate::Conduit::circular(Length::mm(500.0)).unwrap();
+        let unscaled = col("mean_velocity_m_s") / 0.995;
+        let s = crate::flow::flow(crate::Velocity::m_s(unscaled), &conduit, &state, &spec.flow).unwrap();
+        assert!((col("mean_velocity_m_s") - s.mean_velocity.si()).abs() < 1e-12);
+        assert!((col("reference_flow_m3_s") - s.reference_flow.unwrap().si()).abs() < 1e-12);
+        assert!((col("dry_reference_flow_m3_s") - s.dry_reference_flow.unwrap().si()).abs() < 1e-12);
     }
 
     #[test]

@@ -106,6 +106,9 @@ pub struct Manometer {
     pub liquid: GaugeLiquid,
     /// Local acceleration of free fall.
     pub gravity: Acceleration,
+    /// g times the geometric factor of the arrangement (sin θ + a/A, 1 + a/A or 1),
+    /// computed once in `new`.
+    g_factor: f64,
 }
 
 /// A differential pressure from a manometer reading, with what went into it.
@@ -175,7 +178,12 @@ impl Manometer {
             }
             ManometerKind::UTube | ManometerKind::InvertedUTube => {}
         }
-        Ok(Self { kind, liquid, gravity })
+        let geometry = match &kind {
+            ManometerKind::Inclined { angle_deg, area_ratio } => angle_deg.to_radians().sin() + area_ratio,
+            ManometerKind::Well { area_ratio } => 1.0 + area_ratio,
+            _ => 1.0,
+        };
+        Ok(Self { g_factor: gravity.si() * geometry, kind, liquid, gravity })
     }
 
     /// Differential pressure from a reading, the gauge-liquid temperature and
@@ -244,13 +252,9 @@ impl Manometer {
                 }
                 (rho_f - rho_m) * g * h
             }
-            ManometerKind::Inclined { angle_deg, area_ratio } => {
+            ManometerKind::Inclined { .. } | ManometerKind::Well { .. } => {
                 denser(rho_m)?;
-                (rho_m - rho_f) * g * h * (angle_deg.to_radians().sin() + area_ratio)
-            }
-            ManometerKind::Well { area_ratio } => {
-                denser(rho_m)?;
-                (rho_m - rho_f) * g * h * (1.0 + area_ratio)
+                (rho_m - rho_f) * self.g_factor * h
             }
             ManometerKind::TwoLiquid { area_ratio, .. } => {
                 let rho1 = rho_light.ok_or_else(|| Error::Inconsistent {

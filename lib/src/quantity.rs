@@ -38,6 +38,38 @@ impl Quantity {
         Ok(Self::from_unit(value, &u))
     }
 
+    /// Parses "value unit" text such as `"600 mm"`, `"1.2m"`, `"20 degC"` or `"3 inH2O@60F"`.
+    ///
+    /// ```
+    /// use stagna::Quantity;
+    /// assert!((Quantity::parse("600 mm").unwrap().si - 0.6).abs() < 1e-15);
+    /// assert!((Quantity::parse("-2.5e3Pa").unwrap().si + 2500.0).abs() < 1e-12);
+    /// assert!(Quantity::parse("mm").is_err());
+    /// ```
+    pub fn parse(text: &str) -> Result<Self> {
+        let t = text.trim();
+        let end = t
+            .char_indices()
+            .find(|&(i, c)| {
+                !(c.is_ascii_digit()
+                    || c == '.'
+                    || ((c == '-' || c == '+') && (i == 0 || matches!(t.as_bytes()[i - 1], b'e' | b'E')))
+                    || ((c == 'e' || c == 'E')
+                        && i > 0
+                        && t[i + 1..].starts_with(|n: char| n.is_ascii_digit() || n == '-' || n == '+')))
+            })
+            .map_or(t.len(), |(i, _)| i);
+        let value: f64 = t[..end].parse().map_err(|_| Error::UnitSyntax {
+            input: text.to_string(),
+            reason: "expected a number followed by a unit, e.g. '600 mm' or '20 degC'".into(),
+        })?;
+        let unit = t[end..].trim();
+        if unit.is_empty() {
+            return Ok(Self::number(value));
+        }
+        Self::new(value, unit)
+    }
+
     /// A value in an already parsed unit.
     pub fn from_unit(value: f64, unit: &Unit) -> Self {
         Self { si: unit.to_si(value), dimension: unit.dimension, absolute_temperature: unit.absolute_temperature }
