@@ -11,6 +11,7 @@ use std::error::Error;
 use std::path::Path;
 
 use comfy_table::{Cell, CellAlignment, Table, presets::UTF8_FULL_CONDENSED};
+use stagna::profile::StraightLengths;
 use stagna::quantity::format_number;
 use stagna::*;
 
@@ -108,7 +109,7 @@ fn reduce_duct(r: &Readings, warnings: &mut BTreeSet<String>) -> AnyResult<Strin
     let probe = Probe::new(ProbeKind::PitotStatic, 0.998)?.with_head_diameter(Length::mm(8.0))?;
 
     let mut t = table(&["point", "insertion (mm)", "deflection (mm)", "Δp (Pa)", "ρ air (kg/m³)", "v (m/s)", "Mach"]);
-    let (mut sum_v, mut sum_rho) = (0.0, 0.0);
+    let mut velocities = Vec::with_capacity(r.len());
     for i in 0..r.len() {
         let air = HumidAir::relative(rh[i] / 100.0).map_err(|e| row_err(r, i, e))?;
         let state = Fluid::HumidAir(air)
@@ -125,8 +126,7 @@ fn reduce_duct(r: &Readings, warnings: &mut BTreeSet<String>) -> AnyResult<Strin
         for w in dp.warnings.iter().chain(&v.warnings) {
             warnings.insert(format!("duct point {}: {}", point[i], w.message));
         }
-        sum_v += v.velocity.si();
-        sum_rho += state.density.si();
+        velocities.push(v.velocity.si());
         t.add_row(vec![
             point[i].clone(),
             fixed(insertion[i], 1),
@@ -138,20 +138,37 @@ fn reduce_duct(r: &Readings, warnings: &mut BTreeSet<String>) -> AnyResult<Strin
         ]);
     }
     let n = r.len() as f64;
-    let mean_v = sum_v / n;
-    let area = std::f64::consts::PI * diameter.si().powi(2) / 4.0;
-    let q = mean_v * area;
-    let m = q * sum_rho / n;
+    // One diameter, positions from the port-side wall; arithmetic mean (what the
+    // equal-area positions are for) and, for comparison, integration with m = 7.
+    let conduit = Conduit::circular(diameter)?;
+    let lines = vec![0; r.len()];
+    let positions: Vec<Position> = insertion
+        .iter()
+        .map(|s| Position::Radial { r_over_r: 2.0 * s * 1e-3 / diameter.si() - 1.0, angle_deg: 0.0 })
+        .collect();
+    let arithmetic = section_mean(&lines, &positions, &velocities, Averaging::Arithmetic)?;
+    let integrated = section_mean(&lines, &positions, &velocities, Averaging::Integrate { wall_exponent: 7.0 })?;
+    let mean_of = |v: &[f64]| v.iter().sum::<f64>() / n;
+    let air = HumidAir::relative(mean_of(&rh) / 100.0)?;
+    let mean_p = mean_of(&baro) * 100.0 + mean_of(&static_pa);
+    let state = Fluid::HumidAir(air).state(Pressure::pa(mean_p), Temperature::celsius(mean_of(&air_t)))?;
+    let options = FlowOptions { reference: Some(ReferenceCondition::Normal0C), ..Default::default() };
+    let f = flow(arithmetic.mean, &conduit, &state, &options)?;
+    let q_ref = f.reference_flow.map_or(f64::NAN, |q| q.si());
     Ok(format!(
         "Larkfield Leisure Centre, AHU-2 supply duct (Ø 600 mm): pitot-static C = 0.998, inclined oil gauge 20°\n{t}\n\
-         mean velocity (arithmetic mean of {} equal-area points, one diameter)  {} m/s\n\
-         volume flow at duct conditions                                        {} m³/s  ({} m³/h)\n\
-         mass flow                                                             {} kg/s\n",
+         mean velocity, arithmetic mean of {} equal-area points (one diameter)  {} m/s\n\
+         mean velocity, integrated (wall region power law m = 7), for comparison {} m/s\n\
+         volume flow at duct conditions                                         {} m³/s  ({} m³/h)\n\
+         volume flow at 0 °C, 101.325 kPa (wet air)                             {} m³/s\n\
+         mass flow                                                              {} kg/s\n",
         r.len(),
-        fixed(mean_v, 3),
-        fixed(q, 4),
-        fixed(q * 3600.0, 0),
-        fixed(m, 4),
+        fixed(arithmetic.mean.si(), 3),
+        fixed(integrated.mean.si(), 3),
+        fixed(f.volume_flow.si(), 4),
+        fixed(f.volume_flow.si() * 3600.0, 0),
+        fixed(q_ref, 4),
+        fixed(f.mass_flow.si(), 4),
     ))
 }
 
@@ -203,9 +220,35 @@ fn reduce_main(r: &Readings, warnings: &mut BTreeSet<String>) -> AnyResult<(Stri
     let n = vs.len() as f64;
     let mean = vs.iter().sum::<f64>() / n;
     let sd = if vs.len() > 1 { (vs.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt() } else { 0.0 };
+    // Single-point method at the mean state: the pipe is 400 mm cement-lined ductile iron
+    // (roughness 0.05 mm assumed for the scenario), 30 D straight upstream and 8 D downstream.
+    let mean_of = |v: &[f64]| v.iter().sum::<f64>() / n;
+    let state = water.state(
+        Pressure::pa(mean_of(&line_kpa) * 1e3 + mean_of(&baro) * 100.0),
+        Temperature::celsius(mean_of(&water_t)),
+    )?;
+    let pipe = Conduit::circular(Length::mm(400.0))?.with_roughness(Length::mm(0.05))?;
+    let straight = StraightLengths { upstream_diameters: 30.0, downstream_diameters: 8.0 };
+    let mut lines = String::new();
+    for family in [ProfileFamily::PowerLawFromFriction, ProfileFamily::LogLaw { kappa: stagna::profile::KAPPA }] {
+        let sp = single_point(Velocity::m_s(mean), &state, &pipe, family, Some(straight))?;
+        for w in &sp.warnings {
+            warnings.insert(format!("water main: {}", w.message));
+        }
+        lines.push_str(&format!(
+            "  {:<38} U/U_c = {}  mean {} m/s  flow {} L/s ({} m³/h)  Re = {:.3e}\n",
+            sp.model.name(),
+            fixed(sp.ratio, 4),
+            fixed(sp.mean_velocity.si(), 3),
+            fixed(sp.volume_flow.si() * 1e3, 1),
+            fixed(sp.volume_flow.si() * 3600.0, 0),
+            sp.reynolds
+        ));
+    }
     let report = format!(
         "Hollin Brook pumping station, DN400 outlet main: wall-tap pitot C = 1.0 at the centreline, mercury U-tube\n{t}\n\
-         mean centreline velocity over {} readings  {} m/s  (standard deviation {} m/s, Type A standard uncertainty of the mean {} m/s)\n",
+         mean centreline velocity over {} readings  {} m/s  (standard deviation {} m/s, Type A standard uncertainty of the mean {} m/s)\n\
+         single-point method (fully developed flow assumed; the two profile models differ):\n{lines}",
         vs.len(),
         fixed(mean, 3),
         fixed(sd, 3),

@@ -32,7 +32,9 @@ fn demo_prints_results_with_units_and_cautions() {
     let o = stagna(&["demo"]);
     let (out, err) = text(&o);
     assert!(o.status.success(), "stderr: {err}");
-    for needle in ["Δp (Pa)", "v (m/s)", "ρ air (kg/m³)", "m³/s", "kg/s", "Caution:", "mercury", "source:"] {
+    for needle in
+        ["Δp (Pa)", "v (m/s)", "ρ air (kg/m³)", "m³/s", "kg/s", "Caution:", "mercury", "source:", "0 °C, 101.325 kPa"]
+    {
         assert!(out.contains(needle), "missing '{needle}' in:\n{out}");
     }
     // Duct point 5 by an independent chain: CoolProp 8.0.0 HAPropsSI humid air at 17.9 °C,
@@ -42,7 +44,7 @@ fn demo_prints_results_with_units_and_cautions() {
     assert_eq!(p5[3], "122.94", "{p5:?}");
     assert!((p5[4].parse::<f64>().unwrap_or(0.0) - 1.20676).abs() < 1.5e-4, "CIPM vs CoolProp: {p5:?}");
     assert!((p5[5].parse::<f64>().unwrap_or(0.0) - 14.2425).abs() < 2e-3, "{p5:?}");
-    let mean = number_after(&out, "mean velocity (arithmetic mean of 10 equal-area points, one diameter)");
+    let mean = number_after(&out, "mean velocity, arithmetic mean of 10 equal-area points (one diameter)");
     let q = number_after(&out, "volume flow at duct conditions");
     assert!((q - mean * std::f64::consts::PI * 0.09).abs() < 1e-3, "Q = v̄·πD²/4: {q} vs {mean}");
     // Water main 09:00 by an independent chain: `iapws` 1.5.5 IAPWS97 water at 9.6 °C,
@@ -53,6 +55,19 @@ fn demo_prints_results_with_units_and_cautions() {
     assert_eq!(r1[3], "999.933", "{r1:?}");
     assert_eq!(r1[5], "3.199", "{r1:?}");
     assert!(out.contains("= 5117.38 Pa") && out.contains("= 3.19929 m/s"), "worked steps");
+    // Single-point lines: U/U_c = 2n²/((n+1)(2n+1)) for the printed n, and 1/(1 + 3/(2κ)·√(f/8))
+    // for the printed κ and f (check-values.md §6), flow = mean·π·0.2² m².
+    let vc = number_after(&out, "mean centreline velocity over 6 readings");
+    let pl = out.lines().find(|l| l.contains("power law, n = ")).expect("power-law line");
+    let n = number_after(pl, "n =");
+    let ratio = number_after(pl, "U/U_c =");
+    assert!((ratio - 2.0 * n * n / ((n + 1.0) * (2.0 * n + 1.0))).abs() < 1e-4, "{pl}");
+    let mean_pl = number_after(pl, "mean");
+    assert!((mean_pl - ratio * vc).abs() < 2e-3, "{pl}");
+    assert!((number_after(pl, "flow") - mean_pl * std::f64::consts::PI * 0.04 * 1e3).abs() < 0.2, "{pl}");
+    let ll = out.lines().find(|l| l.contains("log law, κ = 0.41")).expect("log-law line");
+    let f = number_after(ll, "f =");
+    assert!((number_after(ll, "U/U_c =") - 1.0 / (1.0 + 1.5 / 0.41 * (f / 8.0).sqrt())).abs() < 1e-4, "{ll}");
 }
 
 #[test]

@@ -1,3 +1,4 @@
 //! End-to-end tests: drive the built `stagna` binary as a user would.
 
 mod demo;
+mod layout;
