@@ -91,6 +91,7 @@ fn main() -> std::result::Result<(), Box<dyn std::error::Error>> {
         averaging: Averaging::Arithmetic,
         min_points: per,
         flow: Default::default(),
+        uncertainty: None,
     };
 
     println!("campaign: {traverses} traverses × {per} points = {n} readings; raw columns {:.0} MiB", mib(raw));

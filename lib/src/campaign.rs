@@ -76,6 +76,28 @@ pub struct CampaignSpec {
     pub min_points: usize,
     /// Reference condition, moisture (dry basis) and wall factor for the reported flows.
     pub flow: crate::flow::FlowOptions,
+    /// Per-traverse flow uncertainty by the GUM, if wanted.
+    pub uncertainty: Option<CampaignUncertainty>,
+}
+
+/// Relative standard uncertainties for the per-traverse GUM budget of the flow
+/// (see [`crate::flow_uncertainty::TraverseUncertainty`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct CampaignUncertainty {
+    /// u(C)/C of the probe coefficient.
+    pub coefficient_rel: f64,
+    /// u(ρ)/ρ of the density.
+    pub density_rel: f64,
+    /// u(D)/D of the diameter.
+    pub diameter_rel: f64,
+    /// Relative part of each reading's u(Δp).
+    pub dp_rel: f64,
+    /// Absolute part of each reading's u(Δp), Pa (resolution, zero drift).
+    pub dp_abs_pa: f64,
+    /// Method terms (layout, positioning, unsteadiness, ...).
+    pub terms: Vec<crate::flow_uncertainty::MethodTerm>,
+    /// Coverage probability of the expanded uncertainty.
+    pub coverage: f64,
 }
 
 /// A traverse that could not be reduced.
@@ -95,6 +117,9 @@ pub struct CampaignResult {
     /// `mean_density_kg_m3`, `max_velocity_m_s`, `flatness`, `reversed_points`, and
     /// with a reference condition `reference_flow_m3_s` (and `dry_reference_flow_m3_s`
     /// with a moisture fraction). A wall factor scales the mean velocity and the flows.
+    /// With an uncertainty spec: `u_flow_m3_s`, `relative_u_pct`, `coverage_factor`,
+    /// `expanded_flow_m3_s`, `effective_dof` (NaN where a point has Δp ≤ 0, which the
+    /// velocity-area model cannot take).
     pub traverses: DataFrame,
     /// Traverses that failed, with the reason.
     pub failures: Vec<TraverseFailure>,
@@ -223,6 +248,8 @@ struct TraverseOut {
     vmax: f64,
     reversed: u32,
     t_mean: f64,
+    /// (u, relative u, k, U, ν_eff) of the flow.
+    unc: Option<[f64; 5]>,
 }
 
 /// Everything a traverse reduction reads, shared by all threads.
@@ -250,6 +277,7 @@ struct Scratch {
     pos: Vec<Position>,
     v: Vec<f64>,
     keyed: Vec<(usize, f64)>,
+    dps: Vec<f64>,
 }
 
 impl Scratch {
@@ -262,6 +290,7 @@ impl Scratch {
             pos: vec![],
             v: vec![],
             keyed: vec![],
+            dps: vec![],
         }
     }
 }
@@ -283,6 +312,7 @@ impl Kernel<'_> {
         sc.pos.clear();
         sc.v.clear();
         sc.keyed.clear();
+        sc.dps.clear();
         for (k, row) in rows.enumerate() {
             let at = |e: Error| Error::Inconsistent {
                 context: "traverse",
@@ -323,6 +353,9 @@ impl Kernel<'_> {
                 Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, self.p, g),
                 None => incompressible(spec.probe.coefficient, dp, rho_f),
             };
+            if spec.uncertainty.is_some() {
+                sc.dps.push(dp);
+            }
             n += 1;
             sum_v += v;
             sum_rho += rho_f;
@@ -389,6 +422,7 @@ impl Kernel<'_> {
             };
         let rho = sum_rho / f64::from(n);
         let q = mean_v * area;
+        let unc = spec.uncertainty.as_ref().map(|u| traverse_uncertainty(u, spec.probe.coefficient, rho, d, &sc.dps));
         Ok(TraverseOut {
             first_row: first,
             points: n,
@@ -399,8 +433,39 @@ impl Kernel<'_> {
             vmax,
             reversed,
             t_mean: sum_t / f64::from(n),
+            unc,
         })
     }
+}
+
+/// GUM budget of one traverse's flow; NaNs when the model cannot take the readings.
+fn traverse_uncertainty(u: &CampaignUncertainty, c: f64, rho: f64, d: f64, dps: &[f64]) -> [f64; 5] {
+    use crate::flow_uncertainty::TraverseUncertainty;
+    use crate::uncertainty::Input;
+    let build = || -> Result<[f64; 5]> {
+        let points = dps
+            .iter()
+            .enumerate()
+            .map(|(i, dp)| {
+                Input::normal(
+                    &format!("Δp point {}", i + 1),
+                    "Pa",
+                    *dp,
+                    ((u.dp_rel * dp).powi(2) + u.dp_abs_pa.powi(2)).sqrt(),
+                )
+            })
+            .collect::<Result<Vec<_>>>()?;
+        let t = TraverseUncertainty::new(
+            Input::normal("probe coefficient", "1", c, u.coefficient_rel * c)?,
+            Input::normal("density", "kg/m³", rho, u.density_rel * rho)?,
+            Input::normal("diameter", "m", d, u.diameter_rel * d)?,
+            &u.terms,
+            points,
+        )?;
+        let g = t.gum(u.coverage)?;
+        Ok([g.u, g.u / g.value * 100.0, g.k, g.expanded, g.dof])
+    };
+    build().unwrap_or([f64::NAN; 5])
 }
 
 /// Traverses per parallel work item.
@@ -526,6 +591,15 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         Column::new("reversed_points".into(), outs.iter().map(|o| o.reversed).collect::<Vec<u32>>()),
     ])
     .map_err(table_err)?;
+    if spec.uncertainty.is_some() {
+        let col = |k: usize| outs.iter().map(|o| o.unc.map_or(f64::NAN, |u| u[k])).collect::<Vec<f64>>();
+        for (k, name) in ["u_flow_m3_s", "relative_u_pct", "coverage_factor", "expanded_flow_m3_s", "effective_dof"]
+            .iter()
+            .enumerate()
+        {
+            traverses.with_column(f(name, col(k))).map_err(table_err)?;
+        }
+    }
     if let Some((t_ref, p_ref)) = reference {
         let q_ref: Vec<f64> = outs.iter().map(|o| o.q * (p / p_ref.si()) * (t_ref.k() / o.t_mean)).collect();
         if let Some(k) = dry {
@@ -615,6 +689,7 @@ mod tests {
             averaging: Averaging::Arithmetic,
             min_points: 4,
             flow: Default::default(),
+            uncertainty: None,
         }
     }
 
@@ -736,6 +811,51 @@ mod tests {
         assert!((col("mean_velocity_m_s") - s.mean_velocity.si()).abs() < 1e-12);
         assert!((col("reference_flow_m3_s") - s.reference_flow.unwrap().si()).abs() < 1e-12);
         assert!((col("dry_reference_flow_m3_s") - s.dry_reference_flow.unwrap().si()).abs() < 1e-12);
+    }
+
+    // The per-traverse columns equal a direct GUM budget of the same traverse
+    // (crate::flow_uncertainty, tested against JCGM 100/101 examples).
+    #[test]
+    fn per_traverse_uncertainty_columns() {
+        use crate::flow_uncertainty::{MethodTerm, TraverseUncertainty};
+        use crate::uncertainty::Input;
+        let mut spec = air_spec();
+        spec.fluid = Fluid::IdealGas {
+            name: "air".into(),
+            molar_mass: crate::MolarMass::g_mol(28.96),
+            isentropic_exponent: 1.4,
+            viscosity: None,
+        };
+        let terms = MethodTerm::typical(crate::LayoutRule::EqualArea);
+        spec.uncertainty = Some(CampaignUncertainty {
+            coefficient_rel: 0.0025,
+            density_rel: 0.002,
+            diameter_rel: 0.001,
+            dp_rel: 0.01,
+            dp_abs_pa: 0.5,
+            terms: terms.clone(),
+            coverage: 0.95,
+        });
+        let df = frame(vec![1; 4], vec![20.0, 30.0, 31.0, 21.0], vec![18.0; 4], EA4.to_vec());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        let col = |n: &str| r.traverses.column(n).unwrap().f64().unwrap().get(0).unwrap();
+        let per_row = point_velocities(&df, &spec).unwrap();
+        let dps: Vec<f64> = per_row.column("dp_pa").unwrap().f64().unwrap().into_no_null_iter().collect();
+        let rho = col("mean_density_kg_m3");
+        let t = TraverseUncertainty::new(
+            Input::normal("C", "1", 0.998, 0.0025 * 0.998).unwrap(),
+            Input::normal("ρ", "kg/m³", rho, 0.002 * rho).unwrap(),
+            Input::normal("D", "m", 0.5, 0.0005).unwrap(),
+            &terms,
+            dps.iter()
+                .map(|dp| Input::normal("Δp", "Pa", *dp, ((0.01 * dp).powi(2) + 0.25f64).sqrt()).unwrap())
+                .collect(),
+        )
+        .unwrap();
+        let g = t.gum(0.95).unwrap();
+        assert!((col("u_flow_m3_s") - g.u).abs() < 1e-15 && (col("expanded_flow_m3_s") - g.expanded).abs() < 1e-15);
+        assert!((col("relative_u_pct") - g.u / g.value * 100.0).abs() < 1e-12);
+        assert!(col("relative_u_pct") > 0.8 && col("relative_u_pct") < 2.0, "{}", col("relative_u_pct"));
     }
 
     #[test]
