@@ -110,6 +110,7 @@ fn reduce_duct(r: &Readings, warnings: &mut BTreeSet<String>) -> AnyResult<Strin
 
     let mut t = table(&["point", "insertion (mm)", "deflection (mm)", "Δp (Pa)", "ρ air (kg/m³)", "v (m/s)", "Mach"]);
     let mut velocities = Vec::with_capacity(r.len());
+    let mut dps = Vec::with_capacity(r.len());
     for i in 0..r.len() {
         let air = HumidAir::relative(rh[i] / 100.0).map_err(|e| row_err(r, i, e))?;
         let state = Fluid::HumidAir(air)
@@ -127,6 +128,7 @@ fn reduce_duct(r: &Readings, warnings: &mut BTreeSet<String>) -> AnyResult<Strin
             warnings.insert(format!("duct point {}: {}", point[i], w.message));
         }
         velocities.push(v.velocity.si());
+        dps.push(dp.dp.si());
         t.add_row(vec![
             point[i].clone(),
             fixed(insertion[i], 1),
@@ -155,13 +157,15 @@ fn reduce_duct(r: &Readings, warnings: &mut BTreeSet<String>) -> AnyResult<Strin
     let options = FlowOptions { reference: Some(ReferenceCondition::Normal0C), ..Default::default() };
     let f = flow(arithmetic.mean, &conduit, &state, &options)?;
     let q_ref = f.reference_flow.map_or(f64::NAN, |q| q.si());
+    let budget = duct_uncertainty(&dps, state.density.si())?;
     Ok(format!(
         "Larkfield Leisure Centre, AHU-2 supply duct (Ø 600 mm): pitot-static C = 0.998, inclined oil gauge 20°\n{t}\n\
          mean velocity, arithmetic mean of {} equal-area points (one diameter)  {} m/s\n\
          mean velocity, integrated (wall region power law m = 7), for comparison {} m/s\n\
          volume flow at duct conditions                                         {} m³/s  ({} m³/h)\n\
          volume flow at 0 °C, 101.325 kPa (wet air)                             {} m³/s\n\
-         mass flow                                                              {} kg/s\n",
+         mass flow                                                              {} kg/s\n\n\
+         Uncertainty of the volume flow at duct conditions (m³/s):\n{budget}",
         r.len(),
         fixed(arithmetic.mean.si(), 3),
         fixed(integrated.mean.si(), 3),
@@ -169,6 +173,51 @@ fn reduce_duct(r: &Readings, warnings: &mut BTreeSet<String>) -> AnyResult<Strin
         fixed(f.volume_flow.si() * 3600.0, 0),
         fixed(q_ref, 4),
         fixed(f.mass_flow.si(), 4),
+    ))
+}
+
+/// GUM budget of the duct flow, checked by an adaptive Monte Carlo run (JCGM 101).
+fn duct_uncertainty(dps: &[f64], rho: f64) -> AnyResult<String> {
+    use stagna::flow_uncertainty::{MethodTerm, TraverseUncertainty};
+    use stagna::monte_carlo::{monte_carlo_adaptive, validate};
+    use stagna::uncertainty::{Correlations, Input};
+    // Scenario: probe certificate C = 0.998, U = 0.005 (k = 2); density from CIPM-2007 with
+    // barometer, thermometer and hygrometer, u(ρ)/ρ = 0.15 %; diameter measured to ±1.5 mm;
+    // gauge read to half a 1 mm division along the tube (±0.25 mm ≈ ±0.7 Pa) and 0.5 % for
+    // gauge-oil and scale effects.
+    let points = dps
+        .iter()
+        .enumerate()
+        .map(|(i, dp)| {
+            Input::normal(
+                &format!("Δp point {}", i + 1),
+                "Pa",
+                *dp,
+                ((0.005 * dp).powi(2) + (0.7f64 / 3f64.sqrt()).powi(2)).sqrt(),
+            )
+        })
+        .collect::<Result<Vec<_>, _>>()?;
+    let t = TraverseUncertainty::new(
+        Input::from_expanded("probe coefficient C", "1", 0.998, 0.005, 2.0)?.with_source("calibration certificate"),
+        Input::normal("air density ρ", "kg/m³", rho, 0.0015 * rho)?.with_source("CIPM-2007 with p, t, RH readings"),
+        Input::rectangular("duct diameter D", "m", 0.600, 0.0015)?.with_source("tape across two diameters"),
+        &MethodTerm::typical(LayoutRule::EqualArea),
+        points,
+    )?;
+    let g = t.gum(0.95)?;
+    let (mc, delta) = monte_carlo_adaptive(&t.model, &t.inputs, &Correlations::none(), 2, 0.95, 20_261_202, 2_000_000)?;
+    let v = validate(&g, &mc, 2);
+    Ok(format!(
+        "{g}Monte Carlo (JCGM 101, adaptive, {} trials): mean {} u {}, 95 % interval [{}, {}]; GUM {} at δ = {} (|Δlow| = {}, |Δhigh| = {})\n",
+        mc.trials,
+        fixed(mc.mean, 4),
+        fixed(mc.u, 4),
+        fixed(mc.symmetric.0, 4),
+        fixed(mc.symmetric.1, 4),
+        if v.passed { "validated" } else { "NOT validated" },
+        format_number(delta),
+        format_number(v.d_low),
+        format_number(v.d_high),
     ))
 }
 

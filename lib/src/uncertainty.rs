@@ -511,16 +511,30 @@ pub fn gum<M: Model>(model: &M, inputs: &[Input], correlations: &Correlations, p
 impl fmt::Display for GumResult {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         use crate::quantity::format_number as n;
+        let label = |l: &BudgetLine| {
+            if l.unit == "1" || l.unit.is_empty() { l.name.clone() } else { format!("{} ({})", l.name, l.unit) }
+        };
+        let width = self.budget.iter().map(|l| label(l).chars().count()).max().unwrap_or(5).max(5) + 2;
+        let pad = |s: String| {
+            let k = s.chars().count();
+            format!("{s}{}", " ".repeat(width.saturating_sub(k)))
+        };
         writeln!(
             f,
-            "{:<28} {:>12} {:>12} {:>6} {:>12} {:>12} {:>7}",
-            "input", "value", "u", "type", "sensitivity", "c·u", "share"
+            "{}{:>12} {:>12} {:>5} {:>12} {:>12} {:>7}",
+            pad("input".into()),
+            "value",
+            "u",
+            "type",
+            "sensitivity",
+            "c·u",
+            "share"
         )?;
         for l in &self.budget {
             writeln!(
                 f,
-                "{:<28} {:>12} {:>12} {:>6} {:>12} {:>12} {:>6.1}%",
-                format!("{} ({})", l.name, l.unit),
+                "{}{:>12} {:>12} {:>5} {:>12} {:>12} {:>6.1}%",
+                pad(label(l)),
                 n(l.value),
                 n(l.u),
                 if l.evaluation == Evaluation::TypeA { "A" } else { "B" },

@@ -65,6 +65,18 @@ fn demo_prints_results_with_units_and_cautions() {
     let mean_pl = number_after(pl, "mean");
     assert!((mean_pl - ratio * vc).abs() < 2e-3, "{pl}");
     assert!((number_after(pl, "flow") - mean_pl * std::f64::consts::PI * 0.04 * 1e3).abs() < 0.2, "{pl}");
+    // Uncertainty budget: shares add to 100 % (no correlations; JCGM 100 5.1.2) and the
+    // Monte Carlo line reports its trials and the validation verdict.
+    let shares: f64 = out
+        .lines()
+        .skip_while(|l| !l.starts_with("Uncertainty of the volume flow"))
+        .take_while(|l| !l.starts_with("y = "))
+        .filter_map(|l| {
+            l.trim_end().strip_suffix('%').and_then(|x| x.split_whitespace().last()).and_then(|x| x.parse::<f64>().ok())
+        })
+        .sum();
+    assert!((shares - 100.0).abs() < 0.6, "shares add to {shares}");
+    assert!(out.contains("U(95 %) = ") && out.contains("Monte Carlo (JCGM 101, adaptive"), "{out}");
     let ll = out.lines().find(|l| l.contains("log law, κ = 0.41")).expect("log-law line");
     let f = number_after(ll, "f =");
     assert!((number_after(ll, "U/U_c =") - 1.0 / (1.0 + 1.5 / 0.41 * (f / 8.0).sqrt())).abs() < 1e-4, "{ll}");
