@@ -67,13 +67,16 @@ impl MethodTerm {
     }
 }
 
-/// Q = Π f_k (π D²/4)(1/N) Σ C √(2 Δp_i/ρ); inputs C, ρ, D, f_1…f_K, Δp_1…Δp_N.
+/// Q = Π f_k (π D²/4)(1/N) Σ C √(2 Δp_i/ρ) (or the mean velocity, without the area);
+/// inputs C, ρ, D, f_1…f_K, Δp_1…Δp_N.
 #[derive(Debug, Clone, Copy)]
 pub struct TraverseFlowModel {
     /// Number of method terms K.
     pub terms: usize,
     /// Number of points N.
     pub points: usize,
+    /// True for the mean velocity (m/s), false for the volume flow (m³/s).
+    pub mean_velocity: bool,
 }
 
 impl Model for TraverseFlowModel {
@@ -87,7 +90,8 @@ impl Model for TraverseFlowModel {
         for dp in &x[3 + self.terms..] {
             sum = sum + (R::constant(2.0) * *dp / rho).sqrt();
         }
-        factor * R::constant(std::f64::consts::PI / 4.0) * d * d * c * sum / R::constant(self.points as f64)
+        let mean = factor * c * sum / R::constant(self.points as f64);
+        if self.mean_velocity { mean } else { mean * R::constant(std::f64::consts::PI / 4.0) * d * d }
     }
 }
 
@@ -131,7 +135,13 @@ impl TraverseUncertainty {
         }
         let points = dps.len();
         inputs.extend(dps);
-        Ok(Self { model: TraverseFlowModel { terms: terms.len(), points }, inputs })
+        Ok(Self { model: TraverseFlowModel { terms: terms.len(), points, mean_velocity: false }, inputs })
+    }
+
+    /// The same traverse with the mean velocity (m/s) as the output instead of the flow.
+    pub fn for_mean_velocity(mut self) -> Self {
+        self.model.mean_velocity = true;
+        self
     }
 
     /// GUM budget of the flow (m³/s) at coverage probability `p`.
@@ -213,6 +223,11 @@ mod tests {
         let rel = |i: usize| g.budget[i].sensitivity * g.budget[i].value / g.value;
         assert!((rel(2) - 2.0).abs() < 1e-12 && (rel(1) + 0.5).abs() < 1e-12 && (rel(0) - 1.0).abs() < 1e-12);
         assert!(g.to_string().contains("ν_eff"));
+        // Mean velocity: same relative uncertainty without the diameter's share (u(Q)² = u(U)²·A² + …).
+        let gv = t.clone().for_mean_velocity().gum(0.95).unwrap();
+        let rel_d = g.budget[2].contribution / g.value;
+        assert!(((g.u / g.value).powi(2) - (gv.u / gv.value).powi(2) - rel_d * rel_d).abs() < 1e-15);
+        assert!((g.value / gv.value - std::f64::consts::PI * 0.16).abs() < 1e-12);
         let e = TraverseUncertainty::new(
             Input::normal("C", "1", 1.0, 0.0).unwrap(),
             Input::normal("ρ", "kg/m³", 1.2, 0.0).unwrap(),
