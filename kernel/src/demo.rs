@@ -185,18 +185,7 @@ fn duct_uncertainty(dps: &[f64], rho: f64) -> AnyResult<String> {
     // barometer, thermometer and hygrometer, u(ρ)/ρ = 0.15 %; diameter measured to ±1.5 mm;
     // gauge read to half a 1 mm division along the tube (±0.25 mm ≈ ±0.7 Pa) and 0.5 % for
     // gauge-oil and scale effects.
-    let points = dps
-        .iter()
-        .enumerate()
-        .map(|(i, dp)| {
-            Input::normal(
-                &format!("Δp point {}", i + 1),
-                "Pa",
-                *dp,
-                ((0.005 * dp).powi(2) + (0.7f64 / 3f64.sqrt()).powi(2)).sqrt(),
-            )
-        })
-        .collect::<Result<Vec<_>, _>>()?;
+    let points = stagna::flow_uncertainty::dp_inputs(dps, 0.005, 0.7 / 3f64.sqrt())?;
     let t = TraverseUncertainty::new(
         Input::from_expanded("probe coefficient C", "1", 0.998, 0.005, 2.0)?.with_source("calibration certificate"),
         Input::normal("air density ρ", "kg/m³", rho, 0.0015 * rho)?.with_source("CIPM-2007 with p, t, RH readings"),

@@ -443,18 +443,7 @@ fn traverse_uncertainty(u: &CampaignUncertainty, c: f64, rho: f64, d: f64, dps: 
     use crate::flow_uncertainty::TraverseUncertainty;
     use crate::uncertainty::Input;
     let build = || -> Result<[f64; 5]> {
-        let points = dps
-            .iter()
-            .enumerate()
-            .map(|(i, dp)| {
-                Input::normal(
-                    &format!("Δp point {}", i + 1),
-                    "Pa",
-                    *dp,
-                    ((u.dp_rel * dp).powi(2) + u.dp_abs_pa.powi(2)).sqrt(),
-                )
-            })
-            .collect::<Result<Vec<_>>>()?;
+        let points = crate::flow_uncertainty::dp_inputs(dps, u.dp_rel, u.dp_abs_pa)?;
         let t = TraverseUncertainty::new(
             Input::normal("probe coefficient", "1", c, u.coefficient_rel * c)?,
             Input::normal("density", "kg/m³", rho, u.density_rel * rho)?,

@@ -95,6 +95,18 @@ impl Model for TraverseFlowModel {
     }
 }
 
+/// One normal Δp input per reading, named "Δp point i", with
+/// u = √((rel·Δp)² + abs²): a relative part (gauge liquid, scale, calibration) and an
+/// absolute part in Pa (resolution, zero drift).
+pub fn dp_inputs(dps: &[f64], rel: f64, abs_pa: f64) -> Result<Vec<Input>> {
+    dps.iter()
+        .enumerate()
+        .map(|(i, dp)| {
+            Input::normal(&format!("Δp point {}", i + 1), "Pa", *dp, ((rel * dp).powi(2) + abs_pa * abs_pa).sqrt())
+        })
+        .collect()
+}
+
 /// A traverse flow with its uncertainty inputs, ready for [`gum`] or Monte Carlo.
 #[derive(Debug, Clone)]
 pub struct TraverseUncertainty {

@@ -673,37 +673,20 @@ fn incomplete_beta(a: f64, b: f64, x: f64) -> f64 {
         return 1.0 - incomplete_beta(b, a, 1.0 - x);
     }
     let tiny = 1e-300;
+    let guard = |v: f64| if v.abs() < tiny { tiny } else { v };
     let mut c = 1.0;
-    let mut d = 1.0 - (a + b) * x / (a + 1.0);
-    if d.abs() < tiny {
-        d = tiny;
-    }
-    d = 1.0 / d;
+    let mut d = 1.0 / guard(1.0 - (a + b) * x / (a + 1.0));
     let mut h = d;
+    // One Lentz step with numerator `num`; returns the factor applied to h.
+    let mut step = |num: f64| {
+        d = 1.0 / guard(1.0 + num * d);
+        c = guard(1.0 + num / c);
+        d * c
+    };
     for m in 1..500 {
         let m = m as f64;
-        let num = m * (b - m) * x / ((a + 2.0 * m - 1.0) * (a + 2.0 * m));
-        d = 1.0 + num * d;
-        if d.abs() < tiny {
-            d = tiny;
-        }
-        c = 1.0 + num / c;
-        if c.abs() < tiny {
-            c = tiny;
-        }
-        d = 1.0 / d;
-        h *= d * c;
-        let num = -(a + m) * (a + b + m) * x / ((a + 2.0 * m) * (a + 2.0 * m + 1.0));
-        d = 1.0 + num * d;
-        if d.abs() < tiny {
-            d = tiny;
-        }
-        c = 1.0 + num / c;
-        if c.abs() < tiny {
-            c = tiny;
-        }
-        d = 1.0 / d;
-        let del = d * c;
+        h *= step(m * (b - m) * x / ((a + 2.0 * m - 1.0) * (a + 2.0 * m)));
+        let del = step(-(a + m) * (a + b + m) * x / ((a + 2.0 * m) * (a + 2.0 * m + 1.0)));
         h *= del;
         if (del - 1.0).abs() < 1e-16 {
             break;
