@@ -171,7 +171,7 @@ fn baseline(df: &DataFrame, spec: &CampaignSpec) -> std::result::Result<f64, Box
             let t = temp[i] + 273.15;
             if t != last_t {
                 rho_f = spec.fluid.density_si(p, t)?;
-                rho_m = spec.manometer.liquid.density(Temperature::kelvin(t))?.si();
+                rho_m = spec.manometer.liquid().density(Temperature::kelvin(t))?.si();
                 last_t = t;
             }
             let dp = spec.manometer.dp_from_densities(defl[i] * 1e-3, rho_m, None, rho_f)?;

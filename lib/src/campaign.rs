@@ -337,7 +337,7 @@ impl Kernel<'_> {
             let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
             let rho_m = sc
                 .rho_m
-                .get(tg, |t| Ok(spec.manometer.liquid.density(crate::Temperature::kelvin(t))?.si()))
+                .get(tg, |t| Ok(spec.manometer.liquid().density(crate::Temperature::kelvin(t))?.si()))
                 .map_err(at)?;
             let light = if self.two_liquid {
                 Some(
@@ -479,7 +479,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         gauge_t: opt(&cols.gauge_temperature, "gauge temperature")?,
         p: spec.static_pressure.si(),
         gamma,
-        two_liquid: matches!(spec.manometer.kind, crate::manometer::ManometerKind::TwoLiquid { .. }),
+        two_liquid: matches!(spec.manometer.kind(), crate::manometer::ManometerKind::TwoLiquid { .. }),
         integrate: !matches!(spec.averaging, Averaging::Arithmetic),
         wall_factor: match spec.flow.wall_factor {
             Some(w) => crate::error::within("campaign", "wall adjustment factor", w.value(), "", 0.9, 1.0)?,
@@ -626,8 +626,8 @@ pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame
         let tg = gauge_t.as_ref().map_or(t, |g| g.at(row));
         let rho_f = mf.get(t, |t| spec.fluid.density_si(p, t)).map_err(at)?;
         let rho_m =
-            mm.get(tg, |t| Ok(spec.manometer.liquid.density(crate::Temperature::kelvin(t))?.si())).map_err(at)?;
-        let light = match spec.manometer.kind {
+            mm.get(tg, |t| Ok(spec.manometer.liquid().density(crate::Temperature::kelvin(t))?.si())).map_err(at)?;
+        let light = match spec.manometer.kind() {
             crate::manometer::ManometerKind::TwoLiquid { .. } => Some(
                 ml.get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))
                     .map_err(at)?,

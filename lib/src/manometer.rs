@@ -97,15 +97,13 @@ impl Reading {
     }
 }
 
-/// A manometer: arrangement, gauge liquid and local gravity.
+/// A manometer: arrangement, gauge liquid and local gravity (fixed at construction,
+/// since the geometric factor is computed once).
 #[derive(Debug, Clone, PartialEq)]
 pub struct Manometer {
-    /// Arrangement.
-    pub kind: ManometerKind,
-    /// Gauge liquid (the heavy one for a two-liquid gauge).
-    pub liquid: GaugeLiquid,
-    /// Local acceleration of free fall.
-    pub gravity: Acceleration,
+    kind: ManometerKind,
+    liquid: GaugeLiquid,
+    gravity: Acceleration,
     /// g times the geometric factor of the arrangement (sin θ + a/A, 1 + a/A or 1),
     /// computed once in `new`.
     g_factor: f64,
@@ -184,6 +182,21 @@ impl Manometer {
             _ => 1.0,
         };
         Ok(Self { g_factor: gravity.si() * geometry, kind, liquid, gravity })
+    }
+
+    /// The arrangement.
+    pub fn kind(&self) -> &ManometerKind {
+        &self.kind
+    }
+
+    /// The gauge liquid (the heavy one for a two-liquid gauge).
+    pub fn liquid(&self) -> &GaugeLiquid {
+        &self.liquid
+    }
+
+    /// The local acceleration of free fall used.
+    pub fn gravity(&self) -> Acceleration {
+        self.gravity
     }
 
     /// Differential pressure from a reading, the gauge-liquid temperature and
