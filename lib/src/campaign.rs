@@ -296,7 +296,12 @@ impl Scratch {
 }
 
 impl Kernel<'_> {
-    fn traverse(&self, rows: impl Iterator<Item = usize>, first: usize, sc: &mut Scratch) -> Result<TraverseOut> {
+    fn traverse(
+        &self,
+        rows: impl Iterator<Item = usize> + Clone,
+        first: usize,
+        sc: &mut Scratch,
+    ) -> Result<TraverseOut> {
         let spec = self.spec;
         let d = self.dia.at(first);
         if !(d.is_finite() && d > 0.0) {
@@ -313,7 +318,7 @@ impl Kernel<'_> {
         sc.v.clear();
         sc.keyed.clear();
         sc.dps.clear();
-        for (k, row) in rows.enumerate() {
+        for (k, row) in rows.clone().enumerate() {
             let at = |e: Error| Error::Inconsistent {
                 context: "traverse",
                 message: format!("point {} (row {}): {e}", k + 1, row + 1),
@@ -391,7 +396,6 @@ impl Kernel<'_> {
                 last_line = line;
                 last_s = s;
                 let r = 2.0 * s / d - 1.0;
-                sc.keyed.push((line, r));
                 if self.integrate {
                     sc.lines.push(line);
                     sc.pos.push(Position::Radial { r_over_r: r, angle_deg: 0.0 });
@@ -405,8 +409,13 @@ impl Kernel<'_> {
                 message: format!("{n} points, fewer than the {} the layout needs", spec.min_points),
             });
         }
-        if self.pos.is_some() && !ordered {
-            // Positions not strictly increasing along each line: look for duplicates.
+        if let (Some(pc), false) = (&self.pos, ordered) {
+            // Positions not strictly increasing along each line: look for duplicates
+            // (rows re-read; the ordered case, the usual one, needs no buffer).
+            sc.keyed.clear();
+            sc.keyed.extend(
+                rows.map(|row| (self.line.as_ref().map_or(0, |l| l.at(row) as usize), 2.0 * pc.at(row) / d - 1.0)),
+            );
             sc.keyed.sort_by(|a, b| a.0.cmp(&b.0).then(a.1.total_cmp(&b.1)));
             if let Some(w) = sc.keyed.windows(2).find(|w| w[0].0 == w[1].0 && (w[0].1 - w[1].1).abs() < 1e-12) {
                 return Err(Error::Inconsistent {
