@@ -30,8 +30,12 @@ pub struct CampaignColumns {
     pub deflection: (String, Unit),
     /// Working-fluid temperature, and its unit (absolute temperature unit).
     pub fluid_temperature: (String, Unit),
-    /// Inside diameter of the conduit, and its unit.
-    pub diameter: (String, Unit),
+    /// Inside diameter of a round conduit, or the width of a rectangular one (the side with
+    /// the ports), and its unit.
+    pub size: (String, Unit),
+    /// For rectangular conduits: the height (traverse depth) and, per point, the distance
+    /// of its traverse line from the side wall across the width.
+    pub rectangular: Option<RectangularColumns>,
     /// Distance of the point from the port-side wall along its diameter, and its unit
     /// (needed for integration and for position checks).
     pub position: Option<(String, Unit)>,
@@ -49,12 +53,22 @@ impl CampaignColumns {
             traverse: "traverse".into(),
             deflection: ("deflection_mm".into(), Unit::parse("mm")?),
             fluid_temperature: ("fluid_temp_c".into(), Unit::parse("degC")?),
-            diameter: ("diameter_mm".into(), Unit::parse("mm")?),
+            size: ("diameter_mm".into(), Unit::parse("mm")?),
+            rectangular: None,
             position: Some(("position_mm".into(), Unit::parse("mm")?)),
             line: None,
             gauge_temperature: None,
         })
     }
+}
+
+/// The extra columns of a rectangular conduit.
+#[derive(Debug, Clone)]
+pub struct RectangularColumns {
+    /// Inside height (the traverse depth), and its unit.
+    pub height: (String, Unit),
+    /// Distance of the point's traverse line from the side wall, across the width, and its unit.
+    pub across: (String, Unit),
 }
 
 /// How a campaign is measured.
@@ -88,7 +102,7 @@ pub struct CampaignUncertainty {
     pub coefficient_rel: f64,
     /// u(ρ)/ρ of the density.
     pub density_rel: f64,
-    /// u(D)/D of the diameter.
+    /// u(D)/D of the diameter (of the width and of the height for rectangular conduits).
     pub diameter_rel: f64,
     /// Relative part of each reading's u(Δp).
     pub dp_rel: f64,
@@ -258,6 +272,8 @@ struct Kernel<'a> {
     defl: SiColumn<'a>,
     temp: SiColumn<'a>,
     dia: SiColumn<'a>,
+    height: Option<SiColumn<'a>>,
+    across: Option<SiColumn<'a>>,
     pos: Option<SiColumn<'a>>,
     line: Option<SiColumn<'a>>,
     gauge_t: Option<SiColumn<'a>>,
@@ -276,7 +292,7 @@ struct Scratch {
     lines: Vec<usize>,
     pos: Vec<Position>,
     v: Vec<f64>,
-    keyed: Vec<(usize, f64)>,
+    keyed: Vec<(f64, f64)>,
     dps: Vec<f64>,
 }
 
@@ -307,12 +323,25 @@ impl Kernel<'_> {
         if !(d.is_finite() && d > 0.0) {
             return Err(Error::Inconsistent {
                 context: "traverse",
-                message: format!("diameter {} is not a positive number", self.dia.raw(first)),
+                message: format!("diameter or width {} is not a positive number", self.dia.raw(first)),
             });
         }
-        let area = std::f64::consts::PI * d * d / 4.0;
+        // Round: depth = D, area πD²/4. Rectangular: width d, depth = height, area d·h.
+        let (depth, area) = match &self.height {
+            None => (d, std::f64::consts::PI * d * d / 4.0),
+            Some(hc) => {
+                let h = hc.at(first);
+                if !(h.is_finite() && h > 0.0) {
+                    return Err(Error::Inconsistent {
+                        context: "traverse",
+                        message: format!("height {} is not a positive number", hc.raw(first)),
+                    });
+                }
+                (h, d * h)
+            }
+        };
         let (mut n, mut sum_v, mut sum_rho, mut vmax, mut reversed, mut sum_t) = (0u32, 0.0, 0.0, f64::MIN, 0u32, 0.0);
-        let (mut ordered, mut last_line, mut last_s) = (true, 0usize, f64::MIN);
+        let (mut ordered, mut last_line, mut last_s) = (true, f64::MIN, f64::MIN);
         sc.lines.clear();
         sc.pos.clear();
         sc.v.clear();
@@ -323,10 +352,10 @@ impl Kernel<'_> {
                 context: "traverse",
                 message: format!("point {} (row {}): {e}", k + 1, row + 1),
             };
-            if self.dia.at(row) != d {
+            if self.dia.at(row) != d || self.height.as_ref().is_some_and(|hc| hc.at(row) != depth) {
                 return Err(at(Error::Inconsistent {
                     context: "traverse",
-                    message: "the diameter changes within the traverse".into(),
+                    message: "the conduit size changes within the traverse".into(),
                 }));
             }
             let h = self.defl.at(row);
@@ -369,15 +398,31 @@ impl Kernel<'_> {
             reversed += u32::from(dp < 0.0);
             if let Some(pc) = &self.pos {
                 let s = pc.at(row);
-                if !(s > 0.0 && s < d) {
+                if !(s > 0.0 && s < depth) {
                     return Err(at(Error::Inconsistent {
                         context: "position",
                         message: format!(
-                            "{} m from the wall lies outside the section (diameter {d} m)",
+                            "{} m from the wall lies outside the section (depth {depth} m)",
                             crate::quantity::format_number(s)
                         ),
                     }));
                 }
+                let x = match &self.across {
+                    None => 0.0,
+                    Some(ac) => {
+                        let x = ac.at(row);
+                        if !(x > 0.0 && x < d) {
+                            return Err(at(Error::Inconsistent {
+                                context: "position",
+                                message: format!(
+                                    "{} m across lies outside the width {d} m",
+                                    crate::quantity::format_number(x)
+                                ),
+                            }));
+                        }
+                        x
+                    }
+                };
                 let line = match &self.line {
                     None => 0,
                     Some(l) => {
@@ -392,13 +437,16 @@ impl Kernel<'_> {
                         whole
                     }
                 };
-                ordered &= line > last_line || (line == last_line && s > last_s);
-                last_line = line;
+                let key = if self.across.is_some() { x } else { line as f64 };
+                ordered &= key > last_line || (key == last_line && s > last_s);
+                last_line = key;
                 last_s = s;
-                let r = 2.0 * s / d - 1.0;
                 if self.integrate {
                     sc.lines.push(line);
-                    sc.pos.push(Position::Radial { r_over_r: r, angle_deg: 0.0 });
+                    sc.pos.push(match self.across {
+                        None => Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 },
+                        Some(_) => Position::Grid { x_over_w: x / d, y_over_h: s / depth },
+                    });
                     sc.v.push(v);
                 }
             }
@@ -413,15 +461,40 @@ impl Kernel<'_> {
             // Positions not strictly increasing along each line: look for duplicates
             // (rows re-read; the ordered case, the usual one, needs no buffer).
             sc.keyed.clear();
-            sc.keyed.extend(
-                rows.map(|row| (self.line.as_ref().map_or(0, |l| l.at(row) as usize), 2.0 * pc.at(row) / d - 1.0)),
-            );
-            sc.keyed.sort_by(|a, b| a.0.cmp(&b.0).then(a.1.total_cmp(&b.1)));
+            sc.keyed.extend(rows.map(|row| {
+                let key = match (&self.across, &self.line) {
+                    (Some(ac), _) => ac.at(row),
+                    (None, Some(l)) => l.at(row),
+                    (None, None) => 0.0,
+                };
+                (key, pc.at(row))
+            }));
+            sc.keyed.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
             if let Some(w) = sc.keyed.windows(2).find(|w| w[0].0 == w[1].0 && (w[0].1 - w[1].1).abs() < 1e-12) {
                 return Err(Error::Inconsistent {
                     context: "traverse",
-                    message: format!("duplicate position r/R = {:.4} on line {}", w[0].1, w[0].0 + 1),
+                    message: format!(
+                        "duplicate position: {} m from the wall twice on {}",
+                        crate::quantity::format_number(w[0].1),
+                        if self.across.is_some() {
+                            format!("the line {} m across", crate::quantity::format_number(w[0].0))
+                        } else {
+                            format!("line {}", w[0].0 + 1.0)
+                        }
+                    ),
                 });
+            }
+        }
+        if self.integrate && self.across.is_some() {
+            // Rectangular lines are numbered by their position across the width.
+            let mut xs: Vec<f64> =
+                sc.pos.iter().map(|p| if let Position::Grid { x_over_w, .. } = p { *x_over_w } else { 0.0 }).collect();
+            xs.sort_by(f64::total_cmp);
+            xs.dedup();
+            for (line, p) in sc.lines.iter_mut().zip(&sc.pos) {
+                if let Position::Grid { x_over_w, .. } = p {
+                    *line = xs.partition_point(|x| x < x_over_w);
+                }
             }
         }
         let mean_v = self.wall_factor
@@ -431,7 +504,17 @@ impl Kernel<'_> {
             };
         let rho = sum_rho / f64::from(n);
         let q = mean_v * area;
-        let unc = spec.uncertainty.as_ref().map(|u| traverse_uncertainty(u, spec.probe.coefficient, rho, d, &sc.dps));
+        // Rectangular: the equivalent size √(W·H) with A = size², and u(size)/size = r/√2 when
+        // width and height each have relative uncertainty r (derived).
+        let (size, shape, rel_scale) = if self.height.is_some() {
+            (area.sqrt(), 1.0, std::f64::consts::FRAC_1_SQRT_2)
+        } else {
+            (d, std::f64::consts::FRAC_PI_4, 1.0)
+        };
+        let unc = spec
+            .uncertainty
+            .as_ref()
+            .map(|u| traverse_uncertainty(u, spec.probe.coefficient, rho, size, shape, rel_scale, &sc.dps));
         Ok(TraverseOut {
             first_row: first,
             points: n,
@@ -448,7 +531,15 @@ impl Kernel<'_> {
 }
 
 /// GUM budget of one traverse's flow; NaNs when the model cannot take the readings.
-fn traverse_uncertainty(u: &CampaignUncertainty, c: f64, rho: f64, d: f64, dps: &[f64]) -> [f64; 5] {
+fn traverse_uncertainty(
+    u: &CampaignUncertainty,
+    c: f64,
+    rho: f64,
+    d: f64,
+    shape: f64,
+    rel_scale: f64,
+    dps: &[f64],
+) -> [f64; 5] {
     use crate::flow_uncertainty::TraverseUncertainty;
     use crate::uncertainty::Input;
     let build = || -> Result<[f64; 5]> {
@@ -456,11 +547,11 @@ fn traverse_uncertainty(u: &CampaignUncertainty, c: f64, rho: f64, d: f64, dps: 
         let t = TraverseUncertainty::new(
             Input::normal("probe coefficient", "1", c, u.coefficient_rel * c)?,
             Input::normal("density", "kg/m³", rho, u.density_rel * rho)?,
-            Input::normal("diameter", "m", d, u.diameter_rel * d)?,
+            Input::normal("diameter or equivalent size", "m", d, u.diameter_rel * rel_scale * d)?,
             &u.terms,
             points,
         )?;
-        let g = t.gum(u.coverage)?;
+        let g = t.with_area_factor(shape).gum(u.coverage)?;
         Ok([g.u, g.u / g.value * 100.0, g.k, g.expanded, g.dof])
     };
     build().unwrap_or([f64::NAN; 5])
@@ -482,7 +573,13 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         spec,
         defl: column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?,
         temp: column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?,
-        dia: column(df, &cols.diameter.0, &cols.diameter.1, "diameter")?,
+        dia: column(df, &cols.size.0, &cols.size.1, "diameter or width")?,
+        height: cols.rectangular.as_ref().map(|r| column(df, &r.height.0, &r.height.1, "height")).transpose()?,
+        across: cols
+            .rectangular
+            .as_ref()
+            .map(|r| column(df, &r.across.0, &r.across.1, "position across the width"))
+            .transpose()?,
         pos: opt(&cols.position, "position")?,
         line: cols.line.as_ref().map(|n| column(df, n, &one, "line number")).transpose()?,
         gauge_t: opt(&cols.gauge_temperature, "gauge temperature")?,
@@ -854,6 +951,57 @@ mod tests {
         assert!((col("u_flow_m3_s") - g.u).abs() < 1e-15 && (col("expanded_flow_m3_s") - g.expanded).abs() < 1e-15);
         assert!((col("relative_u_pct") - g.u / g.value * 100.0).abs() < 1e-12);
         assert!(col("relative_u_pct") > 0.8 && col("relative_u_pct") < 2.0, "{}", col("relative_u_pct"));
+    }
+
+    // A 1000 × 500 mm duct on the US EPA Method 1 Table 1-2 12-point grid (4 lines × 3 points,
+    // centroids (2i − 1)/(2n)): equal readings give the point velocity as the mean, and the
+    // flow is mean × W·H (definition).
+    #[test]
+    fn rectangular_campaign() {
+        let mut spec = air_spec();
+        spec.columns.rectangular = Some(RectangularColumns {
+            height: ("height_mm".into(), Unit::parse("mm").unwrap()),
+            across: ("across_mm".into(), Unit::parse("mm").unwrap()),
+        });
+        spec.averaging = Averaging::Integrate { wall_exponent: 7.0 };
+        let (mut across, mut depth) = (vec![], vec![]);
+        for i in 0..4 {
+            for j in 0..3 {
+                across.push((2 * i + 1) as f64 / 8.0 * 1000.0);
+                depth.push((2 * j + 1) as f64 / 6.0 * 500.0);
+            }
+        }
+        let df = DataFrame::new_infer_height(vec![
+            Column::new("traverse".into(), vec![1i64; 12]),
+            Column::new("deflection_mm".into(), vec![25.0; 12]),
+            Column::new("fluid_temp_c".into(), vec![18.0; 12]),
+            Column::new("diameter_mm".into(), vec![1000.0; 12]),
+            Column::new("height_mm".into(), vec![500.0; 12]),
+            Column::new("across_mm".into(), across.clone()),
+            Column::new("position_mm".into(), depth.clone()),
+        ])
+        .unwrap();
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert!(r.failures.is_empty(), "{:?}", r.failures);
+        let col = |n: &str| r.traverses.column(n).unwrap().f64().unwrap().get(0).unwrap();
+        let v = point_velocities(&df.slice(0, 1), &spec)
+            .unwrap()
+            .column("velocity_m_s")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .get(0)
+            .unwrap();
+        // integration of a flat profile with m = 7 wall zones: each 1-D mean is
+        // (1 − 2·(1/2n)) + 2·(1/2n)·7/8 of the point value (derived)
+        let line = |n: f64| 1.0 - 1.0 / n + (1.0 / n) * 0.875;
+        assert!((col("mean_velocity_m_s") - v * line(4.0) * line(3.0)).abs() < 1e-12);
+        assert!((col("volume_flow_m3_s") - col("mean_velocity_m_s") * 0.5).abs() < 1e-12);
+        let mut bad = across.clone();
+        bad[5] = 1200.0;
+        let df2 = df.clone().with_column(Column::new("across_mm".into(), bad)).unwrap().clone();
+        let r2 = reduce_campaign(&df2, &spec).unwrap();
+        assert!(r2.failures[0].message.contains("outside the width"), "{:?}", r2.failures);
     }
 
     #[test]

@@ -77,6 +77,9 @@ pub struct TraverseFlowModel {
     pub points: usize,
     /// True for the mean velocity (m/s), false for the volume flow (m³/s).
     pub mean_velocity: bool,
+    /// k in A = k·D²: π/4 for a round conduit (the default), 1 for a rectangle given by
+    /// its equivalent size √(W·H).
+    pub area_factor: f64,
 }
 
 impl Model for TraverseFlowModel {
@@ -91,7 +94,7 @@ impl Model for TraverseFlowModel {
             sum = sum + (R::constant(2.0) * *dp / rho).sqrt();
         }
         let mean = factor * c * sum / R::constant(self.points as f64);
-        if self.mean_velocity { mean } else { mean * R::constant(std::f64::consts::PI / 4.0) * d * d }
+        if self.mean_velocity { mean } else { mean * R::constant(self.area_factor) * d * d }
     }
 }
 
@@ -147,7 +150,21 @@ impl TraverseUncertainty {
         }
         let points = dps.len();
         inputs.extend(dps);
-        Ok(Self { model: TraverseFlowModel { terms: terms.len(), points, mean_velocity: false }, inputs })
+        Ok(Self {
+            model: TraverseFlowModel {
+                terms: terms.len(),
+                points,
+                mean_velocity: false,
+                area_factor: std::f64::consts::FRAC_PI_4,
+            },
+            inputs,
+        })
+    }
+
+    /// The same traverse with another area factor k (A = k·D²).
+    pub fn with_area_factor(mut self, k: f64) -> Self {
+        self.model.area_factor = k;
+        self
     }
 
     /// The same traverse with the mean velocity (m/s) as the output instead of the flow.
