@@ -99,8 +99,14 @@ impl Quantity {
             // A temperature difference shown in °C/°F: scale only.
             return Ok(self.si / u.factor);
         }
-        if self.absolute_temperature && !u.absolute_temperature && u.offset == 0.0 {
-            return Ok(self.si / u.factor);
+        if self.absolute_temperature && !u.absolute_temperature && self.dimension == Dimension::TEMPERATURE {
+            return Err(Error::Inconsistent {
+                context: "quantity",
+                message: format!(
+                    "an absolute temperature cannot be written in the difference unit '{}'; subtract a reference temperature first",
+                    u.symbol
+                ),
+            });
         }
         Ok(u.from_si(self.si))
     }
@@ -528,6 +534,10 @@ mod tests {
         // 9 °F difference = 5 K: NIST SP 811 B.9
         assert!((warmer.value_in("degC").unwrap() - 25.0).abs() < 1e-12);
         assert!(Temperature::try_from(d).is_err());
+        // An absolute temperature is not a difference (NIST SP 811 §4.2.1.1 keeps them apart).
+        let e = a.value_in("delta_degC").unwrap_err().to_string();
+        assert!(e.contains("subtract a reference temperature"), "{e}");
+        assert!((d.value_in("degF").unwrap()).abs() < 1e-12, "a difference shown in °F is scaled only");
     }
 
     #[test]
