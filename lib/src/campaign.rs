@@ -267,28 +267,85 @@ struct TraverseOut {
 }
 
 /// Everything a traverse reduction reads, shared by all threads.
-struct Kernel<'a> {
+/// The per-row physics shared by the campaign reduction and the per-point table:
+/// fluid density, gauge-liquid densities, Δp from the deflection, point velocity.
+struct RowPhysics<'a> {
     spec: &'a CampaignSpec,
     defl: SiColumn<'a>,
     temp: SiColumn<'a>,
+    gauge_t: Option<SiColumn<'a>>,
+    p: f64,
+    gamma: Option<f64>,
+    two_liquid: bool,
+}
+
+/// Memos of the densities, which readings of one traverse usually repeat.
+struct Memos {
+    rho_f: Memo,
+    rho_m: Memo,
+    light: Memo,
+}
+
+impl Memos {
+    fn new() -> Self {
+        Self { rho_f: Memo::new(), rho_m: Memo::new(), light: Memo::new() }
+    }
+}
+
+impl<'a> RowPhysics<'a> {
+    fn new(df: &'a DataFrame, spec: &'a CampaignSpec) -> Result<Self> {
+        let cols = &spec.columns;
+        Ok(Self {
+            spec,
+            defl: column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?,
+            temp: column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?,
+            gauge_t: cols.gauge_temperature.as_ref().map(|(n, u)| column(df, n, u, "gauge temperature")).transpose()?,
+            p: spec.static_pressure.si(),
+            gamma: spec.fluid.isentropic_exponent(),
+            two_liquid: matches!(spec.manometer.kind(), crate::manometer::ManometerKind::TwoLiquid { .. }),
+        })
+    }
+
+    /// (Δp in Pa, fluid density in kg/m³, velocity in m/s, fluid temperature in K) of one row.
+    #[inline(always)]
+    fn point(&self, row: usize, m: &mut Memos) -> Result<(f64, f64, f64, f64)> {
+        let spec = self.spec;
+        let h = self.defl.at(row);
+        if !h.is_finite() {
+            return Err(Error::NotFinite { context: "reading", param: "deflection", value: self.defl.raw(row) });
+        }
+        let t = self.temp.at(row);
+        let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
+        let rho_f = m.rho_f.get(t, |t| spec.fluid.density_si(self.p, t))?;
+        let rho_m = m.rho_m.get(tg, |t| Ok(spec.manometer.liquid().density(crate::Temperature::kelvin(t))?.si()))?;
+        let light = if self.two_liquid {
+            Some(m.light.get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))?)
+        } else {
+            None
+        };
+        let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f)?;
+        let v = match self.gamma {
+            Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, self.p, g),
+            None => incompressible(spec.probe.coefficient, dp, rho_f),
+        };
+        Ok((dp, rho_f, v, t))
+    }
+}
+
+struct Kernel<'a> {
+    phys: RowPhysics<'a>,
     dia: SiColumn<'a>,
     height: Option<SiColumn<'a>>,
     across: Option<SiColumn<'a>>,
     pos: Option<SiColumn<'a>>,
     line: Option<SiColumn<'a>>,
-    gauge_t: Option<SiColumn<'a>>,
-    p: f64,
-    gamma: Option<f64>,
-    two_liquid: bool,
     integrate: bool,
     wall_factor: f64,
 }
 
 /// Per-thread memos and buffers, reused from traverse to traverse.
 struct Scratch {
-    rho_f: Memo,
-    rho_m: Memo,
-    light: Memo,
+    memos: Memos,
     lines: Vec<usize>,
     pos: Vec<Position>,
     v: Vec<f64>,
@@ -298,16 +355,7 @@ struct Scratch {
 
 impl Scratch {
     fn new() -> Self {
-        Self {
-            rho_f: Memo::new(),
-            rho_m: Memo::new(),
-            light: Memo::new(),
-            lines: vec![],
-            pos: vec![],
-            v: vec![],
-            keyed: vec![],
-            dps: vec![],
-        }
+        Self { memos: Memos::new(), lines: vec![], pos: vec![], v: vec![], keyed: vec![], dps: vec![] }
     }
 }
 
@@ -318,7 +366,7 @@ impl Kernel<'_> {
         first: usize,
         sc: &mut Scratch,
     ) -> Result<TraverseOut> {
-        let spec = self.spec;
+        let spec = self.phys.spec;
         let d = self.dia.at(first);
         if !(d.is_finite() && d > 0.0) {
             return Err(Error::Inconsistent {
@@ -358,35 +406,7 @@ impl Kernel<'_> {
                     message: "the conduit size changes within the traverse".into(),
                 }));
             }
-            let h = self.defl.at(row);
-            let t = self.temp.at(row);
-            if !h.is_finite() {
-                return Err(at(Error::NotFinite {
-                    context: "reading",
-                    param: "deflection",
-                    value: self.defl.raw(row),
-                }));
-            }
-            let rho_f = sc.rho_f.get(t, |t| spec.fluid.density_si(self.p, t)).map_err(at)?;
-            let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
-            let rho_m = sc
-                .rho_m
-                .get(tg, |t| Ok(spec.manometer.liquid().density(crate::Temperature::kelvin(t))?.si()))
-                .map_err(at)?;
-            let light = if self.two_liquid {
-                Some(
-                    sc.light
-                        .get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))
-                        .map_err(at)?,
-                )
-            } else {
-                None
-            };
-            let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f).map_err(at)?;
-            let v = match self.gamma {
-                Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, self.p, g),
-                None => incompressible(spec.probe.coefficient, dp, rho_f),
-            };
+            let (dp, rho_f, v, t) = self.phys.point(row, &mut sc.memos).map_err(at)?;
             if spec.uncertainty.is_some() {
                 sc.dps.push(dp);
             }
@@ -570,9 +590,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
     let one = Unit::parse("1")?;
     let gamma = spec.fluid.isentropic_exponent();
     let kernel = Kernel {
-        spec,
-        defl: column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?,
-        temp: column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?,
+        phys: RowPhysics::new(df, spec)?,
         dia: column(df, &cols.size.0, &cols.size.1, "diameter or width")?,
         height: cols.rectangular.as_ref().map(|r| column(df, &r.height.0, &r.height.1, "height")).transpose()?,
         across: cols
@@ -582,10 +600,6 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             .transpose()?,
         pos: opt(&cols.position, "position")?,
         line: cols.line.as_ref().map(|n| column(df, n, &one, "line number")).transpose()?,
-        gauge_t: opt(&cols.gauge_temperature, "gauge temperature")?,
-        p: spec.static_pressure.si(),
-        gamma,
-        two_liquid: matches!(spec.manometer.kind(), crate::manometer::ManometerKind::TwoLiquid { .. }),
         integrate: !matches!(spec.averaging, Averaging::Arithmetic),
         wall_factor: match spec.flow.wall_factor {
             Some(w) => crate::error::within("campaign", "wall adjustment factor", w.value(), "", 0.9, 1.0)?,
@@ -669,7 +683,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             }),
         }
     }
-    let p = kernel.p;
+    let p = kernel.phys.p;
 
     let idx: Vec<IdxSize> = outs.iter().map(|o| o.first_row as IdxSize).collect();
     let keys = key_series.take_slice(&idx).map_err(table_err)?;
@@ -710,41 +724,12 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
 /// Per-row Δp, density and velocity as new columns `dp_pa`, `density_kg_m3`,
 /// `velocity_m_s` (a copy of `df` with them appended). Stops at the first bad row.
 pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame> {
-    let cols = &spec.columns;
-    let defl = column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?;
-    let temp = column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?;
-    let gauge_t = match &cols.gauge_temperature {
-        Some((n, u)) => Some(column(df, n, u, "gauge temperature")?),
-        None => None,
-    };
+    let phys = RowPhysics::new(df, spec)?;
     let n = df.height();
     let (mut dps, mut rhos, mut vs) = (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
-    let p = spec.static_pressure.si();
-    let gamma = spec.fluid.isentropic_exponent();
-    let (mut mf, mut mm, mut ml) = (Memo::new(), Memo::new(), Memo::new());
+    let mut memos = Memos::new();
     for row in 0..n {
-        let at = |e: Error| e.at_row(row);
-        let h = defl.at(row);
-        if !h.is_finite() {
-            return Err(at(Error::NotFinite { context: "reading", param: "deflection", value: defl.raw(row) }));
-        }
-        let t = temp.at(row);
-        let tg = gauge_t.as_ref().map_or(t, |g| g.at(row));
-        let rho_f = mf.get(t, |t| spec.fluid.density_si(p, t)).map_err(at)?;
-        let rho_m =
-            mm.get(tg, |t| Ok(spec.manometer.liquid().density(crate::Temperature::kelvin(t))?.si())).map_err(at)?;
-        let light = match spec.manometer.kind() {
-            crate::manometer::ManometerKind::TwoLiquid { .. } => Some(
-                ml.get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))
-                    .map_err(at)?,
-            ),
-            _ => None,
-        };
-        let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f).map_err(at)?;
-        let v = match gamma {
-            Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, p, g),
-            None => incompressible(spec.probe.coefficient, dp, rho_f),
-        };
+        let (dp, rho_f, v, _) = phys.point(row, &mut memos).map_err(|e| e.at_row(row))?;
         dps.push(dp);
         rhos.push(rho_f);
         vs.push(v);

@@ -31,7 +31,7 @@
 
 use std::fmt;
 
-use crate::error::{Error, Result, Warning, finite};
+use crate::error::{Result, Warning, finite};
 use crate::fluid::FluidState;
 use crate::quantity::{Density, Length, Pressure, Velocity, format_number};
 use crate::steps::Steps;
@@ -260,17 +260,8 @@ impl Probe {
         for (row, o) in out.iter_mut().enumerate() {
             let dp = at(dp_pa, row);
             let r = at(rho, row);
-            if !dp.is_finite() {
-                return Err(
-                    Error::NotFinite { context: "probe", param: "differential pressure", value: dp }.at_row(row)
-                );
-            }
-            if !(r > 0.0 && r.is_finite()) {
-                return Err(crate::error::positive("probe", "fluid density", r, "kg/m³")
-                    .err()
-                    .unwrap_or(Error::NotFinite { context: "probe", param: "fluid density", value: r })
-                    .at_row(row));
-            }
+            finite("probe", "differential pressure", dp).map_err(|e| e.at_row(row))?;
+            crate::error::positive("probe", "fluid density", r, "kg/m³").map_err(|e| e.at_row(row))?;
             counts.reversed += usize::from(dp < 0.0);
             counts.zero += usize::from(dp == 0.0);
             *o = incompressible(c, dp, r);
