@@ -93,6 +93,22 @@ pub enum Error {
         /// What went wrong in that row.
         source: Box<Error>,
     },
+    /// A file that could not be read or written.
+    #[error("{path}: {message}")]
+    File {
+        /// The file's path as given.
+        path: String,
+        /// What went wrong (missing, malformed, not writable, ...).
+        message: String,
+    },
+    /// A table column that is missing or holds the wrong kind of data.
+    #[error("column '{column}': {message}")]
+    Column {
+        /// Column name.
+        column: String,
+        /// What is wrong, with the available columns where useful.
+        message: String,
+    },
     /// Inputs that are individually valid but do not fit together.
     #[error("{context}: {message}")]
     Inconsistent {

@@ -394,14 +394,25 @@ impl TraverseLayout {
         s
     }
 
-    /// The cross-section with its traverse lines, ports (triangles) and numbered points, as SVG.
+    /// The cross-section with its traverse lines, ports and numbered points, as SVG.
     pub fn to_svg(&self) -> Result<String> {
+        crate::plot::svg((520, 520), |root| self.draw(root))
+    }
+
+    /// The same drawing as PNG bytes.
+    pub fn to_png(&self) -> Result<Vec<u8>> {
+        crate::plot::png((520, 520), |root| self.draw(root))
+    }
+
+    /// Draws the cross-section on any plotters backend.
+    pub fn draw<DB: plotters::prelude::DrawingBackend>(
+        &self,
+        root: &plotters::prelude::DrawingArea<DB, plotters::coord::Shift>,
+    ) -> Result<()> {
         use plotters::prelude::*;
         let size = 520i32;
         let margin = 50.0;
-        let mut out = String::new();
         {
-            let root = SVGBackend::with_string(&mut out, (size as u32, size as u32)).into_drawing_area();
             let err = |e: String| Error::Inconsistent { context: "layout drawing", message: e };
             root.fill(&WHITE).map_err(|e| err(e.to_string()))?;
             let span = f64::from(size) - 2.0 * margin;
@@ -460,9 +471,8 @@ impl TraverseLayout {
                     }
                 }
             }
-            root.present().map_err(|e| err(e.to_string()))?;
         }
-        Ok(out)
+        Ok(())
     }
 }
 

@@ -1,0 +1,375 @@
+//! The script API: the library's types as rhai values, registered with their docs.
+//!
+//! Each submodule registers one part of the domain through the [`Registrar`]; the
+//! values that cross between parts (quantities, columns, tables) and the argument
+//! conversions live here.
+
+use std::fmt::Display;
+use std::sync::{Arc, RwLock};
+
+use rhai::{Dynamic, EvalAltResult, Position};
+use stagna::dimension::Dimension;
+use stagna::quantity::format_number;
+use stagna::{Quantity, Unit};
+
+use crate::catalog::Registrar;
+
+pub mod charts;
+pub mod domain;
+pub mod quantity;
+pub mod tables;
+pub mod uncertainty;
+
+/// Result type of host functions.
+pub type Res<T> = Result<T, Box<EvalAltResult>>;
+
+/// A script error from any message.
+pub fn rt(msg: impl Display) -> Box<EvalAltResult> {
+    EvalAltResult::ErrorRuntime(Dynamic::from(msg.to_string()), Position::NONE).into()
+}
+
+/// Maps a library result into a script result.
+pub fn lib<T>(r: stagna::Result<T>) -> Res<T> {
+    r.map_err(rt)
+}
+
+/// The unit system for display.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum UnitSystem {
+    /// SI (Pa, m, m/s, m³/s, kg/s, kg/m³, °C).
+    Si,
+    /// US customary (in of water at 60 °F, in, ft/s, cfm, lb/h, lb/ft³, °F).
+    Us,
+}
+
+/// Per-session settings read by the display functions.
+#[derive(Debug, Clone)]
+pub struct Prefs {
+    /// Display units.
+    pub system: UnitSystem,
+    /// Folder where relative output paths go (batch runs) — `None` writes beside the script's
+    /// working directory.
+    pub output_dir: Option<std::path::PathBuf>,
+    /// Files that must never be overwritten (the batch runner's inputs).
+    pub protected: Vec<std::path::PathBuf>,
+    /// Folder the bundled demo tables are read from instead of the embedded copies.
+    pub data_dir: Option<std::path::PathBuf>,
+}
+
+impl Default for Prefs {
+    fn default() -> Self {
+        Self { system: UnitSystem::Si, output_dir: None, protected: Vec::new(), data_dir: None }
+    }
+}
+
+/// Shared session settings.
+pub type SharedPrefs = Arc<RwLock<Prefs>>;
+
+/// Reads the prefs (a poisoned lock still holds valid settings).
+pub fn prefs(p: &SharedPrefs) -> Prefs {
+    match p.read() {
+        Ok(g) => g.clone(),
+        Err(e) => e.into_inner().clone(),
+    }
+}
+
+/// The preferred display unit of a dimension in a unit system.
+pub fn preferred_unit(d: Dimension, absolute_temperature: bool, system: UnitSystem) -> Option<&'static str> {
+    use UnitSystem::*;
+    let u = match (d, system) {
+        (Dimension::PRESSURE, Si) => "Pa",
+        (Dimension::PRESSURE, Us) => "inH2O@60F",
+        (Dimension::LENGTH, Si) => "m",
+        (Dimension::LENGTH, Us) => "ft",
+        (Dimension::AREA, Si) => "m^2",
+        (Dimension::AREA, Us) => "ft^2",
+        (Dimension::VELOCITY, Si) => "m/s",
+        (Dimension::VELOCITY, Us) => "ft/s",
+        (Dimension::VOLUME_FLOW, Si) => "m^3/s",
+        (Dimension::VOLUME_FLOW, Us) => "cfm",
+        (Dimension::MASS_FLOW, Si) => "kg/s",
+        (Dimension::MASS_FLOW, Us) => "lb/h",
+        (Dimension::DENSITY, Si) => "kg/m^3",
+        (Dimension::DENSITY, Us) => "lb/ft^3",
+        (Dimension::DYNAMIC_VISCOSITY, Si) => "Pa*s",
+        (Dimension::DYNAMIC_VISCOSITY, Us) => "cP",
+        (Dimension::TEMPERATURE, Si) if absolute_temperature => "degC",
+        (Dimension::TEMPERATURE, Us) if absolute_temperature => "degF",
+        (Dimension::TEMPERATURE, Si) => "delta_K",
+        (Dimension::TEMPERATURE, Us) => "delta_degF",
+        (Dimension::ACCELERATION, Si) => "m/s^2",
+        (Dimension::ACCELERATION, Us) => "ft/s^2",
+        (Dimension::MOLAR_MASS, _) => "kg/kmol",
+        _ => return None,
+    };
+    Some(u)
+}
+
+/// A quantity in scripts: the library's SI quantity and the unit it is shown in.
+#[derive(Debug, Clone)]
+pub struct Q {
+    /// The value.
+    pub q: Quantity,
+    /// Display unit chosen by the literal or by `.to(...)`; `None` follows the session.
+    pub unit: Option<Arc<str>>,
+}
+
+impl Q {
+    /// A quantity shown in the session's units.
+    pub fn si(si: f64, dimension: Dimension) -> Self {
+        Q { q: Quantity { si, dimension, absolute_temperature: false }, unit: None }
+    }
+    /// An absolute temperature in kelvins.
+    pub fn kelvin(k: f64) -> Self {
+        Q { q: Quantity { si: k, dimension: Dimension::TEMPERATURE, absolute_temperature: true }, unit: None }
+    }
+    /// A quantity with its display unit.
+    pub fn with_unit(value: f64, unit: &str) -> stagna::Result<Self> {
+        Ok(Q { q: Quantity::new(value, unit)?, unit: Some(unit.into()) })
+    }
+    /// Text in the display unit (explicit, else the session's preference, else SI).
+    pub fn show(&self, system: UnitSystem) -> String {
+        let unit =
+            self.unit.as_deref().or_else(|| preferred_unit(self.q.dimension, self.q.absolute_temperature, system));
+        match unit.map(|u| self.q.display_in(u)) {
+            Some(Ok(s)) => pretty_unit(&s),
+            _ => pretty_unit(&self.q.to_string()),
+        }
+    }
+}
+
+/// Typographic unit symbols for display (°C, m³/s, Pa·s).
+pub fn pretty_unit(s: &str) -> String {
+    s.replace("delta_degC", "K (difference)")
+        .replace("delta_degF", "°F (difference)")
+        .replace("delta_K", "K (difference)")
+        .replace("degC", "°C")
+        .replace("degF", "°F")
+        .replace("degR", "°R")
+        .replace("^3", "³")
+        .replace("^2", "²")
+        .replace("m3", "m³")
+        .replace("m2", "m²")
+        .replace("ft3", "ft³")
+        .replace("ft2", "ft²")
+        .replace('*', "·")
+        .replace("inH2O@60F", "inH₂O (60 °F)")
+        .replace("H2O", "H₂O")
+}
+
+/// A column in scripts: values in SI with their dimension, a name and a display unit.
+#[derive(Debug, Clone)]
+pub struct Col {
+    /// Column name (used when put into a table).
+    pub name: Arc<str>,
+    /// Values in SI units.
+    pub si: Arc<Vec<f64>>,
+    /// Dimension.
+    pub dimension: Dimension,
+    /// Absolute temperature (vs. a difference).
+    pub absolute_temperature: bool,
+    /// Display unit; `None` follows the session.
+    pub unit: Option<Arc<str>>,
+}
+
+impl Col {
+    /// A new column of SI values.
+    pub fn new(name: &str, si: Vec<f64>, dimension: Dimension, unit: Option<&str>) -> Self {
+        Col { name: name.into(), si: Arc::new(si), dimension, absolute_temperature: false, unit: unit.map(Into::into) }
+    }
+    /// The unit to write the column in.
+    pub fn out_unit(&self, system: UnitSystem) -> Option<String> {
+        self.unit
+            .as_deref()
+            .map(str::to_string)
+            .or_else(|| preferred_unit(self.dimension, self.absolute_temperature, system).map(str::to_string))
+    }
+    /// Values in `unit`.
+    pub fn values_in(&self, unit: &str) -> stagna::Result<Vec<f64>> {
+        let u = Unit::parse(unit)?;
+        let one = Quantity { si: 0.0, dimension: self.dimension, absolute_temperature: self.absolute_temperature };
+        one.value_in_unit(&u)?; // dimension check once
+        Ok(self.si.iter().map(|&v| Quantity { si: v, ..one }.value_in_unit(&u).unwrap_or(f64::NAN)).collect())
+    }
+    /// A short summary: name, length, unit, first values.
+    pub fn show(&self, system: UnitSystem) -> String {
+        let unit = self.out_unit(system);
+        let vals = match &unit {
+            Some(u) => self.values_in(u).unwrap_or_else(|_| self.si.to_vec()),
+            None => self.si.to_vec(),
+        };
+        let head: Vec<String> = vals.iter().take(6).map(|v| format_number(*v)).collect();
+        let more = if vals.len() > 6 { ", …" } else { "" };
+        format!(
+            "column '{}' ({} rows{}): [{}{}]",
+            self.name,
+            vals.len(),
+            unit.map(|u| format!(", {}", pretty_unit(&u))).unwrap_or_default(),
+            head.join(", "),
+            more
+        )
+    }
+}
+
+/// A plain number from an int, a float or a dimensionless quantity.
+pub fn number(d: &Dynamic, what: &str) -> Res<f64> {
+    if let Ok(f) = d.as_float() {
+        return Ok(f);
+    }
+    if let Ok(i) = d.as_int() {
+        return Ok(i as f64);
+    }
+    if let Some(q) = d.clone().try_cast::<Q>()
+        && q.q.dimension == Dimension::NONE
+    {
+        return Ok(q.q.si);
+    }
+    Err(rt(format!("{what}: expected a number, got {}", describe(d))))
+}
+
+/// A whole number ≥ 0.
+pub fn count(d: &Dynamic, what: &str) -> Res<usize> {
+    let v = number(d, what)?;
+    if v >= 0.0 && v.fract() == 0.0 && v < 1e12 {
+        Ok(v as usize)
+    } else {
+        Err(rt(format!("{what}: expected a whole number ≥ 0, got {}", format_number(v))))
+    }
+}
+
+/// How a value looks in an error message.
+pub fn describe(d: &Dynamic) -> String {
+    if let Some(q) = d.clone().try_cast::<Q>() {
+        let dim = q.q.dimension.name().unwrap_or("quantity");
+        return format!("a {dim} ({})", q.show(UnitSystem::Si));
+    }
+    if let Some(c) = d.clone().try_cast::<Col>() {
+        return format!("a column of {} ('{}')", c.dimension.name().unwrap_or("values"), c.name);
+    }
+    match d.type_name() {
+        "i64" | "f64" => format!("the plain number {d} (no unit)"),
+        "string" | "ImmutableString" => format!("the text \"{d}\""),
+        t => format!("a value of type {}", t.rsplit("::").next().unwrap_or(t)),
+    }
+}
+
+fn dim_name(d: Dimension) -> String {
+    d.name().map(str::to_string).unwrap_or_else(|| stagna::quantity::si_symbol(d))
+}
+
+/// The SI value of a quantity argument of the given dimension. A plain number is refused
+/// (unless the dimension is none), with the literal to write instead.
+pub fn si_of(d: &Dynamic, dim: Dimension, what: &str) -> Res<f64> {
+    if let Some(q) = d.clone().try_cast::<Q>() {
+        if q.q.dimension != dim {
+            return Err(rt(format!("{what} must be a {}, got {}", dim_name(dim), describe(d))));
+        }
+        return Ok(q.q.si);
+    }
+    if dim == Dimension::NONE {
+        return number(d, what);
+    }
+    if d.is_int() || d.is_float() {
+        let example = preferred_unit(dim, true, UnitSystem::Si).unwrap_or("unit");
+        return Err(rt(format!(
+            "{what} must be a {} with a unit, got the plain number {d}; write e.g. {d}.{} or qty(\"{d} {example}\")",
+            dim_name(dim),
+            example.replace(['/', '^', '*'], "_")
+        )));
+    }
+    Err(rt(format!("{what} must be a {}, got {}", dim_name(dim), describe(d))))
+}
+
+/// A scalar or a whole column, in SI.
+#[derive(Debug, Clone)]
+pub enum Arg {
+    /// One value for every row.
+    Scalar(f64),
+    /// One value per row.
+    Column(Arc<Vec<f64>>),
+}
+
+impl Arg {
+    /// Value at row i.
+    #[inline]
+    pub fn at(&self, i: usize) -> f64 {
+        match self {
+            Arg::Scalar(v) => *v,
+            Arg::Column(c) => c[i],
+        }
+    }
+    /// Number of rows, if a column.
+    pub fn len(&self) -> Option<usize> {
+        match self {
+            Arg::Scalar(_) => None,
+            Arg::Column(c) => Some(c.len()),
+        }
+    }
+    /// The values as a full column of `n` rows.
+    pub fn expand(&self, n: usize) -> Vec<f64> {
+        match self {
+            Arg::Scalar(v) => vec![*v; n],
+            Arg::Column(c) => c.to_vec(),
+        }
+    }
+}
+
+/// A quantity or a column of the given dimension.
+pub fn arg_of(d: &Dynamic, dim: Dimension, what: &str) -> Res<Arg> {
+    if let Some(c) = d.clone().try_cast::<Col>() {
+        if c.dimension != dim {
+            return Err(rt(format!("{what} must be a {} column, got {}", dim_name(dim), describe(d))));
+        }
+        return Ok(Arg::Column(c.si));
+    }
+    si_of(d, dim, what).map(Arg::Scalar)
+}
+
+/// The common row count of several arguments (at least one must be a column).
+pub fn rows(args: &[(&Arg, &str)]) -> Res<Option<usize>> {
+    let mut n: Option<(usize, &str)> = None;
+    for (a, name) in args {
+        if let Some(len) = a.len() {
+            match n {
+                None => n = Some((len, name)),
+                Some((m, first)) if m != len => {
+                    return Err(rt(format!("columns of different lengths: {first} has {m} rows, {name} has {len}")));
+                }
+                _ => {}
+            }
+        }
+    }
+    Ok(n.map(|(n, _)| n))
+}
+
+/// Gets a field of an options map.
+pub fn field<'a>(m: &'a rhai::Map, key: &str) -> Option<&'a Dynamic> {
+    m.get(key).filter(|d| !d.is_unit())
+}
+
+/// Refuses keys an options map does not know, naming the allowed ones.
+pub fn check_keys(m: &rhai::Map, allowed: &[&str], what: &str) -> Res<()> {
+    for k in m.keys() {
+        if !allowed.contains(&k.as_str()) {
+            return Err(rt(format!("{what}: unknown option '{k}'; options are: {}", allowed.join(", "))));
+        }
+    }
+    Ok(())
+}
+
+/// Text of a string argument.
+pub fn text(d: &Dynamic, what: &str) -> Res<String> {
+    d.clone()
+        .into_immutable_string()
+        .map(|s| s.to_string())
+        .map_err(|_| rt(format!("{what}: expected text, got {}", describe(d))))
+}
+
+/// Registers the whole API.
+pub fn register_all(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    quantity::register(r, prefs);
+    domain::register(r, prefs);
+    tables::register(r, prefs);
+    charts::register(r, prefs);
+    uncertainty::register(r, prefs);
+}

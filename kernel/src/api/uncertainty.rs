@@ -1,0 +1,165 @@
+//! Uncertainty budgets in scripts: the GUM budget of a traverse's flow (or mean
+//! velocity), its chart, and a JCGM 101 Monte Carlo check.
+
+use rhai::{Dynamic, Map};
+use stagna::dimension::Dimension as D;
+use stagna::flow_uncertainty::{MethodTerm, TraverseUncertainty, dp_inputs};
+use stagna::monte_carlo::{McOptions, monte_carlo, validate};
+use stagna::plot::Chart;
+use stagna::uncertainty::{Correlations, GumResult, Input};
+
+use super::charts::Plot;
+use super::tables::Tbl;
+use super::*;
+use crate::catalog::Doc;
+
+/// A budget: the GUM result and the model it came from.
+#[derive(Debug, Clone)]
+pub struct Budget {
+    /// GUM result.
+    pub g: GumResult,
+    /// The model and inputs (for Monte Carlo).
+    pub model: TraverseUncertainty,
+    /// Output unit.
+    pub unit: &'static str,
+}
+
+fn dps_of(d: &Dynamic) -> Res<Vec<f64>> {
+    if let Some(c) = d.clone().try_cast::<Col>() {
+        if c.dimension != D::PRESSURE {
+            return Err(rt(format!("traverse_budget: dp must be a pressure column, got {}", describe(d))));
+        }
+        return Ok(c.si.to_vec());
+    }
+    if let Some(a) = d.clone().try_cast::<rhai::Array>() {
+        return a.iter().map(|x| si_of(x, D::PRESSURE, "traverse_budget: dp")).collect();
+    }
+    Err(rt(format!("traverse_budget: dp must be a pressure column or an array of pressures, got {}", describe(d))))
+}
+
+/// Registers budgets.
+pub fn register(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
+    r.engine.register_type_with_name::<Budget>("Budget");
+    r.group("Uncertainty");
+    r.func(
+        "traverse_budget",
+        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); dp_rel (relative u of each Δp), dp_abs (absolute u of each Δp); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
+            .param("dp", "pressure column or array of pressures, one per point (all > 0)")
+            .example("let dps = [98.Pa, 112.Pa, 118.Pa, 115.Pa, 101.Pa, 95.Pa];\nlet b = traverse_budget(dps, #{coefficient: 0.998, u_coefficient: 0.0025, density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, dp_rel: 0.005, dp_abs: 0.4.Pa});\nprint(b);")
+            .source("JCGM 100:2008 (GUM) §5, §G; method terms as documented in the library (ISO 3966 §10 and common practice)"),
+        |d: Dynamic, o: Map| -> Res<Budget> {
+            check_keys(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "dp_rel", "dp_abs", "rule", "coverage", "output"], "traverse_budget")?;
+            let dps = dps_of(&d)?;
+            let req = |k: &str| field(&o, k).ok_or_else(|| rt(format!("traverse_budget: option '{k}' is required")));
+            let c = number(req("coefficient")?, "coefficient")?;
+            let uc = number(req("u_coefficient")?, "u_coefficient")?;
+            let rho = si_of(req("density")?, D::DENSITY, "density")?;
+            let urho = si_of(req("u_density")?, D::DENSITY, "u_density")?;
+            let dd = si_of(req("diameter")?, D::LENGTH, "diameter")?;
+            let ud = si_of(req("u_diameter")?, D::LENGTH, "u_diameter")?;
+            let dp_rel = field(&o, "dp_rel").map(|x| number(x, "dp_rel")).transpose()?.unwrap_or(0.005);
+            let dp_abs = field(&o, "dp_abs").map(|x| si_of(x, D::PRESSURE, "dp_abs")).transpose()?.unwrap_or(0.5);
+            let coverage = field(&o, "coverage").map(|x| number(x, "coverage")).transpose()?.unwrap_or(0.95);
+            let rule = match field(&o, "rule").map(|x| text(x, "rule")).transpose()?.as_deref() {
+                None | Some("equal-area") => stagna::LayoutRule::EqualArea,
+                Some("log-linear") => stagna::LayoutRule::LogLinear,
+                Some("log-chebyshev") => stagna::LayoutRule::LogChebyshev,
+                Some(o) => return Err(rt(format!("traverse_budget: unknown rule \"{o}\""))),
+            };
+            let velocity = match field(&o, "output").map(|x| text(x, "output")).transpose()?.as_deref() {
+                None | Some("flow") => false,
+                Some("velocity") => true,
+                Some(o) => return Err(rt(format!("traverse_budget: output is \"flow\" or \"velocity\", got \"{o}\""))),
+            };
+            let mut t = lib(TraverseUncertainty::new(
+                lib(Input::normal("probe coefficient C", "1", c, uc))?,
+                lib(Input::normal("density ρ", "kg/m³", rho, urho))?,
+                lib(Input::normal("diameter D", "m", dd, ud))?,
+                &MethodTerm::typical(rule),
+                lib(dp_inputs(&dps, dp_rel, dp_abs))?,
+            ))?;
+            if velocity {
+                t = t.for_mean_velocity();
+            }
+            let g = lib(t.gum(coverage))?;
+            Ok(Budget { g, model: t, unit: if velocity { "m/s" } else { "m³/s" } })
+        },
+    );
+    r.engine.register_fn("to_string", |b: &mut Budget| format!("Budget (output in {}):\n{}", b.unit, b.g));
+    for (name, summary) in [
+        ("value", "The output estimate y (SI: m³/s or m/s)."),
+        ("u", "Combined standard uncertainty u_c(y)."),
+        ("expanded", "Expanded uncertainty U = k u_c."),
+        ("k", "Coverage factor (Student t at the effective degrees of freedom)."),
+        ("relative", "Relative expanded uncertainty U/y, %."),
+    ] {
+        r.property(
+            "Budget",
+            name,
+            &Doc::new(&format!("budget.{name} -> number"), summary)
+                .example(&format!("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm}});\nprint(b.{name});"))
+                .source("JCGM 100:2008 (GUM) §5–6, §G"),
+            move |b: &mut Budget| match name {
+                "value" => b.g.value,
+                "u" => b.g.u,
+                "expanded" => b.g.expanded,
+                "k" => b.g.k,
+                _ => 100.0 * b.g.expanded / b.g.value,
+            },
+        );
+    }
+    r.method(
+        "Budget",
+        "table",
+        &Doc::new("budget.table() -> Table", "The budget lines: input, unit, value, standard uncertainty, sensitivity, contribution, share of the variance, source.")
+            .example("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});\nprint(b.table().head(4));")
+            .source("JCGM 100:2008 (GUM) §8"),
+        |b: &mut Budget| -> Res<Tbl> {
+            use polars::prelude::{DataFrame, NamedFrom, Series};
+            let l = &b.g.budget;
+            let df = DataFrame::new_infer_height(vec![
+                Series::new("input".into(), l.iter().map(|x| x.name.clone()).collect::<Vec<_>>()).into(),
+                Series::new("unit".into(), l.iter().map(|x| x.unit.clone()).collect::<Vec<_>>()).into(),
+                Series::new("value".into(), l.iter().map(|x| x.value).collect::<Vec<_>>()).into(),
+                Series::new("u".into(), l.iter().map(|x| x.u).collect::<Vec<_>>()).into(),
+                Series::new("sensitivity".into(), l.iter().map(|x| x.sensitivity).collect::<Vec<_>>()).into(),
+                Series::new("contribution".into(), l.iter().map(|x| x.contribution).collect::<Vec<_>>()).into(),
+                Series::new("share_pct".into(), l.iter().map(|x| 100.0 * x.share).collect::<Vec<_>>()).into(),
+                Series::new("source".into(), l.iter().map(|x| x.source.clone()).collect::<Vec<_>>()).into(),
+            ])
+            .map_err(|e| rt(e.to_string()))?;
+            Ok(Tbl::new(df))
+        },
+    );
+    r.method(
+        "Budget",
+        "chart",
+        &Doc::new("budget.chart() -> Plot", "Each input's share of the combined variance as bars.")
+            .example("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});\nprint(b.chart());")
+            .source("JCGM 100:2008 (GUM) §8"),
+        |b: &mut Budget| Plot::Chart(Chart::budget("uncertainty budget", &b.g)),
+    );
+    r.method(
+        "Budget",
+        "monte_carlo",
+        &Doc::new("budget.monte_carlo(trials) -> map", "Propagation of distributions (JCGM 101) with the same model and inputs: #{trials, mean, u, low, high, validated}, where validated says whether the GUM interval agrees to 2 significant digits of u (JCGM 101 §8). Seeded, so repeatable.")
+            .param("trials", "number of trials, e.g. 200000 (at least 10⁴)")
+            .example("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});\nprint(b.monte_carlo(20000));")
+            .source("JCGM 101:2008 §5–8"),
+        |b: &mut Budget, n: i64| -> Res<Map> {
+            if !(10_000..=50_000_000).contains(&n) {
+                return Err(rt("monte_carlo: trials from 10 000 to 50 000 000"));
+            }
+            let mc = lib(monte_carlo(&b.model.model, &b.model.inputs, &Correlations::none(), &McOptions { trials: n as usize, coverage: b.g.coverage, ..Default::default() }))?;
+            let v = validate(&b.g, &mc, 2);
+            let mut m = Map::new();
+            m.insert("trials".into(), Dynamic::from(mc.trials as i64));
+            m.insert("mean".into(), Dynamic::from(mc.mean));
+            m.insert("u".into(), Dynamic::from(mc.u));
+            m.insert("low".into(), Dynamic::from(mc.symmetric.0));
+            m.insert("high".into(), Dynamic::from(mc.symmetric.1));
+            m.insert("validated".into(), Dynamic::from(v.passed));
+            Ok(m)
+        },
+    );
+}
