@@ -6,7 +6,7 @@
 
 use std::panic::{AssertUnwindSafe, catch_unwind};
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::{Arc, Mutex, RwLock};
+use std::sync::{Arc, RwLock};
 
 use rhai::{AST, Dynamic, Engine, EvalAltResult, ParseError, Position, Scope};
 
@@ -189,6 +189,7 @@ impl Session {
     }
 
     /// A flag that stops the running input when set (cleared at the start of each input).
+    #[cfg_attr(not(test), allow(dead_code))] // for front ends that interrupt from another thread
     pub fn interrupt_flag(&self) -> Arc<AtomicBool> {
         self.interrupt.clone()
     }
@@ -196,14 +197,6 @@ impl Session {
     /// Sets a variable in the scope (batch runner `--set`, `input`).
     pub fn set_var(&mut self, name: &str, value: Dynamic) {
         self.scope.set_or_push(name.to_string(), value);
-    }
-
-    /// Names and type names of the variables in scope.
-    pub fn variables(&self) -> Vec<(String, String)> {
-        self.scope
-            .iter()
-            .map(|(n, _, v)| (n.to_string(), self.engine.map_type_name(v.type_name()).to_string()))
-            .collect()
     }
 
     /// Evaluates one input; variables and functions persist into the next.
@@ -442,6 +435,8 @@ fn hint_for(msg: &str) -> Option<String> {
     let m = msg.to_lowercase();
     let h = if m.contains("with a unit, got the plain number") {
         return None; // the message already says what to write
+    } else if m.starts_with("row ") {
+        "fix or filter the row (t.filter(...)) and run again; nothing was written"
     } else if m.contains("dimension mismatch") || m.contains("different dimensions") || m.contains(" must be a ") {
         "check the argument's unit: e.g. 42.mm for a deflection, 20.degC for a temperature, 101.kPa for a pressure"
     } else if m.contains("has no unit; declare") {
@@ -450,8 +445,6 @@ fn hint_for(msg: &str) -> Option<String> {
         "t.columns lists the table's columns"
     } else if m.contains("unit '") {
         "`stagna units` lists every unit name; compounds like kg/m^3 or m3/h work in qty(\"...\")"
-    } else if m.contains("row ") && (m.contains("finite") || m.contains("must be")) {
-        "fix or filter the row (t.filter(...)) and run again; nothing was written"
     } else {
         return None;
     };
@@ -575,5 +568,193 @@ pub fn table_html(t: &api::tables::Tbl) -> String {
     s
 }
 
-/// Shared mutex type used by the front ends for sinks that collect output.
-pub type Collected = Arc<Mutex<Vec<String>>>;
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn eval(s: &mut Session, src: &str) -> String {
+        match s.eval(src) {
+            Ok(o) => o.value.map(|b| b.text).unwrap_or_default(),
+            Err(e) => panic!("{src}\n{}", e.render("test", src, false)),
+        }
+    }
+
+    fn err(s: &mut Session, src: &str) -> ScriptError {
+        s.eval(src).expect_err(src)
+    }
+
+    /// Every function, method and property registered with the engine is in the catalog
+    /// with a summary, an example and a source.
+    #[test]
+    fn every_script_function_is_documented() {
+        let s = Session::new();
+        let mut missing = Vec::new();
+        for sig in s.engine.gen_fn_signatures(false) {
+            let name = sig.split('(').next().unwrap_or("").trim();
+            let name = name.strip_prefix("get$").unwrap_or(name);
+            if name.is_empty() || !name.chars().next().is_some_and(|c| c.is_alphabetic() || c == '_') {
+                continue; // operators
+            }
+            if matches!(name, "to_string" | "to_debug") || name.starts_with("index$") {
+                continue; // display hooks and the table indexer
+            }
+            match s.catalog().lookup(name).first() {
+                Some(e) if !e.summary.is_empty() && !e.example.is_empty() && !e.source.is_empty() => {}
+                _ => missing.push(sig),
+            }
+        }
+        assert!(missing.is_empty(), "undocumented: {missing:#?}");
+        for e in s.catalog().entries() {
+            assert!(
+                !e.summary.is_empty() && !e.example.is_empty() && !e.source.is_empty(),
+                "incomplete doc: {}",
+                e.qualified()
+            );
+        }
+    }
+
+    /// Every documented example runs (in a scratch folder holding the example workbook).
+    #[test]
+    fn every_catalog_example_runs() {
+        let dir = std::env::temp_dir().join(format!("stagna-examples-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        std::fs::copy(
+            concat!(env!("CARGO_MANIFEST_DIR"), "/../tests/data/site-readings.xlsx"),
+            dir.join("site-readings.xlsx"),
+        )
+        .unwrap();
+        let s = Session::new();
+        let examples: Vec<(String, String)> =
+            s.catalog().entries().map(|e| (e.qualified(), e.example.clone())).collect();
+        let mut failed = Vec::new();
+        for (name, ex) in examples {
+            let mut one = Session::new();
+            one.set_output(|_| {});
+            one.prefs().write().unwrap().output_dir = Some(dir.clone());
+            // Reads are relative to the working directory: point them at the scratch folder.
+            let src = ex
+                .replace("(\"readings.", &format!("(\"{}/readings.", dir.display()))
+                .replace("(\"site.parquet\")", &format!("(\"{}/site.parquet\")", dir.display()))
+                .replace("(\"site-readings.xlsx\"", &format!("(\"{}/site-readings.xlsx\"", dir.display()));
+            if let Err(e) = one.eval(&src) {
+                failed.push(format!("{name}: {}", e.render(&name, &src, false)));
+            }
+        }
+        assert!(failed.is_empty(), "{} examples failed:\n{}", failed.len(), failed.join("\n\n"));
+    }
+
+    #[test]
+    fn quantities_have_units_dimensions_and_conversions() {
+        let mut s = Session::new();
+        assert_eq!(eval(&mut s, "78.mm"), "78 mm");
+        assert_eq!(eval(&mut s, "102.3.mm + 1.m"), "1102.3 mm");
+        // 3 inH2O@60F = 3 × 248.84 Pa (NIST SP 811 B.8)
+        assert_eq!(eval(&mut s, "qty(\"3 inH2O@60F\").to(\"Pa\")"), "746.52 Pa");
+        assert_eq!(eval(&mut s, "20.degC.to(\"degF\")"), "68 °F"); // by definition of the scales
+        assert_eq!(eval(&mut s, "1.2.kPa > 1000.Pa"), "true");
+        let e = err(&mut s, "1.m + 2.Pa");
+        assert!(e.message.contains("different dimensions"), "{e:?}");
+        assert!(e.position.is_some());
+        let e = err(&mut s, "water().density(101, 20.degC)");
+        assert!(e.message.contains("write e.g. 101.Pa"), "{e:?}");
+        eval(&mut s, "display_units(\"US\")");
+        // √(2·50/1.2) = 9.12871 m/s = 29.9498 ft/s (1 ft = 0.3048 m exactly, NIST SP 811 B.8)
+        let v = eval(&mut s, "pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).velocity");
+        assert_eq!(v, "29.9498 ft/s");
+        assert_eq!(eval(&mut s, "100.Pa"), "100 Pa", "an explicit unit is kept");
+    }
+
+    #[test]
+    fn variables_and_functions_persist_between_inputs() {
+        let mut s = Session::new();
+        eval(&mut s, "let d = 600.mm; fn area(x) { x * x * 0.25 * 3.14159265 }");
+        // π·0.3² = 0.282743 m² (geometry)
+        assert!((eval(&mut s, "area(d.si)").parse::<f64>().unwrap_or(0.0) - 0.282743).abs() < 1e-6);
+        assert_eq!(eval(&mut s, "d"), "600 mm");
+    }
+
+    #[test]
+    fn runaway_scripts_stop_and_the_session_carries_on() {
+        let mut s = Session::with_limits(Limits { operations: 100_000, ..Limits::default() });
+        eval(&mut s, "let kept = 1;");
+        let e = err(&mut s, "loop { kept += 0; }");
+        assert_eq!(e.kind, "LimitExceeded");
+        let e = err(&mut s, "let a = []; for i in 0..20000000 { a.push(i); }");
+        assert_eq!(e.kind, "LimitExceeded", "{e:?}");
+        assert_eq!(eval(&mut s, "kept"), "1");
+        // An interrupt from another thread stops a long input promptly.
+        let mut s = Session::new();
+        let flag = s.interrupt_flag();
+        let t = std::thread::spawn(move || {
+            std::thread::sleep(std::time::Duration::from_millis(200));
+            flag.store(true, Ordering::Relaxed);
+        });
+        let e = err(&mut s, "let x = 0; loop { x += 1; }");
+        t.join().unwrap();
+        assert_eq!(e.kind, "Interrupted");
+    }
+
+    #[test]
+    fn errors_name_the_column_and_suggest_names() {
+        let mut s = Session::new();
+        eval(&mut s, "let t = table_from(#{h: [1.0, 2.0]});");
+        let e = err(&mut s, "t[\"hh\"]");
+        assert!(e.message.contains("'hh'") && e.message.contains("has: h"), "{e:?}");
+        let e = err(&mut s, "wter()");
+        assert!(e.hint.as_deref().unwrap_or("").contains("water"), "{e:?}");
+        // Negative deflections give reverse (negative) velocities, not NaN.
+        let v = eval(
+            &mut s,
+            "let t2 = table_from(#{h: [1.0, -2.0]}).unit(\"h\", \"mm\");\npitot_static(1.0).velocity(u_tube(gauge_water()).dp(t2[\"h\"], 20.degC, 1.2.kg_m3), 1.2.kg_m3).values()",
+        );
+        assert!(v.contains(", -5.7"), "{v}");
+    }
+
+    #[test]
+    fn negative_and_nan_deflections_are_named_by_row() {
+        let mut s = Session::new();
+        eval(&mut s, "let t = table_from(#{h: [1.0, 2.0, 0.0]}).unit(\"h\", \"mm\");");
+        let r = s.eval("let bad = t.with_column(\"h\", col(\"h\") / col(\"h\")); bad[\"h\"]");
+        assert!(r.is_ok());
+        let e = err(&mut s, "u_tube(gauge_water()).dp(t[\"h\"] / 0.0 * 0.0, 20.degC, 1.2.kg_m3)");
+        assert!(e.message.contains("row 1"), "{e:?}");
+    }
+
+    #[test]
+    fn completion_reads_the_catalog_and_the_scope() {
+        let mut s = Session::new();
+        eval(&mut s, "let probe = pitot_static(0.99);");
+        let (start, c) = s.complete("probe.vel", 9);
+        assert_eq!(start, 6);
+        assert!(c.contains(&"velocity".to_string()), "{c:?}");
+        let (_, c) = s.complete("let d = 78.m", 12);
+        assert!(c.contains(&"mm".to_string()) && c.contains(&"m_s".to_string()), "{c:?}");
+        let (_, c) = s.complete("humid_", 6);
+        assert!(c.contains(&"humid_air".to_string()), "{c:?}");
+        let (_, c) = s.complete("pro", 3);
+        assert!(c.contains(&"probe".to_string()), "{c:?}");
+        assert!(s.help("water").contains("IAPWS"));
+        assert!(s.help("Probe").contains(".velocity"));
+        assert!(s.help("probe").contains(".velocity"), "help on a variable shows its type");
+    }
+
+    #[test]
+    fn completeness_for_multi_line_input() {
+        let s = Session::new();
+        assert_eq!(s.is_complete("let a = [1,"), Ok(false));
+        assert_eq!(s.is_complete("let a = \"(\";"), Ok(true));
+        assert_eq!(s.is_complete("fn f() {\n  1\n}"), Ok(true));
+        assert!(s.is_complete("1)").is_err());
+    }
+
+    #[test]
+    fn values_render_as_mime_bundles() {
+        let mut s = Session::new();
+        let o = s.eval("traverse_layout(round_duct(1.m), #{points: 4}).chart()").unwrap();
+        assert!(o.value.unwrap().svg.unwrap().starts_with("<svg"));
+        let o = s.eval("table_from(#{h: [1.0]}).unit(\"h\", \"mm\")").unwrap();
+        assert!(o.value.unwrap().html.unwrap().contains("<th>h <span class=\"unit\">[mm]</span></th>"));
+        let o = s.eval("pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).steps()").unwrap();
+        assert!(o.value.unwrap().latex.unwrap().contains("\\sqrt"));
+    }
+}

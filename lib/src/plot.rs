@@ -233,7 +233,7 @@ impl Chart {
                 };
                 chart
                     .configure_mesh()
-                    .x_labels(n.min(12).max(2) * 2 + 1)
+                    .x_labels(n.clamp(2, 12) * 2 + 1)
                     .x_label_formatter(&label_of)
                     .y_desc(y_label.as_str())
                     .disable_x_mesh()

@@ -2,3 +2,5 @@
 
 mod demo;
 mod layout;
+mod repl;
+mod scripts;

@@ -180,7 +180,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         |m: Map, bws: Dynamic| -> Res<Fluid> {
             let mut parts = Vec::new();
             for (k, v) in &m {
-                parts.push((lib(Component::parse(k))?, number(v, &format!("percentage of {k}"))?));
+                parts.push((lib(Component::parse(k))?, number(v, &format!("percentage of {k}"))? / 100.0));
             }
             Ok(Fluid::Gas(lib(GasMixture::new(&parts, fraction(&bws, "moisture")?))?))
         },
@@ -326,7 +326,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "FluidState",
         "viscosity",
         &Doc::new("state.viscosity -> Quantity", "Dynamic viscosity, or () where the model has none.")
-            .example("print(water().state(200.kPa, 12.degC).viscosity.to(\"mPa*s\"));")
+            .example("print(water().state(200.kPa, 12.degC).viscosity.to(\"cP\"));")
             .source("IAPWS R12-08 (water); Sutherland (air); Wilke mixing (gases)"),
         |s: &mut State| s.s.viscosity.map_or(Dynamic::UNIT, |m| Dynamic::from(Q::si(m.si(), D::DYNAMIC_VISCOSITY))),
     );
@@ -918,9 +918,9 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let p = prefs.clone();
     r.engine.register_fn("to_string", move |s: &mut SinglePointResult| {
         let mut out = format!(
-            "SinglePoint ({}): U/U_c = {}, mean {}, Q = {}, Re = {:.3e}",
+            "SinglePoint ({}): U/U_c = {:.4}, mean {}, Q = {}, Re = {:.3e}",
             s.model.name(),
-            format!("{:.4}", s.ratio),
+            s.ratio,
             show_q(s.mean_velocity.si(), D::VELOCITY, &p),
             show_q(s.volume_flow.si(), D::VOLUME_FLOW, &p),
             s.reynolds

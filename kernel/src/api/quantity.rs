@@ -3,7 +3,6 @@
 //! the session's display units.
 
 use rhai::Dynamic;
-use stagna::dimension::Dimension;
 use stagna::{Quantity, unit};
 
 use super::*;
@@ -38,7 +37,6 @@ pub const SUFFIX_ALIASES: &[(&str, &str)] = &[
     ("g_mol", "g/mol"),
     ("kg_kmol", "kg/kmol"),
     ("Pa_s", "Pa*s"),
-    ("mPa_s", "mPa*s"),
     ("m_s2", "m/s^2"),
 ];
 
@@ -272,7 +270,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             return Err(rt("cannot multiply an absolute temperature; use .si for kelvins"));
         }
         let q = a.q * b.q;
-        Ok(Q { q, unit: if q.dimension == Dimension::NONE { None } else { None } })
+        Ok(Q { q, unit: None })
     });
     e.register_fn("/", |a: Q, b: Q| -> Res<Q> {
         if a.q.absolute_temperature || b.q.absolute_temperature {

@@ -470,7 +470,10 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             &format!("Reads a {fmt} file into a table (column types inferred). Declare units with .unit()."),
         )
         .param("path", "file path, relative to the working directory")
-        .example(&format!("let t = {fname}(\"readings.{}\");", if fmt == "CSV" { "csv" } else { "parquet" }))
+        .example(&{
+            let ext = if fmt == "CSV" { "csv" } else { "parquet" };
+            format!("table_from(#{{h: [12.5, 14.0]}}).write(\"readings.{ext}\");\nlet t = {fname}(\"readings.{ext}\");\nprint(t.height);")
+        })
         .source("polars readers (Apache Parquet, RFC 4180 CSV)")
     };
     r.func("read_csv", &read_doc("CSV", "read_csv"), |p: &str| -> Res<Tbl> {
@@ -483,7 +486,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "read_excel",
         &Doc::new("read_excel(path) -> Table\nread_excel(path, sheet) -> Table", "Reads one sheet of a workbook (xlsx, xlsm, xls, ods): the first sheet unless named. The first non-empty row holds the column names; all-number columns become numbers (empty cells NaN).")
             .param("sheet", "sheet name")
-            .example("let t = read_excel(\"site-readings.xlsx\", \"traverse 1\");")
+            .example("let t = read_excel(\"site-readings.xlsx\", \"traverse 1\");\nprint(t.unit(\"deflection_mm\", \"mm\")[\"deflection_mm\"]);")
             .source("calamine workbook reader (Office Open XML, ECMA-376; OpenDocument)"),
         |p: &str| -> Res<Tbl> { Ok(Tbl::new(lib(stagna::table::read_spreadsheet(Path::new(p), None))?)) },
     );
@@ -496,7 +499,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             "read_table(path) -> Table",
             "Reads a table by the file's extension: .csv, .parquet, .xlsx/.xls/.ods (first sheet).",
         )
-        .example("let t = read_table(input);  // in a batch run, `input` is the file being processed")
+        .example("table_from(#{h: [12.5]}).write(\"site.parquet\");\nlet t = read_table(\"site.parquet\");  // in a batch run: read_table(input)\nprint(t.columns);")
         .source("polars readers; calamine"),
         |p: &str| -> Res<Tbl> { Ok(Tbl::new(lib(stagna::table::read_table(Path::new(p)))?)) },
     );
@@ -764,7 +767,8 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     e.register_fn("==", |a: Ex, b: &str| Ex(a.0.eq(lit(b.to_string()))));
     e.register_fn("!=", |a: Ex, b: &str| Ex(a.0.neq(lit(b.to_string()))));
     e.register_fn("to_string", |a: &mut Ex| format!("Expr: {}", a.0));
-    let simple: [(&str, &str, fn(Expr) -> Expr); 13] = [
+    type ExprFn = fn(Expr) -> Expr;
+    let simple: [(&str, &str, ExprFn); 13] = [
         ("sqrt", "Square root of each value.", |x| x.sqrt()),
         ("abs", "Absolute value of each value.", |x| x.abs()),
         ("exp", "e to the power of each value.", |x| x.exp()),

@@ -1,0 +1,176 @@
+//! The example scripts and the batch runner, driven as a user would: `stagna run`.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn stagna(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_stagna")).args(args).output().expect("the stagna binary runs")
+}
+
+fn root() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
+}
+
+fn tempdir(tag: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("stagna-scripts-{tag}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).expect("temp dir");
+    d
+}
+
+fn run_script(name: &str, extra: &[&str]) -> (String, PathBuf) {
+    let out = tempdir(name);
+    let script = root().join("scripts").join(format!("{name}.rhai"));
+    let mut args = vec!["run", script.to_str().unwrap_or_default(), "-o", out.to_str().unwrap_or_default()];
+    args.extend_from_slice(extra);
+    let o = stagna(&args);
+    let (so, se) = (String::from_utf8_lossy(&o.stdout).into_owned(), String::from_utf8_lossy(&o.stderr).into_owned());
+    assert!(o.status.success(), "{name} failed:\n{se}\n{so}");
+    (so, out)
+}
+
+fn number_after(out: &str, label: &str) -> f64 {
+    let line = out.lines().find(|l| l.contains(label)).unwrap_or_else(|| panic!("no '{label}' in:\n{out}"));
+    let rest = &line[line.find(label).map(|i| i + label.len()).unwrap_or(0)..];
+    rest.split_whitespace()
+        .find_map(|w| w.trim_end_matches([',', ')', ':', ';']).parse::<f64>().ok())
+        .unwrap_or_else(|| panic!("no number after '{label}': {line}"))
+}
+
+#[test]
+fn water_main_single_point() {
+    let (out, dir) = run_script("water-main-single-point", &[]);
+    // U/U_c = 2n²/((n+1)(2n+1)) for the printed n (power law; check-values.md §6).
+    let pl = out.lines().find(|l| l.contains("power law, n = ")).expect("power-law line");
+    let n = number_after(pl, "n =");
+    let ratio = number_after(pl, "U/U_c =");
+    assert!((ratio - 2.0 * n * n / ((n + 1.0) * (2.0 * n + 1.0))).abs() < 1e-4, "{pl}");
+    // Mean centreline velocity of the six readings: iapws 1.5.5 water and the hydrostatic
+    // balance give 3.19929 m/s for 09:00 (see demo test); the mean is 3.20871 m/s.
+    assert!((number_after(&out, "mean of 6 readings:") - 3.20871).abs() < 1e-4, "{out}");
+    let q = number_after(&out, "flow (power law):");
+    assert!((q - ratio * 3.20871 * std::f64::consts::PI * 0.04 * 1e3).abs() < 0.2, "Q = U·πD²/4 in L/s: {q}");
+    assert!(dir.join("water-main-readings.csv").is_file() && dir.join("water-main-readings.csv.units.csv").is_file());
+}
+
+#[test]
+fn ventilation_duct_traverse() {
+    let (out, dir) = run_script("ventilation-duct-traverse", &[]);
+    // Equal-area wall distances for 10 points on 600 mm: (1 − √(1 − (2i−1)/10))/2·D, point 1 =
+    // 15.4 mm, moved out to the 25.4 mm minimum of US EPA Method 1 §11.3 for D > 0.61 m? No:
+    // D = 0.6 m ≤ 0.61 m, so 13 mm applies and 15.4 mm stays (US EPA Method 1 Table 1-1: 2.6 % of D).
+    assert!(out.contains("A1") && out.contains("15.4"), "{out}");
+    let q = number_after(&out, "volume flow");
+    let mean = number_after(&out, "mean velocity");
+    assert!((q - mean * std::f64::consts::PI * 0.09 * 3600.0).abs() < 1.0, "Q = v̄·πD²/4 in m³/h: {q} vs {mean}");
+    for f in ["duct-layout.svg", "duct-points.csv", "duct-profile.svg"] {
+        assert!(dir.join(f).is_file(), "{f} written");
+    }
+    let svg = std::fs::read_to_string(dir.join("duct-profile.svg")).unwrap_or_default();
+    assert!(svg.contains("power-law fit n = "), "fitted law drawn");
+}
+
+#[test]
+fn stack_traverse_with_s_type_probe() {
+    let (out, dir) = run_script("stack-s-type", &[]);
+    assert!(out.contains("Campaign: 3 traverse(s) reduced, 0 failed"), "{out}");
+    // The Rust reduction against the US EPA Method 2 equation (Kp = 34.97, T + 273, Ms from the
+    // same gas) on run R1's velocity heads: the two differ only by the method's rounded
+    // constants, well under 0.1 %.
+    let line = out.lines().find(|l| l.starts_with("run R1:")).expect("R1 line");
+    let ours = number_after(line, "mean point velocity");
+    let epa = number_after(line, "Method 2 equation");
+    assert!(((ours - epa) / epa).abs() < 1e-3, "{line}");
+    // Wet molar mass of the gas: M_d = 0.44·9.8 + 0.32·8.6 + 0.28·81.6 = 29.92 (US EPA Method 3),
+    // M_s = M_d(1 − 0.11) + 18·0.11 = 28.61 (Method 2 Eq. 2-6); ours uses exact molar masses.
+    assert!((number_after(&out, "M =") - 28.61).abs() < 0.05, "{out}");
+    assert!(dir.join("stack-runs.csv").is_file() && dir.join("stack-runs.svg").is_file());
+}
+
+#[test]
+fn profile_study_across_traverses() {
+    let (out, dir) = run_script("profile-study", &[]);
+    // The invented rig data were generated with n rising from 5.5 (2 D) towards 8 (30 D).
+    let first = number_after(&out, "exponent n from");
+    let last = number_after(&out, "(first station) to");
+    assert!(first < 6.0 && last > 7.5 && last > first, "{out}");
+    assert_eq!(out.lines().filter(|l| l.contains(": power-law n = ")).count(), 12);
+    let png = std::fs::read(dir.join("stations.png")).unwrap_or_default();
+    assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n"); // PNG signature (ISO/IEC 15948 §5.2)
+    assert!(dir.join("profiles.svg").is_file());
+}
+
+#[test]
+fn batch_runs_many_files_in_parallel_and_never_overwrites_inputs() {
+    let dir = tempdir("batch");
+    let data = root().join("demo-data/hollin-brook-main.csv");
+    let a = dir.join("main-a.csv");
+    let b = dir.join("main-b.csv");
+    std::fs::copy(&data, &a).expect("copy");
+    std::fs::copy(&data, &b).expect("copy");
+    let script = dir.join("mean.rhai");
+    std::fs::write(
+        &script,
+        "let t = read_table(input).units(#{water_temp_c: \"degC\"});\nprint(`${input_name}: ${t[\"water_temp_c\"].mean()} at ${site}, d = ${d}`);\nt.write(\"copy.csv\");\n",
+    )
+    .expect("script");
+    let out = dir.join("out");
+    let o = stagna(&[
+        "run",
+        script.to_str().unwrap_or_default(),
+        a.to_str().unwrap_or_default(),
+        b.to_str().unwrap_or_default(),
+        "--set",
+        "site=Hollin Brook",
+        "--set",
+        "d=400 mm",
+        "-o",
+        out.to_str().unwrap_or_default(),
+    ]);
+    let so = String::from_utf8_lossy(&o.stdout);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(so.contains("main-a: ") && so.contains("main-b: ") && so.contains("at Hollin Brook, d = 400 mm"), "{so}");
+    assert!(out.join("main-a/copy.csv").is_file() && out.join("main-b/copy.csv").is_file());
+
+    // A script that tries to overwrite its input is refused; the input is untouched.
+    std::fs::write(&script, "read_table(input).head(1).write(input);").expect("script");
+    let before = std::fs::read(&a).expect("read");
+    let o = stagna(&[
+        "run",
+        script.to_str().unwrap_or_default(),
+        a.to_str().unwrap_or_default(),
+        "-o",
+        dir.to_str().unwrap_or_default(),
+    ]);
+    assert!(!o.status.success());
+    assert!(String::from_utf8_lossy(&o.stderr).contains("refusing to overwrite an input file"));
+    assert_eq!(std::fs::read(&a).expect("read"), before);
+
+    // A failing file is named, the run exits non-zero, the good file still ran.
+    std::fs::write(dir.join("empty.csv"), "").expect("write");
+    std::fs::write(&script, "let t = read_table(input); print(t.height);").expect("script");
+    let o = stagna(&[
+        "run",
+        script.to_str().unwrap_or_default(),
+        a.to_str().unwrap_or_default(),
+        dir.join("empty.csv").to_str().unwrap_or_default(),
+        "-o",
+        out.to_str().unwrap_or_default(),
+    ]);
+    let se = String::from_utf8_lossy(&o.stderr);
+    assert!(!o.status.success() && se.contains("empty.csv") && se.contains("the file is empty"), "{se}");
+    assert!(String::from_utf8_lossy(&o.stdout).contains("\n6\n"), "the good file ran");
+
+    // A runaway loop stops at the operation limit with a clear message.
+    std::fs::write(&script, "let x = 0; loop { x += 1; }").expect("script");
+    let o = stagna(&[
+        "run",
+        script.to_str().unwrap_or_default(),
+        "--max-operations",
+        "100000",
+        "-o",
+        out.to_str().unwrap_or_default(),
+    ]);
+    assert!(!o.status.success());
+    assert!(String::from_utf8_lossy(&o.stderr).contains("operation limit"));
+}
