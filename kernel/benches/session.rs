@@ -24,8 +24,14 @@ fn campaign(traverses: usize) -> Result<DataFrame, PolarsError> {
     let ea: Vec<f64> = (1..=5).map(|i| (1.0 - ((2 * i - 1) as f64 / 10.0).sqrt()) / 2.0).rev().collect();
     let mut frac: Vec<f64> = ea.clone();
     frac.extend(ea.iter().rev().map(|y| 1.0 - y));
-    let (mut id, mut line, mut pos, mut defl, mut temp, mut dia) =
-        (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
+    let (mut id, mut line, mut pos, mut defl, mut temp, mut dia) = (
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+    );
     for t in 0..traverses {
         let d = 400.0 + (t % 13) as f64 * 100.0;
         let tc = 15.0 + (t % 17) as f64;
@@ -66,8 +72,12 @@ print(c.traverses["volume_flow_m3_s"].values().reduce(|s, x| s + x, 0.0));
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let args: Vec<String> = std::env::args().collect();
-    let traverses: usize =
-        args.iter().position(|a| a == "--traverses").and_then(|i| args.get(i + 1)).and_then(|s| s.parse().ok()).unwrap_or(500_000);
+    let traverses: usize = args
+        .iter()
+        .position(|a| a == "--traverses")
+        .and_then(|i| args.get(i + 1))
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(500_000);
     let dir = std::env::temp_dir().join(format!("stagna-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir)?;
     let data = dir.join("campaign.parquet");
@@ -81,7 +91,11 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         columns: CampaignColumns { line: Some("line".into()), ..CampaignColumns::standard()? },
         fluid: Fluid::HumidAir(HumidAir::relative(0.5)?),
         static_pressure: Pressure::pa(101_000.0),
-        manometer: Manometer::new(ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 }, GaugeLiquid::User(oil), gravity::standard())?,
+        manometer: Manometer::new(
+            ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 },
+            GaugeLiquid::User(oil),
+            gravity::standard(),
+        )?,
         probe: Probe::new(ProbeKind::PitotStatic, 0.998)?,
         averaging: Averaging::Arithmetic,
         min_points: 20,
@@ -98,7 +112,10 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         sums.0 = r.traverses.column("volume_flow_m3_s")?.f64()?.sum().unwrap_or(0.0);
 
         let t1 = Instant::now();
-        let o = Command::new(STAGNA).args(["run", script.to_str().unwrap_or_default(), data.to_str().unwrap_or_default(), "-o"]).arg(&dir).output()?;
+        let o = Command::new(STAGNA)
+            .args(["run", script.to_str().unwrap_or_default(), data.to_str().unwrap_or_default(), "-o"])
+            .arg(&dir)
+            .output()?;
         best_script = best_script.min(t1.elapsed().as_secs_f64());
         if !o.status.success() {
             return Err(String::from_utf8_lossy(&o.stderr).into_owned().into());
@@ -127,8 +144,15 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     for _ in 0..3 {
         with_inputs = with_inputs.min(run_piped(&many)?);
     }
-    println!("session start to exit (piped, nothing to evaluate): {:.1} ms (best of 20; goal < 100 ms to the prompt)", start * 1e3);
-    println!("trivial input `1 + 1`: {:.1} µs each ({} inputs, start-up subtracted; goal well under 1 ms)", (with_inputs - start) / n as f64 * 1e6, n);
+    println!(
+        "session start to exit (piped, nothing to evaluate): {:.1} ms (best of 20; goal < 100 ms to the prompt)",
+        start * 1e3
+    );
+    println!(
+        "trivial input `1 + 1`: {:.1} µs each ({} inputs, start-up subtracted; goal well under 1 ms)",
+        (with_inputs - start) / n as f64 * 1e6,
+        n
+    );
     let _ = std::fs::remove_dir_all(&dir);
     Ok(())
 }

@@ -13,6 +13,7 @@ use clap::{Parser, Subcommand};
 mod api;
 mod catalog;
 mod demo;
+mod jupyter;
 mod layout_cmd;
 mod repl;
 mod run;
@@ -46,6 +47,48 @@ enum Command {
     Run(run::RunArgs),
     /// Print the function reference (Markdown) generated from the catalog.
     Reference,
+    /// The Jupyter kernel: `stagna kernel install`, or run with `--connection-file` (Jupyter does).
+    Kernel(KernelArgs),
+}
+
+#[derive(clap::Args)]
+struct KernelArgs {
+    #[command(subcommand)]
+    action: Option<KernelAction>,
+    /// Connection file written by the Jupyter client.
+    #[arg(long, value_name = "FILE")]
+    connection_file: Option<PathBuf>,
+}
+
+#[derive(Subcommand)]
+enum KernelAction {
+    /// Install the kernelspec so that JupyterLab, Notebook and the console list Stagna.
+    Install(SpecTarget),
+    /// Remove the kernelspec.
+    Uninstall(SpecTarget),
+}
+
+#[derive(clap::Args)]
+struct SpecTarget {
+    /// The user's Jupyter data folder (the default).
+    #[arg(long, conflicts_with_all = ["sys_prefix", "prefix"])]
+    user: bool,
+    /// The active Python environment.
+    #[arg(long, conflicts_with = "prefix")]
+    sys_prefix: bool,
+    /// DIR/share/jupyter/kernels.
+    #[arg(long, value_name = "DIR")]
+    prefix: Option<PathBuf>,
+}
+
+impl SpecTarget {
+    fn target(&self) -> jupyter::install::Target {
+        match (&self.prefix, self.sys_prefix) {
+            (Some(d), _) => jupyter::install::Target::Prefix(d.clone()),
+            (None, true) => jupyter::install::Target::SysPrefix,
+            _ => jupyter::install::Target::User,
+        }
+    }
 }
 
 fn main() -> ExitCode {
@@ -61,6 +104,20 @@ fn main() -> ExitCode {
             Ok(0) => Ok(()),
             Ok(code) => return ExitCode::from(code as u8),
             Err(e) => Err(e),
+        },
+        Some(Command::Kernel(k)) => match (k.action, k.connection_file) {
+            (Some(KernelAction::Install(t)), _) => jupyter::install::install(&t.target()).map(|d| {
+                println!("installed the stagna kernelspec in {}", d.display());
+            }),
+            (Some(KernelAction::Uninstall(t)), _) => jupyter::install::uninstall(&t.target()).map(|d| {
+                println!("removed {}", d.display());
+            }),
+            (None, Some(f)) => match jupyter::run(&f) {
+                Ok(0) => Ok(()),
+                Ok(code) => return ExitCode::from(code as u8),
+                Err(e) => Err(e),
+            },
+            (None, None) => Err("stagna kernel: give --connection-file FILE (Jupyter does), or `install`".into()),
         },
         Some(Command::Reference) => {
             print!("{}", demo::reference_markdown(&session::Session::new()));

@@ -49,6 +49,8 @@ pub struct Bundle {
     pub html: Option<String>,
     /// image/svg+xml.
     pub svg: Option<String>,
+    /// image/png.
+    pub png: Option<Vec<u8>>,
     /// text/latex.
     pub latex: Option<String>,
 }
@@ -107,7 +109,23 @@ pub struct Outcome {
     pub value: Option<Bundle>,
 }
 
-type Sink = Arc<dyn Fn(&str) + Send + Sync>;
+/// What a running input sends to its front end besides its value.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Event {
+    /// Text from `print`.
+    Stdout(String),
+    /// Text from `eprint` and `debug`.
+    Stderr(String),
+    /// A value shown with `display(x)`.
+    Display(Bundle),
+    /// `clear_output()`.
+    ClearOutput,
+}
+
+type Sink = Arc<dyn Fn(Event) + Send + Sync>;
+
+/// Answers `input(prompt)`: the line typed, or why there is none.
+pub type InputHook = Arc<dyn Fn(&str, bool) -> Result<String, String> + Send + Sync>;
 
 /// The session.
 pub struct Session {
@@ -118,12 +136,50 @@ pub struct Session {
     prefs: SharedPrefs,
     interrupt: Arc<AtomicBool>,
     sink: Arc<RwLock<Sink>>,
+    input: Arc<RwLock<Option<InputHook>>>,
     /// Inputs evaluated so far (for history and the kernel's execution count).
     pub count: usize,
 }
 
 fn stdout_sink() -> Sink {
-    Arc::new(|s: &str| println!("{s}"))
+    Arc::new(|e: Event| match e {
+        Event::Stdout(s) => println!("{s}"),
+        Event::Stderr(s) => eprintln!("{s}"),
+        Event::Display(b) => println!("{}", b.text),
+        Event::ClearOutput => {}
+    })
+}
+
+fn send(sink: &Arc<RwLock<Sink>>, e: Event) {
+    let f = match sink.read() {
+        Ok(f) => f.clone(),
+        Err(p) => p.into_inner().clone(),
+    };
+    f(e);
+}
+
+/// The richer forms of a value whose text is already known.
+pub fn bundle_for(v: &Dynamic, text: String) -> Bundle {
+    let mut b = Bundle { text, ..Default::default() };
+    if let Some(p) = v.clone().try_cast::<api::charts::Plot>() {
+        b.svg = p.svg().ok();
+        b.png = p.png().ok();
+    } else if let Some(s) = v.clone().try_cast::<stagna::Steps>() {
+        b.latex = Some(s.to_latex());
+    } else if let Some(t) = v.clone().try_cast::<api::tables::Tbl>() {
+        b.html = Some(table_html(&t));
+    } else if let Some(bud) = v.clone().try_cast::<api::uncertainty::Budget>() {
+        b.html = Some(budget_html(&bud));
+    } else if let Some(q) = v.clone().try_cast::<api::Q>() {
+        b.latex = Some(quantity_latex(&b.text, &q));
+    }
+    b
+}
+
+fn quantity_latex(text: &str, _q: &api::Q) -> String {
+    let (num, unit) = text.split_once(' ').unwrap_or((text, ""));
+    let unit = unit.replace('·', r"\cdot ").replace('%', r"\%");
+    format!("$${num}\\ \\mathrm{{{unit}}}$$")
 }
 
 impl Session {
@@ -155,26 +211,77 @@ impl Session {
             .on_progress(move |_| if flag.load(Ordering::Relaxed) { Some(Dynamic::from("interrupted")) } else { None });
         let sink: Arc<RwLock<Sink>> = Arc::new(RwLock::new(stdout_sink()));
         let s1 = sink.clone();
-        engine.on_print(move |s| {
-            if let Ok(f) = s1.read() {
-                f(s);
-            }
-        });
+        engine.on_print(move |s| send(&s1, Event::Stdout(s.to_string())));
         let s2 = sink.clone();
-        engine.on_debug(move |s, _, pos| {
-            if let Ok(f) = s2.read() {
-                f(&format!("[debug {pos}] {s}"));
+        engine.on_debug(move |s, _, pos| send(&s2, Event::Stderr(format!("[debug {pos}] {s}"))));
+        let s3 = sink.clone();
+        engine.register_fn("eprint", move |s: &str| send(&s3, Event::Stderr(s.to_string())));
+        let s4 = sink.clone();
+        engine.register_fn("clear_output", move || send(&s4, Event::ClearOutput));
+        let s5 = sink.clone();
+        engine.register_fn(
+            "display",
+            move |ctx: rhai::NativeCallContext, v: Dynamic| -> Result<(), Box<EvalAltResult>> {
+                let text = if v.is_string() || v.is_int() || v.is_float() || v.is_bool() {
+                    v.to_string()
+                } else {
+                    ctx.call_fn::<String>("to_string", (v.clone(),)).unwrap_or_else(|_| format!("{v:?}"))
+                };
+                send(&s5, Event::Display(bundle_for(&v, text)));
+                Ok(())
+            },
+        );
+        let input: Arc<RwLock<Option<InputHook>>> = Arc::new(RwLock::new(None));
+        let i1 = input.clone();
+        engine.register_fn("input", move |prompt: &str| -> Result<String, Box<EvalAltResult>> {
+            let hook = match i1.read() {
+                Ok(h) => h.clone(),
+                Err(p) => p.into_inner().clone(),
+            };
+            match hook {
+                Some(h) => h(prompt, false).map_err(api::rt),
+                None => Err(api::rt("input(): this front end cannot ask for input (use --set in batch runs)")),
             }
         });
         let help_catalog = catalog.clone();
         engine.register_fn("help", move |name: &str| -> String { help_text(&help_catalog, name) });
-        Session { engine, scope: Scope::new(), functions: AST::empty(), catalog, prefs, interrupt, sink, count: 0 }
+        Session {
+            engine,
+            scope: Scope::new(),
+            functions: AST::empty(),
+            catalog,
+            prefs,
+            interrupt,
+            sink,
+            input,
+            count: 0,
+        }
     }
 
-    /// Where `print` goes (stdout by default).
+    /// Where `print` and `display` go (as text); `eprint` still goes to standard error.
     pub fn set_output(&self, f: impl Fn(&str) + Send + Sync + 'static) {
-        if let Ok(mut s) = self.sink.write() {
-            *s = Arc::new(f);
+        self.set_events(move |e| match e {
+            Event::Stdout(s) => f(&s),
+            Event::Display(b) => f(&b.text),
+            Event::Stderr(s) => eprintln!("{s}"),
+            Event::ClearOutput => {}
+        });
+    }
+
+    /// Where every output event goes (the Jupyter kernel).
+    pub fn set_events(&self, f: impl Fn(Event) + Send + Sync + 'static) {
+        match self.sink.write() {
+            Ok(mut s) => *s = Arc::new(f),
+            Err(p) => *p.into_inner() = Arc::new(f),
+        }
+    }
+
+    /// How `input(prompt)` is answered; none by default (an error in scripts).
+    #[cfg_attr(not(test), allow(dead_code))]
+    pub fn set_input(&self, f: Option<InputHook>) {
+        match self.input.write() {
+            Ok(mut s) => *s = f,
+            Err(p) => *p.into_inner() = f,
         }
     }
 
@@ -235,16 +342,7 @@ impl Session {
         if v.is_unit() {
             return None;
         }
-        let text = self.display(v);
-        let mut b = Bundle { text, ..Default::default() };
-        if let Some(p) = v.clone().try_cast::<api::charts::Plot>() {
-            b.svg = p.svg().ok();
-        } else if let Some(s) = v.clone().try_cast::<stagna::Steps>() {
-            b.latex = Some(s.to_latex());
-        } else if let Some(t) = v.clone().try_cast::<api::tables::Tbl>() {
-            b.html = Some(table_html(&t));
-        }
-        Some(b)
+        Some(bundle_for(v, self.display(v)))
     }
 
     /// A value as text, through its registered `to_string`.
@@ -529,6 +627,33 @@ fn register_help(r: &mut Registrar<'_>) {
     use crate::catalog::Doc;
     r.group("Session");
     r.document(
+        "display",
+        &Doc::new(
+            "display(value)",
+            "Shows a value now (in a notebook: as a table, chart, formula or text) without ending the cell.",
+        )
+        .example("display(traverse_layout(round_duct(1.m), #{points: 4}).chart());")
+        .source("Jupyter messaging protocol 5.3, display_data"),
+    );
+    r.document(
+        "eprint",
+        &Doc::new("eprint(text)", "Writes a line to standard error (a notebook shows it as stderr).")
+            .example("eprint(\"check the gauge zero\");")
+            .source("common practice, no source"),
+    );
+    r.document(
+        "clear_output",
+        &Doc::new("clear_output()", "Clears the cell's output so far (notebooks; no effect in the terminal).")
+            .example("clear_output();")
+            .source("Jupyter messaging protocol 5.3, clear_output"),
+    );
+    r.document(
+        "input",
+        &Doc::new("input(prompt) -> string", "Asks the user for a line of text where the front end allows it (a notebook's input box); an error in batch runs.")
+            .example("// let operator = input(\"operator initials: \");\nprint(\"input() asks the notebook user\");")
+            .source("Jupyter messaging protocol 5.3, input_request"),
+    );
+    r.document(
         "help",
         &Doc::new("help(name) -> string", "Help on a function, a method (Type.method), a type (lists its methods and properties) or, with \"\", the list of everything.")
             .example("print(help(\"water\"));")
@@ -538,6 +663,36 @@ fn register_help(r: &mut Registrar<'_>) {
 
 fn esc(s: &str) -> String {
     s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;")
+}
+
+fn budget_html(b: &api::uncertainty::Budget) -> String {
+    let g = &b.g;
+    let mut s = String::from(
+        "<table class=\"stagna-budget\"><thead><tr><th>input</th><th>value</th><th>u</th><th>sensitivity</th><th>c·u</th><th>share</th><th>source</th></tr></thead><tbody>\n",
+    );
+    for l in &g.budget {
+        s.push_str(&format!(
+            "<tr><td>{} ({})</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{:.1} %</td><td>{}</td></tr>\n",
+            esc(&l.name),
+            esc(&l.unit),
+            stagna::quantity::format_number(l.value),
+            stagna::quantity::format_number(l.u),
+            stagna::quantity::format_number(l.sensitivity),
+            stagna::quantity::format_number(l.contribution),
+            100.0 * l.share,
+            esc(&l.source)
+        ));
+    }
+    s.push_str(&format!(
+        "</tbody></table>\n<p>y = {} {}, u<sub>c</sub> = {}, k = {:.3}, U({:.0} %) = {}</p>\n",
+        stagna::quantity::format_number(g.value),
+        esc(b.unit),
+        stagna::quantity::format_number(g.u),
+        g.k,
+        100.0 * g.coverage,
+        stagna::quantity::format_number(g.expanded)
+    ));
+    s
 }
 
 /// A table as HTML with units in the headers (first 50 rows, then a note of the size).

@@ -34,6 +34,7 @@ pub mod constants;
 pub mod dimension;
 pub mod epa;
 pub mod error;
+pub mod evcxr;
 pub mod flow;
 pub mod flow_uncertainty;
 pub mod fluid;

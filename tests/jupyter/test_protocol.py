@@ -1,0 +1,185 @@
+"""Protocol behaviour beyond jupyter_kernel_test: forged and malformed messages, interrupts,
+reconnecting clients, rich output, the parent-process watch."""
+
+import os
+import signal
+import subprocess
+import sys
+import tempfile
+import time
+
+import pytest
+from jupyter_client import KernelManager
+from jupyter_client.session import Session
+
+TIMEOUT = 30
+
+
+@pytest.fixture()
+def kernel():
+    km = KernelManager(kernel_name="stagna")
+    km.start_kernel()
+    kc = km.client()
+    kc.start_channels()
+    kc.wait_for_ready(timeout=TIMEOUT)
+    yield km, kc
+    kc.stop_channels()
+    km.shutdown_kernel(now=True)
+
+
+def run(kc, code, timeout=TIMEOUT):
+    """Executes code; returns (reply content, iopub messages of that request)."""
+    msg_id = kc.execute(code)
+    reply = kc.get_shell_msg(timeout=timeout)
+    while reply["parent_header"].get("msg_id") != msg_id:
+        reply = kc.get_shell_msg(timeout=timeout)
+    outputs = []
+    while True:
+        m = kc.get_iopub_msg(timeout=timeout)
+        if m["parent_header"].get("msg_id") != msg_id:
+            continue
+        outputs.append(m)
+        if m["msg_type"] == "status" and m["content"]["execution_state"] == "idle":
+            break
+    return reply["content"], outputs
+
+
+def text_of(outputs):
+    parts = []
+    for m in outputs:
+        c = m["content"]
+        if m["msg_type"] == "stream":
+            parts.append(c["text"])
+        elif m["msg_type"] in ("execute_result", "display_data"):
+            parts.append(c["data"].get("text/plain", ""))
+    return "".join(parts)
+
+
+def test_forged_message_is_ignored(kernel):
+    km, kc = kernel
+    marker = os.path.join(tempfile.mkdtemp(), "forged.csv")
+    forged = Session(key=b"not-the-kernel-key", username="intruder")
+    msg = forged.msg("execute_request", {"code": f'table_from(#{{a: [1.0]}}).write("{marker}")', "silent": False,
+                                         "store_history": True, "user_expressions": {}, "allow_stdin": False, "stop_on_error": True})
+    forged.send(kc.shell_channel.socket, msg)
+    time.sleep(1.0)
+    assert not os.path.exists(marker), "a forged message was executed"
+    content, outputs = run(kc, "1 + 1")
+    assert content["status"] == "ok" and "2" in text_of(outputs)
+
+
+def test_malformed_signed_request_gets_an_error_reply(kernel):
+    km, kc = kernel
+    s = kc.session
+    header = s.msg_header("execute_request")
+    parts = [s.pack(header), s.pack({}), s.pack({}), b"this is not json"]
+    frames = [b"<IDS|MSG>", s.sign(parts)] + parts
+    kc.shell_channel.socket.send_multipart(frames)
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    assert reply["content"]["status"] == "error"
+    content, _ = run(kc, "1 + 1")
+    assert content["status"] == "ok", "the receive loop survives"
+
+
+def test_interrupt_stops_a_long_cell_and_keeps_variables(kernel):
+    km, kc = kernel
+    run(kc, "let kept = 600.mm;")
+    msg_id = kc.execute("let i = 0; loop { i += 1; }")
+    time.sleep(1.0)
+    t0 = time.time()
+    km.interrupt_kernel()
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    while reply["parent_header"].get("msg_id") != msg_id:
+        reply = kc.get_shell_msg(timeout=TIMEOUT)
+    assert reply["content"]["status"] == "error"
+    assert reply["content"]["ename"] == "KeyboardInterrupt"
+    assert time.time() - t0 < 5, "interrupt was prompt"
+    content, outputs = run(kc, "kept")
+    assert "600 mm" in text_of(outputs)
+
+
+def test_heartbeat_and_control_answer_during_a_long_cell(kernel):
+    km, kc = kernel
+    kc.execute("let i = 0; loop { i += 1; }")
+    time.sleep(0.5)
+    assert kc.is_alive()
+    kc.control_channel.send(kc.session.msg("kernel_info_request"))
+    reply = kc.control_channel.get_msg(timeout=5)
+    assert reply["msg_type"] == "kernel_info_reply"
+    km.interrupt_kernel()
+
+
+def test_client_disconnects_and_reconnects(kernel):
+    km, kc = kernel
+    run(kc, "let q = 3.5.m3_s;")
+    kc.stop_channels()
+    kc2 = km.client()
+    kc2.start_channels()
+    kc2.wait_for_ready(timeout=TIMEOUT)
+    content, outputs = run(kc2, "q.to(\"m3/h\")")
+    assert content["status"] == "ok" and "12600 m³/h" in text_of(outputs)
+    kc2.stop_channels()
+
+
+def test_rich_output_bundles(kernel):
+    km, kc = kernel
+    _, outputs = run(kc, "traverse_layout(round_duct(1.2.m), #{points: 8}).chart()")
+    data = [m["content"]["data"] for m in outputs if m["msg_type"] == "execute_result"][0]
+    assert data["image/svg+xml"].startswith("<svg") and data["image/png"] and data["text/plain"]
+    _, outputs = run(kc, 'table_from(#{h: [1.0, 2.0]}).unit("h", "mm")')
+    data = [m["content"]["data"] for m in outputs if m["msg_type"] == "execute_result"][0]
+    assert "<th>h <span class=\"unit\">[mm]</span></th>" in data["text/html"]
+    _, outputs = run(kc, "pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).steps()")
+    data = [m["content"]["data"] for m in outputs if m["msg_type"] == "execute_result"][0]
+    assert "\\sqrt" in data["text/latex"]
+    _, outputs = run(kc, 'let t = table_from(#{x: [' + ", ".join(["1.0"] * 200) + ']}); t')
+    data = [m["content"]["data"] for m in outputs if m["msg_type"] == "execute_result"][0]
+    assert "first 50 of 200 rows" in data["text/html"]
+
+
+def test_execution_count_only_with_store_history(kernel):
+    km, kc = kernel
+    c1, _ = run(kc, "1")
+    kc.execute("2", store_history=False)
+    kc.get_shell_msg(timeout=TIMEOUT)
+    c3, _ = run(kc, "3")
+    assert c3["execution_count"] == c1["execution_count"] + 1
+
+
+def test_kernel_exits_when_its_parent_dies():
+    # jupyter_client sets JPY_PARENT_PID to its own process, so start the kernel by hand.
+    from jupyter_client.connect import write_connection_file
+
+    parent = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(60)"])
+    cf, _ = write_connection_file(fname=os.path.join(tempfile.mkdtemp(), "kernel.json"))
+    env = {**os.environ, "JPY_PARENT_PID": str(parent.pid)}
+    proc = subprocess.Popen([os.environ["STAGNA_BIN"], "kernel", "--connection-file", cf], env=env)
+    try:
+        time.sleep(0.5)
+        assert proc.poll() is None
+        parent.send_signal(signal.SIGKILL)
+        parent.wait()
+        for _ in range(50):
+            if proc.poll() is not None:
+                break
+            time.sleep(0.1)
+        assert proc.poll() is not None, "kernel outlived its parent"
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+
+
+def test_input_request_when_the_client_allows_it(kernel):
+    km, kc = kernel
+    msg_id = kc.execute('let who = input("operator initials: "); who', allow_stdin=True)
+    req = kc.get_stdin_msg(timeout=TIMEOUT)
+    assert req["msg_type"] == "input_request" and req["content"]["prompt"] == "operator initials: "
+    kc.input("JRW")
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    assert reply["content"]["status"] == "ok"
+    content, outputs = run(kc, "who")
+    assert "JRW" in text_of(outputs)
+    msg_id = kc.execute('input("x")', allow_stdin=False)
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    assert reply["content"]["status"] == "error", "no stdin allowed: a clear error, not a hang"
+    assert "does not allow input" in reply["content"]["evalue"]
