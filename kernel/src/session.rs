@@ -165,7 +165,7 @@ pub fn bundle_for(v: &Dynamic, text: String) -> Bundle {
         b.svg = p.svg().ok();
         b.png = p.png().ok();
     } else if let Some(s) = v.clone().try_cast::<stagna::Steps>() {
-        b.latex = Some(s.to_latex());
+        b.latex = Some(format!("$$\n{}\n$$", s.to_latex()));
     } else if let Some(t) = v.clone().try_cast::<api::tables::Tbl>() {
         b.html = Some(table_html(&t));
     } else if let Some(bud) = v.clone().try_cast::<api::uncertainty::Budget>() {
@@ -847,6 +847,17 @@ mod tests {
         let e = err(&mut s, "let x = 0; loop { x += 1; }");
         t.join().unwrap();
         assert_eq!(e.kind, "Interrupted");
+    }
+
+    #[test]
+    fn a_panic_in_a_host_function_becomes_an_error_and_the_session_carries_on() {
+        let mut s = Session::new();
+        s.engine.register_fn("host_bug", || -> i64 { panic!("deliberate test panic") });
+        eval(&mut s, "let kept = 5;");
+        let e = err(&mut s, "host_bug()");
+        assert_eq!(e.kind, "InternalError");
+        assert!(e.message.contains("deliberate test panic"), "{e:?}");
+        assert_eq!(eval(&mut s, "kept"), "5");
     }
 
     #[test]

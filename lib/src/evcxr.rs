@@ -87,7 +87,7 @@ impl GumResult {
 impl Steps {
     /// The steps as text and as LaTeX.
     pub fn evcxr_blocks(&self) -> String {
-        block("text/plain", &self.to_string()) + &block("text/latex", &self.to_latex())
+        block("text/plain", &self.to_string()) + &block("text/latex", &format!("$$\n{}\n$$", self.to_latex()))
     }
 }
 

@@ -45,7 +45,8 @@ impl Steps {
         self.0.extend(other.0);
     }
 
-    /// LaTeX `aligned` block, one formula and its substitution per step.
+    /// LaTeX `aligned` block, one formula and its substitution per step (wrap it in `$$`
+    /// for notebooks).
     pub fn to_latex(&self) -> String {
         let mut s = String::from("\\begin{aligned}\n");
         for st in &self.0 {
@@ -53,13 +54,72 @@ impl Steps {
                 "&\\text{{{}}}: & {} \\\\\n& & = {} = \\mathbf{{{}}} \\\\\n",
                 st.title,
                 st.latex,
-                st.substituted.replace('·', "\\cdot ").replace('√', "\\sqrt"),
-                st.result.replace(' ', "\\ ")
+                latex_text(&st.substituted),
+                latex_text(&st.result)
             ));
         }
         s.push_str("\\end{aligned}");
         s
     }
+}
+
+/// Plain-text arithmetic with units as LaTeX: `√(…)` → `\sqrt{…}`, `·` → `\cdot`, Greek
+/// letters and superscripts as commands, unit words upright after their numbers.
+pub fn latex_text(s: &str) -> String {
+    let chars: Vec<char> = s.chars().collect();
+    let mut out = String::new();
+    let mut i = 0;
+    let mut closers: Vec<usize> = Vec::new(); // depth at which a \sqrt{ was opened
+    let mut depth = 0usize;
+    while i < chars.len() {
+        let c = chars[i];
+        match c {
+            '√' if chars.get(i + 1) == Some(&'(') => {
+                out.push_str("\\sqrt{");
+                depth += 1;
+                closers.push(depth);
+                i += 2;
+                continue;
+            }
+            '(' => {
+                depth += 1;
+                out.push('(');
+            }
+            ')' => {
+                if closers.last() == Some(&depth) {
+                    closers.pop();
+                    out.push('}');
+                } else {
+                    out.push(')');
+                }
+                depth = depth.saturating_sub(1);
+            }
+            '·' => out.push_str(" \\cdot "),
+            '×' => out.push_str(" \\times "),
+            '−' => out.push('-'),
+            '²' => out.push_str("^2"),
+            '³' => out.push_str("^3"),
+            'ρ' => out.push_str("\\rho "),
+            'Δ' => out.push_str("\\Delta "),
+            'μ' => out.push_str("\\mu "),
+            'γ' => out.push_str("\\gamma "),
+            'κ' => out.push_str("\\kappa "),
+            '°' => out.push_str("^\\circ "),
+            ' ' => out.push_str("\\ "),
+            c if c.is_ascii_alphabetic() => {
+                let start = i;
+                while i < chars.len() && (chars[i].is_ascii_alphabetic() || chars[i] == '/' || chars[i] == '_') {
+                    i += 1;
+                }
+                let word: String = chars[start..i].iter().collect();
+                out.push_str(&format!("\\mathrm{{{word}}}"));
+                continue;
+            }
+            c => out.push(c),
+        }
+        i += 1;
+    }
+    out
 }
 
 impl fmt::Display for Steps {
@@ -72,5 +132,19 @@ impl fmt::Display for Steps {
             writeln!(f, "   source: {}", st.source)?;
         }
         Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::latex_text;
+
+    #[test]
+    fn substitutions_become_latex() {
+        assert_eq!(
+            latex_text("1 · √(2 · 50 Pa / 1.2 kg/m³)"),
+            "1\\  \\cdot \\ \\sqrt{2\\  \\cdot \\ 50\\ \\mathrm{Pa}\\ /\\ 1.2\\ \\mathrm{kg/m}^3}"
+        );
+        assert_eq!(latex_text("(13565.5 − 999.933)"), "(13565.5\\ -\\ 999.933)");
     }
 }

@@ -183,3 +183,47 @@ def test_input_request_when_the_client_allows_it(kernel):
     reply = kc.get_shell_msg(timeout=TIMEOUT)
     assert reply["content"]["status"] == "error", "no stdin allowed: a clear error, not a hang"
     assert "does not allow input" in reply["content"]["evalue"]
+
+
+def test_stop_on_error_aborts_the_queued_cells(kernel):
+    km, kc = kernel
+    first = kc.execute("wter()")
+    second = kc.execute("print(\"should not run\")")
+    replies = {}
+    while len(replies) < 2:
+        r = kc.get_shell_msg(timeout=TIMEOUT)
+        replies[r["parent_header"]["msg_id"]] = r["content"]["status"]
+    assert replies[first] == "error"
+    assert replies[second] == "aborted"
+
+
+def test_sigint_interrupts_a_long_cell(kernel):
+    km, kc = kernel
+    msg_id = kc.execute("let i = 0; loop { i += 1; }")
+    time.sleep(0.8)
+    km.provisioner.process.send_signal(signal.SIGINT)
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    assert reply["content"]["ename"] == "KeyboardInterrupt"
+    content, _ = run(kc, "1 + 1")
+    assert content["status"] == "ok"
+
+
+def test_comm_info_and_restart(kernel):
+    km, kc = kernel
+    kc.comm_info()
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    assert reply["msg_type"] == "comm_info_reply" and reply["content"]["comms"] == {}
+    run(kc, "let before = 1;")
+    km.restart_kernel(now=False)
+    kc.wait_for_ready(timeout=TIMEOUT)
+    content, outputs = run(kc, "let after = 2; after")
+    assert content["status"] == "ok" and "2" in text_of(outputs)
+
+
+def test_completion_cursor_counts_code_points(kernel):
+    km, kc = kernel
+    code = 'let ρ = 1.2.kg_m3; // ρ\npitot_sta'
+    kc.complete(code, len(code))
+    reply = kc.get_shell_msg(timeout=TIMEOUT)["content"]
+    assert "pitot_static" in reply["matches"]
+    assert reply["cursor_end"] == len(code) and reply["cursor_start"] == len(code) - len("pitot_sta")
