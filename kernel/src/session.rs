@@ -666,33 +666,7 @@ fn esc(s: &str) -> String {
 }
 
 fn budget_html(b: &api::uncertainty::Budget) -> String {
-    let g = &b.g;
-    let mut s = String::from(
-        "<table class=\"stagna-budget\"><thead><tr><th>input</th><th>value</th><th>u</th><th>sensitivity</th><th>c·u</th><th>share</th><th>source</th></tr></thead><tbody>\n",
-    );
-    for l in &g.budget {
-        s.push_str(&format!(
-            "<tr><td>{} ({})</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{:.1} %</td><td>{}</td></tr>\n",
-            esc(&l.name),
-            esc(&l.unit),
-            stagna::quantity::format_number(l.value),
-            stagna::quantity::format_number(l.u),
-            stagna::quantity::format_number(l.sensitivity),
-            stagna::quantity::format_number(l.contribution),
-            100.0 * l.share,
-            esc(&l.source)
-        ));
-    }
-    s.push_str(&format!(
-        "</tbody></table>\n<p>y = {} {}, u<sub>c</sub> = {}, k = {:.3}, U({:.0} %) = {}</p>\n",
-        stagna::quantity::format_number(g.value),
-        esc(b.unit),
-        stagna::quantity::format_number(g.u),
-        g.k,
-        100.0 * g.coverage,
-        stagna::quantity::format_number(g.expanded)
-    ));
-    s
+    format!("<p>output in {}</p>\n{}", esc(b.unit), b.g.to_html())
 }
 
 /// A table as HTML with units in the headers (first 50 rows, then a note of the size).

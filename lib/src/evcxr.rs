@@ -58,29 +58,36 @@ impl Chart {
 impl GumResult {
     /// The budget as an HTML table, and as text.
     pub fn evcxr_blocks(&self) -> String {
+        block("text/plain", &self.to_string()) + &block("text/html", &self.to_html())
+    }
+
+    /// The budget as an HTML table with the result line below it.
+    pub fn to_html(&self) -> String {
         let mut h = String::from(
-            "<table><thead><tr><th>input</th><th>value</th><th>u</th><th>c</th><th>c·u</th><th>share</th></tr></thead><tbody>",
+            "<table><thead><tr><th>input</th><th>value</th><th>u</th><th>c</th><th>c·u</th><th>share</th><th>source</th></tr></thead><tbody>",
         );
         for l in &self.budget {
             h.push_str(&format!(
-                "<tr><td>{} ({})</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{:.1} %</td></tr>",
+                "<tr><td>{} ({})</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{:.1} %</td><td>{}</td></tr>",
                 esc(&l.name),
                 esc(&l.unit),
                 format_number(l.value),
                 format_number(l.u),
                 format_number(l.sensitivity),
                 format_number(l.contribution),
-                100.0 * l.share
+                100.0 * l.share,
+                esc(&l.source)
             ));
         }
         h.push_str(&format!(
-            "</tbody></table><p>y = {}, u<sub>c</sub> = {}, k = {:.3}, U = {}</p>",
+            "</tbody></table><p>y = {}, u<sub>c</sub> = {}, k = {:.3}, U({:.0} %) = {}</p>",
             format_number(self.value),
             format_number(self.u),
             self.k,
+            100.0 * self.coverage,
             format_number(self.expanded)
         ));
-        block("text/plain", &self.to_string()) + &block("text/html", &h)
+        h
     }
 }
 

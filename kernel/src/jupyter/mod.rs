@@ -306,6 +306,36 @@ fn glob(pat: &str, s: &str) -> bool {
     i == p.len()
 }
 
+/// Verifies and parses a request: a forged one is logged and dropped, a signed but
+/// malformed one is logged and answered with an error reply.
+async fn accept(
+    sock: &mut RouterSocket,
+    conn: &Connection,
+    ks: &str,
+    raw: ZmqMessage,
+    channel: &str,
+) -> Option<Message> {
+    match wire::parse(conn, raw) {
+        Parsed::Ok(m) => Some(m),
+        Parsed::BadSignature => {
+            log(&format!("dropped a {channel} message with a bad or missing signature"));
+            None
+        }
+        Parsed::Malformed { ids, header, reason } => {
+            log(&format!("malformed {channel} message: {reason}"));
+            if let Some(h) = header {
+                let r = Message::reply(
+                    ks,
+                    &h,
+                    json!({"status": "error", "ename": "BadRequest", "evalue": reason, "traceback": []}),
+                );
+                let _ = sock.send(r.encode(conn, ids)).await;
+            }
+            None
+        }
+    }
+}
+
 /// Runs the kernel until shutdown; returns the exit status.
 pub fn run(connection_file: &std::path::Path) -> Result<i32, Box<dyn std::error::Error>> {
     let text = std::fs::read_to_string(connection_file).map_err(|e| format!("{}: {e}", connection_file.display()))?;
@@ -445,25 +475,7 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
                     continue;
                 }
             };
-            let m = match wire::parse(&c, raw) {
-                Parsed::Ok(m) => m,
-                Parsed::BadSignature => {
-                    log("dropped a control message with a bad or missing signature");
-                    continue;
-                }
-                Parsed::Malformed { ids, header, reason } => {
-                    log(&format!("malformed control message: {reason}"));
-                    if let Some(h) = header {
-                        let r = Message::reply(
-                            &ks,
-                            &h,
-                            json!({"status": "error", "ename": "BadRequest", "evalue": reason, "traceback": []}),
-                        );
-                        let _ = control.send(r.encode(&c, ids)).await;
-                    }
-                    continue;
-                }
-            };
+            let Some(m) = accept(&mut control, &c, &ks, raw, "control").await else { continue };
             status(&tx, &m.header, "busy");
             let (content, exit) = match m.msg_type() {
                 "kernel_info_request" => (kernel_info(), false),
@@ -505,25 +517,7 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
                 }
             },
         };
-        let m = match wire::parse(&conn, raw) {
-            Parsed::Ok(m) => m,
-            Parsed::BadSignature => {
-                log("dropped a shell message with a bad or missing signature");
-                continue;
-            }
-            Parsed::Malformed { ids, header, reason } => {
-                log(&format!("malformed shell message: {reason}"));
-                if let Some(h) = header {
-                    let r = Message::reply(
-                        &kernel_session,
-                        &h,
-                        json!({"status": "error", "ename": "BadRequest", "evalue": reason, "traceback": []}),
-                    );
-                    let _ = shell.send(r.encode(&conn, ids)).await;
-                }
-                continue;
-            }
-        };
+        let Some(m) = accept(&mut shell, &conn, &kernel_session, raw, "shell").await else { continue };
         status(&iopub_tx, &m.header, "busy");
         let ty = m.msg_type().to_string();
         let content = match ty.as_str() {
