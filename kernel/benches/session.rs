@@ -13,48 +13,13 @@ use std::process::{Command, Stdio};
 use std::time::Instant;
 
 use polars::prelude::*;
+
+#[path = "../../lib/benches/support/synthetic.rs"]
+mod synthetic;
 use stagna::campaign::{CampaignColumns, CampaignSpec, reduce_campaign};
 use stagna::*;
 
 const STAGNA: &str = env!("CARGO_BIN_EXE_stagna");
-
-fn campaign(traverses: usize) -> Result<DataFrame, PolarsError> {
-    let per = 20usize;
-    let n = traverses * per;
-    let ea: Vec<f64> = (1..=5).map(|i| (1.0 - ((2 * i - 1) as f64 / 10.0).sqrt()) / 2.0).rev().collect();
-    let mut frac: Vec<f64> = ea.clone();
-    frac.extend(ea.iter().rev().map(|y| 1.0 - y));
-    let (mut id, mut line, mut pos, mut defl, mut temp, mut dia) = (
-        Vec::with_capacity(n),
-        Vec::with_capacity(n),
-        Vec::with_capacity(n),
-        Vec::with_capacity(n),
-        Vec::with_capacity(n),
-        Vec::with_capacity(n),
-    );
-    for t in 0..traverses {
-        let d = 400.0 + (t % 13) as f64 * 100.0;
-        let tc = 15.0 + (t % 17) as f64;
-        let level = 20.0 + (t % 29) as f64;
-        for k in 0..per {
-            let y = frac[k % 10];
-            id.push(t as i64);
-            line.push((k / 10) as i64);
-            pos.push(y * d);
-            defl.push(level * (2.0 * y.min(1.0 - y)).powf(2.0 / 7.0));
-            temp.push(tc);
-            dia.push(d);
-        }
-    }
-    DataFrame::new_infer_height(vec![
-        Column::new("traverse".into(), id),
-        Column::new("line".into(), line),
-        Column::new("position_mm".into(), pos),
-        Column::new("deflection_mm".into(), defl),
-        Column::new("fluid_temp_c".into(), temp),
-        Column::new("diameter_mm".into(), dia),
-    ])
-}
 
 const SCRIPT: &str = r#"
 let t = read_table(input).units(#{deflection_mm: "mm", fluid_temp_c: "degC", diameter_mm: "mm", position_mm: "mm"});
@@ -81,7 +46,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let dir = std::env::temp_dir().join(format!("stagna-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir)?;
     let data = dir.join("campaign.parquet");
-    table::write_parquet(&campaign(traverses)?, &data)?;
+    table::write_parquet(&synthetic::campaign(traverses)?, &data)?;
     let script = dir.join("reduce.rhai");
     std::fs::write(&script, SCRIPT)?;
     println!("campaign: {traverses} traverses × 20 points = {} readings (Parquet)", traverses * 20);
