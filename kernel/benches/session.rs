@@ -32,7 +32,7 @@ let spec = #{
     min_points: 20
 };
 let c = reduce_campaign(t, spec);
-print(c.traverses["volume_flow_m3_s"].values().reduce(|s, x| s + x, 0.0));
+print(c.traverses["volume_flow_m3_s"].sum().value);
 "#;
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {

@@ -203,6 +203,18 @@ fn demo_csv(p: &SharedPrefs, name: &str) -> Res<DataFrame> {
         .map_err(perr)
 }
 
+/// Checks that a column exists and holds numbers, without copying it.
+fn numeric_column(df: &DataFrame, name: &str) -> Res<()> {
+    match df.column(name) {
+        Ok(c) if c.dtype().is_primitive_numeric() => Ok(()),
+        Ok(c) => Err(rt(format!("column '{name}': holds {} values, not numbers", c.dtype()))),
+        Err(_) => Err(rt(format!(
+            "column '{name}': no such column; the table has: {}",
+            df.get_column_names().iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
+        ))),
+    }
+}
+
 fn unit_for_result_column(name: &str) -> Option<&'static str> {
     [("_m3_s", "m^3/s"), ("_m_s", "m/s"), ("_kg_s", "kg/s"), ("_kg_m3", "kg/m^3"), ("_pa", "Pa"), ("_pct", "%")]
         .iter()
@@ -542,7 +554,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .example("let t = table_from(#{h: [12.5]}).unit(\"h\", \"mm\");\nprint(t[\"h\"].to(\"in\"));")
             .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
         |t: &mut Tbl, c: &str, u: &str| -> Res<Tbl> {
-            lib(stagna::table::float_column(&t.df, c))?;
+            numeric_column(&t.df, c)?;
             lib(Unit::parse(u))?;
             let mut out = t.clone();
             out.units.insert(c.to_string(), u.to_string());
@@ -558,7 +570,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         |t: &mut Tbl, m: Map| -> Res<Tbl> {
             let mut out = t.clone();
             for (c, u) in &m {
-                lib(stagna::table::float_column(&t.df, c))?;
+                numeric_column(&t.df, c)?;
                 let u = text(u, c)?;
                 lib(Unit::parse(&u))?;
                 out.units.insert(c.to_string(), u);
@@ -927,8 +939,9 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         |c: &mut Col| c.si.len() as i64,
     );
     type Stat = fn(&[f64]) -> f64;
-    let stats: [(&str, &str, Stat); 4] = [
+    let stats: [(&str, &str, Stat); 5] = [
         ("mean", "Arithmetic mean, as a quantity.", |v| v.iter().sum::<f64>() / v.len() as f64),
+        ("sum", "Sum, as a quantity (e.g. the flows of several branches).", |v| v.iter().sum::<f64>()),
         ("min", "Smallest value, as a quantity.", |v| v.iter().copied().fold(f64::INFINITY, f64::min)),
         ("max", "Largest value, as a quantity.", |v| v.iter().copied().fold(f64::NEG_INFINITY, f64::max)),
         ("std", "Sample standard deviation (n − 1), as a quantity.", |v| {
@@ -951,7 +964,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                     return Err(rt(format!("{name} of an empty column")));
                 }
                 let mut q = col_stat(c, f);
-                if name == "std" {
+                if name == "std" || name == "sum" {
                     q.q.absolute_temperature = false;
                     if c.absolute_temperature {
                         q.unit = None;
