@@ -171,19 +171,7 @@ impl Catalog {
     }
 }
 
-/// Levenshtein distance (for suggestions).
-pub fn edit_distance(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.chars().enumerate() {
-        let mut cur = vec![i + 1; b.len() + 1];
-        for (j, cb) in b.iter().enumerate() {
-            cur[j + 1] = (prev[j] + usize::from(ca != *cb)).min(prev[j + 1] + 1).min(cur[j] + 1);
-        }
-        prev = cur;
-    }
-    prev[b.len()]
-}
+pub use stagna::unit::edit_distance;
 
 /// Registers functions with the engine and their docs with the catalog in one call.
 pub struct Registrar<'a> {

@@ -202,7 +202,8 @@ fn nearest_name(name: &str) -> Option<&'static str> {
         .map(|(_, n)| n)
 }
 
-fn edit_distance(a: &str, b: &str) -> usize {
+/// Levenshtein distance between two names (for "did you mean" suggestions).
+pub fn edit_distance(a: &str, b: &str) -> usize {
     let b: Vec<char> = b.chars().collect();
     let mut prev: Vec<usize> = (0..=b.len()).collect();
     for (i, ca) in a.chars().enumerate() {
