@@ -56,9 +56,8 @@ fn water_main_single_point() {
 #[test]
 fn ventilation_duct_traverse() {
     let (out, dir) = run_script("ventilation-duct-traverse", &[]);
-    // Equal-area wall distances for 10 points on 600 mm: (1 − √(1 − (2i−1)/10))/2·D, point 1 =
-    // 15.4 mm, moved out to the 25.4 mm minimum of US EPA Method 1 §11.3 for D > 0.61 m? No:
-    // D = 0.6 m ≤ 0.61 m, so 13 mm applies and 15.4 mm stays (US EPA Method 1 Table 1-1: 2.6 % of D).
+    // Equal-area wall distance of point 1 of 10 on 600 mm: (1 − √0.9)/2 · D = 15.4 mm (US EPA
+    // Method 1 Table 1-1: 2.6 % of D); D ≤ 0.61 m, so the 1.3 cm minimum of §11.3 leaves it in place.
     assert!(out.contains("A1") && out.contains("15.4"), "{out}");
     let q = number_after(&out, "volume flow");
     let mean = number_after(&out, "mean velocity");
