@@ -16,7 +16,7 @@ use polars::prelude::*;
 
 #[path = "../../lib/benches/support/synthetic.rs"]
 mod synthetic;
-use stagna::campaign::{CampaignColumns, CampaignSpec, reduce_campaign};
+use stagna::campaign::reduce_campaign;
 use stagna::*;
 
 const STAGNA: &str = env!("CARGO_BIN_EXE_stagna");
@@ -51,22 +51,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     std::fs::write(&script, SCRIPT)?;
     println!("campaign: {traverses} traverses × 20 points = {} readings (Parquet)", traverses * 20);
 
-    let oil = UserLiquid::new("oil", Density::kg_m3(826.0), Temperature::celsius(20.0), Some(7.5e-4))?;
-    let spec = CampaignSpec {
-        columns: CampaignColumns { line: Some("line".into()), ..CampaignColumns::standard()? },
-        fluid: Fluid::HumidAir(HumidAir::relative(0.5)?),
-        static_pressure: Pressure::pa(101_000.0),
-        manometer: Manometer::new(
-            ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 },
-            GaugeLiquid::User(oil),
-            gravity::standard(),
-        )?,
-        probe: Probe::new(ProbeKind::PitotStatic, 0.998)?,
-        averaging: Averaging::Arithmetic,
-        min_points: 20,
-        flow: Default::default(),
-        uncertainty: None,
-    };
+    let spec = synthetic::spec(20)?;
     let (mut best_rust, mut best_script) = (f64::MAX, f64::MAX);
     let mut sums = (0.0, String::new());
     for _ in 0..3 {

@@ -137,8 +137,6 @@ pub struct Session {
     interrupt: Arc<AtomicBool>,
     sink: Arc<RwLock<Sink>>,
     input: Arc<RwLock<Option<InputHook>>>,
-    /// Inputs evaluated so far (for history and the kernel's execution count).
-    pub count: usize,
 }
 
 fn stdout_sink() -> Sink {
@@ -245,17 +243,7 @@ impl Session {
         });
         let help_catalog = catalog.clone();
         engine.register_fn("help", move |name: &str| -> String { help_text(&help_catalog, name) });
-        Session {
-            engine,
-            scope: Scope::new(),
-            functions: AST::empty(),
-            catalog,
-            prefs,
-            interrupt,
-            sink,
-            input,
-            count: 0,
-        }
+        Session { engine, scope: Scope::new(), functions: AST::empty(), catalog, prefs, interrupt, sink, input }
     }
 
     /// Where `print` and `display` go (as text); `eprint` still goes to standard error.
@@ -308,7 +296,6 @@ impl Session {
 
     /// Evaluates one input; variables and functions persist into the next.
     pub fn eval(&mut self, src: &str) -> Result<Outcome, ScriptError> {
-        self.count += 1;
         self.interrupt.store(false, Ordering::Relaxed);
         let ast = self.engine.compile_with_scope(&self.scope, src).map_err(|e| self.parse_error(&e))?;
         let fns = ast.clone_functions_only();

@@ -12,7 +12,7 @@ use std::time::Instant;
 mod synthetic;
 
 use polars::prelude::*;
-use stagna::campaign::{CampaignColumns, CampaignSpec, reduce_campaign};
+use stagna::campaign::{CampaignSpec, reduce_campaign};
 use stagna::probe::isentropic;
 use stagna::*;
 
@@ -46,22 +46,7 @@ fn main() -> std::result::Result<(), Box<dyn std::error::Error>> {
 
     let df = synthetic::campaign(traverses)?;
     let raw = n * 8 * 6;
-    let oil = UserLiquid::new("oil", Density::kg_m3(826.0), Temperature::celsius(20.0), Some(7.5e-4))?;
-    let spec = CampaignSpec {
-        columns: CampaignColumns { line: Some("line".into()), ..CampaignColumns::standard()? },
-        fluid: Fluid::HumidAir(HumidAir::relative(0.5)?),
-        static_pressure: Pressure::pa(101_000.0),
-        manometer: Manometer::new(
-            ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 },
-            GaugeLiquid::User(oil),
-            gravity::standard(),
-        )?,
-        probe: Probe::new(ProbeKind::PitotStatic, 0.998)?,
-        averaging: Averaging::Arithmetic,
-        min_points: per,
-        flow: Default::default(),
-        uncertainty: None,
-    };
+    let spec = synthetic::spec(per)?;
 
     println!("campaign: {traverses} traverses × {per} points = {n} readings; raw columns {:.0} MiB", mib(raw));
     let mut best_lib = f64::MAX;

@@ -1,7 +1,7 @@
 //! Charts in scripts: velocity profiles, traverse cross-sections, campaign trends and
 //! uncertainty budgets, saved as SVG or PNG and displayed by the kernel.
 
-use rhai::{Dynamic, Map};
+use rhai::Map;
 use stagna::TraverseLayout;
 use stagna::plot::{Chart, ProfileSeries};
 
@@ -138,24 +138,12 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             let system = super::prefs(&p).system;
             let df = &c.res.traverses;
             let y = field(&o, "y").map(|d| text(d, "y")).transpose()?.unwrap_or_else(|| "volume_flow_m3_s".into());
-            let tbl = super::tables::Tbl { df: df.clone(), units: Default::default() };
-            let mut units = std::collections::BTreeMap::new();
-            for name in df.get_column_names() {
-                if name.ends_with("_m3_s") {
-                    units.insert(name.to_string(), "m^3/s".to_string());
-                } else if name.ends_with("_m_s") {
-                    units.insert(name.to_string(), "m/s".to_string());
-                } else if name.ends_with("_kg_s") {
-                    units.insert(name.to_string(), "kg/s".to_string());
-                }
-            }
-            let tbl = Tbl { units, ..tbl };
+            let tbl = super::tables::with_result_units(df.clone(), Default::default());
             let (values, yu) = column_values(&tbl, &y, system)?;
-            let errors = if df.column("expanded_flow_m3_s").is_ok() && y.ends_with("flow_m3_s") {
-                let (e, _) = column_values(&Tbl { units: [("expanded_flow_m3_s".to_string(), yu.clone().unwrap_or_else(|| "m^3/s".into()))].into(), ..tbl.clone() }, "expanded_flow_m3_s", system)?;
-                Some(e)
-            } else {
-                None
+            // Error bars in the same unit as the plotted flows.
+            let errors = match (&yu, df.column("expanded_flow_m3_s").is_ok() && y.ends_with("flow_m3_s")) {
+                (Some(u), true) => Some(lib(tbl.column("expanded_flow_m3_s")?.values_in(u))?),
+                _ => None,
             };
             let key = df.get_column_names()[0].to_string();
             let labels: Vec<String> = df
@@ -205,5 +193,4 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             lib(stagna::table::write_atomically(&target, |f| std::io::Write::write_all(f, &bytes)))
         },
     );
-    let _ = Dynamic::UNIT;
 }

@@ -1,8 +1,6 @@
 //! Fluids, gauge liquids, manometers, probes, conduits, profiles, layouts and flows in
 //! scripts, each with scalar and whole-column forms where the library has them.
 
-use std::sync::Arc;
-
 use rhai::{Array, Dynamic, Map};
 use stagna::dimension::Dimension as D;
 use stagna::profile::{KAPPA, StraightLengths};
@@ -62,10 +60,6 @@ fn warnings_of(w: &[Warning]) -> Array {
 
 fn show_q(v: f64, dim: D, prefs: &SharedPrefs) -> String {
     Q::si(v, dim).show(super::prefs(prefs).system)
-}
-
-fn opt_map(m: &Map, keys: &[&str], what: &str) -> Res<()> {
-    check_keys(m, keys, what)
 }
 
 fn layout_rule(s: &str) -> Res<LayoutRule> {
@@ -1048,7 +1042,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .example("let l = traverse_layout(round_duct(600.mm), #{rule: \"log-linear\", points: 10, diameters: 2, port_length: 80.mm});\nprint(l.field_sheet());")
             .source("ISO 3966:2008 §9 (log-linear, log-Chebyshev); US EPA Method 1 (equal-area, wall distances)"),
         |c: Conduit, o: Map| -> Res<TraverseLayout> {
-            opt_map(&o, &["rule", "points", "diameters", "columns", "rows", "total", "port_length"], "traverse_layout")?;
+            check_keys(&o, &["rule", "points", "diameters", "columns", "rows", "total", "port_length"], "traverse_layout")?;
             let rule = layout_rule(&field(&o, "rule").map(|d| text(d, "rule")).transpose()?.unwrap_or_else(|| "equal-area".into()))?;
             let port = match field(&o, "port_length") {
                 Some(d) => length(d, "port_length")?,
@@ -1139,7 +1133,6 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             out
         },
     );
-    let _ = Arc::new(()); // keep the import list stable across features
 }
 
 fn profile_family(s: &str) -> Res<ProfileFamily> {

@@ -222,7 +222,8 @@ fn unit_for_result_column(name: &str) -> Option<&'static str> {
         .map(|(_, u)| *u)
 }
 
-fn with_result_units(df: DataFrame, mut units: BTreeMap<String, String>) -> Tbl {
+/// A result table with the units its column-name suffixes declare (`_m_s`, `_m3_s`, ...).
+pub fn with_result_units(df: DataFrame, mut units: BTreeMap<String, String>) -> Tbl {
     for c in df.get_column_names() {
         if let Some(u) = unit_for_result_column(c) {
             units.insert(c.to_string(), u.to_string());

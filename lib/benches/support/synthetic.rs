@@ -3,6 +3,8 @@
 //! diameter, 2 diameters), a power-law-like deflection pattern and a temperature per traverse.
 
 use polars::prelude::*;
+use stagna::campaign::{CampaignColumns, CampaignSpec};
+use stagna::*;
 
 /// `traverses` × 20 readings in the standard campaign columns plus `line`.
 pub fn campaign(traverses: usize) -> PolarsResult<DataFrame> {
@@ -41,4 +43,25 @@ pub fn campaign(traverses: usize) -> PolarsResult<DataFrame> {
         Column::new("fluid_temp_c".into(), temp),
         Column::new("diameter_mm".into(), dia),
     ])
+}
+
+/// The measurement spec of the synthetic campaign: humid air (RH 50 %) at 101 kPa, an inclined
+/// oil gauge, a pitot-static tube, arithmetic means over `min_points` points per traverse.
+pub fn spec(min_points: usize) -> stagna::Result<CampaignSpec> {
+    let oil = UserLiquid::new("oil", Density::kg_m3(826.0), Temperature::celsius(20.0), Some(7.5e-4))?;
+    Ok(CampaignSpec {
+        columns: CampaignColumns { line: Some("line".into()), ..CampaignColumns::standard()? },
+        fluid: Fluid::HumidAir(HumidAir::relative(0.5)?),
+        static_pressure: Pressure::pa(101_000.0),
+        manometer: Manometer::new(
+            ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 },
+            GaugeLiquid::User(oil),
+            gravity::standard(),
+        )?,
+        probe: Probe::new(ProbeKind::PitotStatic, 0.998)?,
+        averaging: Averaging::Arithmetic,
+        min_points,
+        flow: Default::default(),
+        uncertainty: None,
+    })
 }
