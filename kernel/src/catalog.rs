@@ -171,7 +171,7 @@ impl Catalog {
     }
 }
 
-pub use stagna::unit::edit_distance;
+pub use stagna::units::unit::edit_distance;
 
 /// Registers functions with the engine and their docs with the catalog in one call.
 pub struct Registrar<'a> {

@@ -10,7 +10,7 @@ use std::error::Error;
 use std::path::Path;
 
 use comfy_table::{Cell, CellAlignment, Table, presets::UTF8_FULL_CONDENSED};
-use stagna::quantity::format_number;
+use stagna::units::quantity::format_number;
 
 use crate::catalog::Kind;
 use crate::session::Session;
@@ -107,11 +107,11 @@ pub fn units_table() -> String {
     if let Some(c) = t.column_mut(0) {
         c.set_cell_alignment(CellAlignment::Left);
     }
-    for u in stagna::unit::UNITS {
+    for u in stagna::units::unit::UNITS {
         t.add_row(vec![
             u.names.join(", "),
             u.description.to_string(),
-            format!("{} {}", format_number(u.factor), stagna::quantity::si_symbol(u.dimension)),
+            format!("{} {}", format_number(u.factor), stagna::units::quantity::si_symbol(u.dimension)),
             u.dimension.name().unwrap_or("").to_string(),
             u.source.to_string(),
         ]);

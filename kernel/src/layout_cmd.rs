@@ -3,7 +3,7 @@
 use std::error::Error;
 use std::path::{Path, PathBuf};
 
-use stagna::layout::{TraversePurpose, epa_method1_points};
+use stagna::section::layout::{TraversePurpose, epa_method1_points};
 use stagna::{Conduit, LayoutRule, Length, Quantity, TraverseLayout};
 
 /// Options of `stagna layout`.

@@ -13,7 +13,7 @@ mod synthetic;
 
 use polars::prelude::*;
 use stagna::campaign::{CampaignSpec, reduce_campaign};
-use stagna::probe::isentropic;
+use stagna::instruments::probe::isentropic;
 use stagna::*;
 
 /// A field of /proc/self/status in bytes (Linux), e.g. "VmRSS" or "VmHWM".

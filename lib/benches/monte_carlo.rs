@@ -12,10 +12,10 @@ use std::time::Instant;
 use rand::SeedableRng;
 use rand::rngs::SmallRng;
 use rand_distr::{Distribution, StandardNormal};
-use stagna::flow_uncertainty::{MethodTerm, TraverseUncertainty};
-use stagna::layout::LayoutRule;
-use stagna::monte_carlo::{McOptions, monte_carlo};
+use stagna::section::layout::LayoutRule;
 use stagna::uncertainty::Input;
+use stagna::uncertainty::flow_models::{MethodTerm, TraverseUncertainty};
+use stagna::uncertainty::monte_carlo::{McOptions, monte_carlo};
 
 const M: usize = 1_000_000;
 const DP: [f64; 20] = [

@@ -26,55 +26,65 @@
 //! # Ok::<(), stagna::Error>(())
 //! ```
 
-pub mod analysis;
+// The reduction chain, stage by stage (each folder's module doc says what the
+// stage takes in and gives out).
+/// Whole campaigns over tables of readings.
 pub mod campaign;
-pub mod columns;
-pub mod conduit;
-pub mod constants;
-pub mod dimension;
-pub mod epa;
-pub mod error;
-pub mod evcxr;
-pub mod flow;
-pub mod flow_uncertainty;
-pub mod fluid;
-pub mod friction;
-pub mod gas_mixture;
-pub mod gauge_liquid;
-pub mod gravity;
-pub mod humid_air;
-pub mod integration;
-pub mod layout;
-pub mod manometer;
-pub mod monte_carlo;
-pub mod plot;
-pub mod probe;
-pub mod profile;
-pub mod quantity;
-pub mod steps;
-pub mod table;
+/// Fluids at the measuring conditions, gauge liquids, local gravity.
+pub mod fluids;
+/// Manometers and probes: from a reading to a point velocity.
+pub mod instruments;
+/// Tables in and out, charts, notebook display.
+pub mod io;
+/// Published test methods in their own form.
+pub mod methods;
+/// The measuring section: layouts, profiles, section means, flows.
+pub mod section;
+/// GUM and Monte Carlo uncertainty.
 pub mod uncertainty;
-pub mod unit;
-pub mod water;
+/// Units and quantities.
+pub mod units;
 
-pub use conduit::{Conduit, Section};
-pub use dimension::Dimension;
+// Shared by every stage.
+pub mod columns;
+pub mod error;
+pub mod steps;
+
+// The flat module paths of release 0.1, kept so that existing Rust code and
+// notebooks (`stagna::probe::Probe`, `stagna::table::read_table`) keep compiling.
+#[doc(hidden)]
+pub use fluids::{fluid, gas_mixture, gauge_liquid, gravity, humid_air, water};
+#[doc(hidden)]
+pub use instruments::{manometer, probe};
+#[doc(hidden)]
+pub use io::{evcxr, plot, table};
+#[doc(hidden)]
+pub use methods::us_epa as epa;
+#[doc(hidden)]
+pub use section::{conduit, flow, friction, integration, layout, profile, profile_analysis as analysis};
+#[doc(hidden)]
+pub use uncertainty::{flow_models as flow_uncertainty, monte_carlo};
+#[doc(hidden)]
+pub use units::{constants, dimension, quantity, unit};
+
 pub use error::{Error, Result, Warning};
-pub use flow::{FlowOptions, FlowResult, WallFactor, flow};
-pub use fluid::{Fluid, FluidState};
-pub use friction::{FrictionModel, Regime};
-pub use gas_mixture::{Component, GasMixture, ReferenceCondition};
-pub use gauge_liquid::{GaugeLiquid, UserLiquid};
-pub use humid_air::{HumidAir, Humidity};
-pub use integration::{Averaging, SectionMean, section_mean};
-pub use layout::{LayoutRule, Position, TraverseLayout};
-pub use manometer::{Manometer, ManometerKind, ManometerResult, Reading};
-pub use probe::{FlowDirection, PointVelocity, Probe, ProbeKind, VelocityMethod};
-pub use profile::{ProfileFamily, ProfileModel, SinglePointResult, single_point};
-pub use quantity::{
+pub use fluids::fluid::{Fluid, FluidState};
+pub use fluids::gas_mixture::{Component, GasMixture, ReferenceCondition};
+pub use fluids::gauge_liquid::{GaugeLiquid, UserLiquid};
+pub use fluids::humid_air::{HumidAir, Humidity};
+pub use fluids::water::{Water, WaterModel};
+pub use instruments::manometer::{Manometer, ManometerKind, ManometerResult, Reading};
+pub use instruments::probe::{FlowDirection, PointVelocity, Probe, ProbeKind, VelocityMethod};
+pub use section::conduit::{Conduit, Section};
+pub use section::flow::{FlowOptions, FlowResult, WallFactor, flow};
+pub use section::friction::{FrictionModel, Regime};
+pub use section::integration::{Averaging, SectionMean, section_mean};
+pub use section::layout::{LayoutRule, Position, TraverseLayout};
+pub use section::profile::{ProfileFamily, ProfileModel, SinglePointResult, single_point};
+pub use steps::{Step, Steps};
+pub use units::dimension::Dimension;
+pub use units::quantity::{
     Acceleration, Area, Density, DynamicViscosity, KinematicViscosity, Length, MassFlow, MolarMass, Pressure, Quantity,
     Temperature, TemperatureDifference, Velocity, VolumeFlow,
 };
-pub use steps::{Step, Steps};
-pub use unit::Unit;
-pub use water::{Water, WaterModel};
+pub use units::unit::Unit;

@@ -3,9 +3,10 @@
 
 use rhai::Map;
 use stagna::TraverseLayout;
-use stagna::plot::{Chart, ProfileSeries};
+use stagna::io::plot::{Chart, ProfileSeries};
 
-use super::tables::{Campaign, Tbl, out_path};
+use super::campaigns::Campaign;
+use super::tables::{Tbl, out_path};
 use super::*;
 use crate::catalog::Doc;
 
@@ -70,6 +71,12 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Plot>("Plot");
     r.group("Charts");
     r.engine.register_fn("to_string", |p: &mut Plot| p.describe());
+    profile_charts(r, prefs);
+    trend_charts_and_output(r, prefs);
+}
+
+/// Velocity profiles with a fitted law.
+fn profile_charts(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let p = prefs.clone();
     r.func(
         "profile_chart",
@@ -107,7 +114,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             let grid: Vec<f64> = (0..=100).map(|i| -1.0 + 2.0 * f64::from(i) / 100.0).collect();
             if field(&o, "fit").map(|d| d.as_bool().unwrap_or(false)).unwrap_or(false) {
                 let (yr, u): (Vec<f64>, Vec<f64>) = xs.iter().zip(&ys).map(|(x, v)| (1.0 - x.abs(), *v)).filter(|(a, v)| *a > 0.0 && *v > 0.0).unzip();
-                let f = lib(stagna::analysis::fit_power_law(&yr, &u))?;
+                let f = lib(stagna::section::profile_analysis::fit_power_law(&yr, &u))?;
                 curves.push(ProfileSeries {
                     label: format!("power-law fit n = {:.2} (R² = {:.3})", f.n, f.r_squared),
                     points: grid.iter().map(|&x| (x, f.centreline * (1.0 - x.abs()).max(0.0).powf(1.0 / f.n))).collect(),
@@ -116,9 +123,9 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             if let Some(m) = field(&o, "model") {
                 let model: stagna::ProfileModel = m.clone().try_cast().ok_or_else(|| rt("profile_chart: model must be a ProfileModel"))?;
                 let c = field(&o, "centre").ok_or_else(|| rt("profile_chart: a model needs centre (the centreline velocity)"))?;
-                let uc_si = si_of(c, stagna::dimension::Dimension::VELOCITY, "centre")?;
+                let uc_si = si_of(c, stagna::units::dimension::Dimension::VELOCITY, "centre")?;
                 let uc = match &yu {
-                    Some(u) => lib(stagna::Quantity { si: uc_si, dimension: stagna::dimension::Dimension::VELOCITY, absolute_temperature: false }.value_in(u))?,
+                    Some(u) => lib(stagna::Quantity { si: uc_si, dimension: stagna::units::dimension::Dimension::VELOCITY, absolute_temperature: false }.value_in(u))?,
                     None => uc_si,
                 };
                 curves.push(ProfileSeries { label: model.name(), points: grid.iter().map(|&x| (x, uc * model.velocity_ratio(x.abs()))).collect() });
@@ -127,6 +134,10 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             Ok(Plot::Chart(Chart::Profile { title, x_label: axis_label(&x, &xu), y_label: axis_label(&y, &yu), series, curves }))
         },
     );
+}
+
+/// Flow per traverse with uncertainty bars, the layout drawing, SVG text and saving.
+fn trend_charts_and_output(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let p = prefs.clone();
     r.func(
         "trend_chart",
@@ -190,7 +201,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                 "png" => lib(p.png())?,
                 _ => return Err(rt(format!("{path}: a plot is saved as .svg or .png"))),
             };
-            lib(stagna::table::write_atomically(&target, |f| std::io::Write::write_all(f, &bytes)))
+            lib(stagna::io::table::write_atomically(&target, |f| std::io::Write::write_all(f, &bytes)))
         },
     );
 }

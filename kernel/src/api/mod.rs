@@ -1,24 +1,40 @@
 //! The script API: the library's types as rhai values, registered with their docs.
 //!
-//! Each submodule registers one part of the domain through the [`Registrar`]; the
-//! values that cross between parts (quantities, columns, tables) and the argument
-//! conversions live here.
+//! One file per script package, mirroring the library's stages (quantities; fluids,
+//! gauges, probes; sections, profiles, flows, layouts; steps; tables, expressions,
+//! columns, campaigns; charts; uncertainty). Each has one `register` that registers
+//! its functions through the [`Registrar`] with their docs. The values that cross
+//! between packages (quantities, columns, settings) live here; the argument
+//! conversions every package shares live in `args`.
 
 use std::fmt::Display;
 use std::sync::{Arc, RwLock};
 
 use rhai::{Dynamic, EvalAltResult, Position};
-use stagna::dimension::Dimension;
-use stagna::quantity::format_number;
+use stagna::units::dimension::Dimension;
+use stagna::units::quantity::format_number;
 use stagna::{Quantity, Unit};
 
 use crate::catalog::Registrar;
 
+mod args;
+pub mod campaigns;
 pub mod charts;
-pub mod domain;
-pub mod quantity;
+pub mod columns;
+pub mod expressions;
+pub mod flows;
+pub mod fluids;
+pub mod gauges;
+pub mod layouts;
+pub mod probes;
+pub mod profiles;
+pub mod quantities;
+pub mod sections;
+pub mod steps;
 pub mod tables;
 pub mod uncertainty;
+
+pub use args::*;
 
 /// Result type of host functions.
 pub type Res<T> = Result<T, Box<EvalAltResult>>;
@@ -211,165 +227,23 @@ impl Col {
     }
 }
 
-/// A plain number from an int, a float or a dimensionless quantity.
-pub fn number(d: &Dynamic, what: &str) -> Res<f64> {
-    if let Ok(f) = d.as_float() {
-        return Ok(f);
-    }
-    if let Ok(i) = d.as_int() {
-        return Ok(i as f64);
-    }
-    if let Some(q) = d.clone().try_cast::<Q>()
-        && q.q.dimension == Dimension::NONE
-    {
-        return Ok(q.q.si);
-    }
-    Err(rt(format!("{what}: expected a number, got {}", describe(d))))
-}
-
-/// A whole number ≥ 0.
-pub fn count(d: &Dynamic, what: &str) -> Res<usize> {
-    let v = number(d, what)?;
-    if v >= 0.0 && v.fract() == 0.0 && v < 1e12 {
-        Ok(v as usize)
-    } else {
-        Err(rt(format!("{what}: expected a whole number ≥ 0, got {}", format_number(v))))
-    }
-}
-
-/// How a value looks in an error message.
-pub fn describe(d: &Dynamic) -> String {
-    if let Some(q) = d.clone().try_cast::<Q>() {
-        let dim = q.q.dimension.name().unwrap_or("quantity");
-        return format!("a {dim} ({})", q.show(UnitSystem::Si));
-    }
-    if let Some(c) = d.clone().try_cast::<Col>() {
-        return format!("a column of {} ('{}')", c.dimension.name().unwrap_or("values"), c.name);
-    }
-    match d.type_name() {
-        "i64" | "f64" => format!("the plain number {d} (no unit)"),
-        "string" | "ImmutableString" => format!("the text \"{d}\""),
-        t => format!("a value of type {}", t.rsplit("::").next().unwrap_or(t)),
-    }
-}
-
-fn dim_name(d: Dimension) -> String {
-    d.name().map(str::to_string).unwrap_or_else(|| stagna::quantity::si_symbol(d))
-}
-
-/// The SI value of a quantity argument of the given dimension. A plain number is refused
-/// (unless the dimension is none), with the literal to write instead.
-pub fn si_of(d: &Dynamic, dim: Dimension, what: &str) -> Res<f64> {
-    if let Some(q) = d.clone().try_cast::<Q>() {
-        if q.q.dimension != dim {
-            return Err(rt(format!("{what} must be a {}, got {}", dim_name(dim), describe(d))));
-        }
-        return Ok(q.q.si);
-    }
-    if dim == Dimension::NONE {
-        return number(d, what);
-    }
-    if d.is_int() || d.is_float() {
-        let example = preferred_unit(dim, true, UnitSystem::Si).unwrap_or("unit");
-        return Err(rt(format!(
-            "{what} must be a {} with a unit, got the plain number {d}; write e.g. {d}.{} or qty(\"{d} {example}\")",
-            dim_name(dim),
-            example.replace(['/', '^', '*'], "_")
-        )));
-    }
-    Err(rt(format!("{what} must be a {}, got {}", dim_name(dim), describe(d))))
-}
-
-/// A scalar or a whole column, in SI.
-#[derive(Debug, Clone)]
-pub enum Arg {
-    /// One value for every row.
-    Scalar(f64),
-    /// One value per row.
-    Column(Arc<Vec<f64>>),
-}
-
-impl Arg {
-    /// Value at row i.
-    #[inline]
-    pub fn at(&self, i: usize) -> f64 {
-        match self {
-            Arg::Scalar(v) => *v,
-            Arg::Column(c) => c[i],
-        }
-    }
-    /// Number of rows, if a column.
-    pub fn len(&self) -> Option<usize> {
-        match self {
-            Arg::Scalar(_) => None,
-            Arg::Column(c) => Some(c.len()),
-        }
-    }
-    /// The values as a full column of `n` rows.
-    pub fn expand(&self, n: usize) -> Vec<f64> {
-        match self {
-            Arg::Scalar(v) => vec![*v; n],
-            Arg::Column(c) => c.to_vec(),
-        }
-    }
-}
-
-/// A quantity or a column of the given dimension.
-pub fn arg_of(d: &Dynamic, dim: Dimension, what: &str) -> Res<Arg> {
-    if let Some(c) = d.clone().try_cast::<Col>() {
-        if c.dimension != dim {
-            return Err(rt(format!("{what} must be a {} column, got {}", dim_name(dim), describe(d))));
-        }
-        return Ok(Arg::Column(c.si));
-    }
-    si_of(d, dim, what).map(Arg::Scalar)
-}
-
-/// The common row count of several arguments (at least one must be a column).
-pub fn rows(args: &[(&Arg, &str)]) -> Res<Option<usize>> {
-    let mut n: Option<(usize, &str)> = None;
-    for (a, name) in args {
-        if let Some(len) = a.len() {
-            match n {
-                None => n = Some((len, name)),
-                Some((m, first)) if m != len => {
-                    return Err(rt(format!("columns of different lengths: {first} has {m} rows, {name} has {len}")));
-                }
-                _ => {}
-            }
-        }
-    }
-    Ok(n.map(|(n, _)| n))
-}
-
-/// Gets a field of an options map.
-pub fn field<'a>(m: &'a rhai::Map, key: &str) -> Option<&'a Dynamic> {
-    m.get(key).filter(|d| !d.is_unit())
-}
-
-/// Refuses keys an options map does not know, naming the allowed ones.
-pub fn check_keys(m: &rhai::Map, allowed: &[&str], what: &str) -> Res<()> {
-    for k in m.keys() {
-        if !allowed.contains(&k.as_str()) {
-            return Err(rt(format!("{what}: unknown option '{k}'; options are: {}", allowed.join(", "))));
-        }
-    }
-    Ok(())
-}
-
-/// Text of a string argument.
-pub fn text(d: &Dynamic, what: &str) -> Res<String> {
-    d.clone()
-        .into_immutable_string()
-        .map(|s| s.to_string())
-        .map_err(|_| rt(format!("{what}: expected text, got {}", describe(d))))
-}
-
 /// Registers the whole API.
 pub fn register_all(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
-    quantity::register(r, prefs);
-    domain::register(r, prefs);
+    // The order follows the reduction chain; it is also the order in which overloads of
+    // one name are registered (a later registration of the same signature wins).
+    quantities::register(r, prefs);
+    fluids::register(r, prefs);
+    gauges::register(r, prefs);
+    probes::register(r, prefs);
+    sections::register(r, prefs);
+    profiles::register(r, prefs);
+    flows::register(r, prefs);
+    layouts::register(r, prefs);
+    steps::register(r, prefs);
     tables::register(r, prefs);
+    expressions::register(r, prefs);
+    columns::register(r, prefs);
+    campaigns::register(r, prefs);
     charts::register(r, prefs);
     uncertainty::register(r, prefs);
 }

@@ -2,11 +2,11 @@
 //! velocity), its chart, and a JCGM 101 Monte Carlo check.
 
 use rhai::{Dynamic, Map};
-use stagna::dimension::Dimension as D;
-use stagna::flow_uncertainty::{MethodTerm, TraverseUncertainty, dp_inputs};
-use stagna::monte_carlo::{McOptions, monte_carlo, validate};
-use stagna::plot::Chart;
+use stagna::io::plot::Chart;
+use stagna::uncertainty::flow_models::{MethodTerm, TraverseUncertainty, dp_inputs};
+use stagna::uncertainty::monte_carlo::{McOptions, monte_carlo, validate};
 use stagna::uncertainty::{Correlations, GumResult, Input};
+use stagna::units::dimension::Dimension as D;
 
 use super::charts::Plot;
 use super::tables::Tbl;
@@ -41,6 +41,12 @@ fn dps_of(d: &Dynamic) -> Res<Vec<f64>> {
 pub fn register(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Budget>("Budget");
     r.group("Uncertainty");
+    budgets(r);
+    budget_members(r);
+}
+
+/// Budgets of point velocities and traverses.
+fn budgets(r: &mut Registrar<'_>) {
     r.func(
         "traverse_budget",
         &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); dp_rel (relative u of each Δp), dp_abs (absolute u of each Δp); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
@@ -108,6 +114,10 @@ pub fn register(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
             },
         );
     }
+}
+
+/// What a budget gives: table, chart, Monte Carlo.
+fn budget_members(r: &mut Registrar<'_>) {
     r.method(
         "Budget",
         "table",

@@ -60,7 +60,7 @@ pub fn kernel_json(exe: &Path) -> String {
 /// The logo as PNG bytes.
 pub fn logo_png(size: u32) -> stagna::Result<Vec<u8>> {
     use plotters::prelude::*;
-    stagna::plot::png((size, size), |root| {
+    stagna::io::plot::png((size, size), |root| {
         let e = |m: String| stagna::Error::Inconsistent { context: "logo", message: m };
         let s = f64::from(size);
         root.fill(&RGBColor(18, 62, 110)).map_err(|x| e(x.to_string()))?;
@@ -91,12 +91,12 @@ pub fn install(t: &Target) -> Result<PathBuf, Box<dyn std::error::Error>> {
     let exe = std::env::current_exe()?;
     let dir = data_dir(t)?.join("kernels").join(NAME);
     std::fs::create_dir_all(&dir).map_err(|e| format!("{}: {e}", dir.display()))?;
-    stagna::table::write_atomically(&dir.join("kernel.json"), |f| {
+    stagna::io::table::write_atomically(&dir.join("kernel.json"), |f| {
         std::io::Write::write_all(f, kernel_json(&exe).as_bytes())
     })?;
     for size in [32, 64] {
         let png = logo_png(size)?;
-        stagna::table::write_atomically(&dir.join(format!("logo-{size}x{size}.png")), |f| {
+        stagna::io::table::write_atomically(&dir.join(format!("logo-{size}x{size}.png")), |f| {
             std::io::Write::write_all(f, &png)
         })?;
     }

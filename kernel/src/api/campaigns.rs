@@ -1,0 +1,245 @@
+//! Campaign reductions in scripts: every traverse of a table of readings reduced in
+//! one pass in Rust, and per-point velocities.
+
+use std::collections::BTreeMap;
+
+use rhai::{Array, Dynamic, Map};
+use stagna::units::dimension::Dimension as D;
+use stagna::*;
+
+use super::flows::flow_options;
+use super::tables::{Tbl, with_result_units};
+use super::*;
+use crate::catalog::Doc;
+use stagna::campaign::{CampaignColumns, CampaignResult, CampaignSpec, CampaignUncertainty, RectangularColumns};
+use stagna::uncertainty::flow_models::MethodTerm;
+
+/// A campaign reduction's result.
+#[derive(Debug, Clone)]
+pub struct Campaign {
+    /// The library result.
+    pub res: CampaignResult,
+}
+
+/// Builds a campaign spec from a script map and the table's declared units.
+fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
+    check_keys(
+        o,
+        &[
+            "fluid",
+            "static_pressure",
+            "manometer",
+            "probe",
+            "columns",
+            "averaging",
+            "min_points",
+            "reference",
+            "moisture",
+            "wall_factor",
+            "uncertainty",
+        ],
+        "campaign",
+    )?;
+    let need = |k: &str| field(o, k).ok_or_else(|| rt(format!("campaign: option '{k}' is required")));
+    let fluid: Fluid = need("fluid")?
+        .clone()
+        .try_cast()
+        .ok_or_else(|| rt("campaign: 'fluid' must be a Fluid (e.g. humid_air(0.45))"))?;
+    let manometer: Manometer = need("manometer")?
+        .clone()
+        .try_cast()
+        .ok_or_else(|| rt("campaign: 'manometer' must be a Manometer (e.g. u_tube(mercury()))"))?;
+    let probe: Probe = need("probe")?
+        .clone()
+        .try_cast()
+        .ok_or_else(|| rt("campaign: 'probe' must be a Probe (e.g. pitot_static(0.99))"))?;
+    let static_pressure = Pressure::pa(si_of(need("static_pressure")?, D::PRESSURE, "campaign: static_pressure")?);
+    let columns = campaign_columns(t, need("columns")?)?;
+    let averaging = match field(o, "averaging") {
+        None => Averaging::Arithmetic,
+        Some(d) if d.is_string() && text(d, "averaging")? == "arithmetic" => Averaging::Arithmetic,
+        Some(d) => {
+            Averaging::Integrate { wall_exponent: number(d, "averaging (\"arithmetic\" or a wall exponent m)")? }
+        }
+    };
+    let min_points = field(o, "min_points").map(|d| count(d, "min_points")).transpose()?.unwrap_or(4);
+    let mut fo = Map::new();
+    for k in ["reference", "moisture", "wall_factor"] {
+        if let Some(v) = field(o, k) {
+            fo.insert(k.into(), v.clone());
+        }
+    }
+    let flow = flow_options(&fo)?;
+    let uncertainty = campaign_uncertainty(o)?;
+    Ok(CampaignSpec { columns, fluid, static_pressure, manometer, probe, averaging, min_points, flow, uncertainty })
+}
+
+/// The `columns` map of a campaign spec: which table column holds what, each checked
+/// against the table and its declared unit.
+fn campaign_columns(t: &Tbl, cols: &Dynamic) -> Res<CampaignColumns> {
+    let cols: Map = cols.clone().try_cast().ok_or_else(|| rt("campaign: 'columns' must be a map of column names"))?;
+    check_keys(
+        &cols,
+        &[
+            "traverse",
+            "deflection",
+            "fluid_temperature",
+            "size",
+            "position",
+            "line",
+            "gauge_temperature",
+            "height",
+            "across",
+        ],
+        "campaign columns",
+    )?;
+    let with_unit = |key: &str, dim: D| -> Res<Option<(String, Unit)>> {
+        let Some(d) = field(&cols, key) else { return Ok(None) };
+        let name = text(d, key)?;
+        if t.df.column(&name).is_err() {
+            return Err(rt(format!(
+                "campaign: column '{name}' (for {key}) is not in the table; it has: {}",
+                t.df.get_column_names().iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
+            )));
+        }
+        let u = t.unit_of(&name).ok_or_else(|| {
+            rt(format!(
+                "campaign: column '{name}' (for {key}) has no unit; declare it with t.unit(\"{name}\", \"...\")"
+            ))
+        })?;
+        let unit = lib(Unit::parse(u))?;
+        if Quantity::from_unit(1.0, &unit).dimension != dim {
+            return Err(rt(format!(
+                "campaign: column '{name}' (for {key}) is in {u}, which is not a {}",
+                dim.name().unwrap_or("quantity")
+            )));
+        }
+        Ok(Some((name, unit)))
+    };
+    let req = |key: &str, dim: D| -> Res<(String, Unit)> {
+        with_unit(key, dim)?.ok_or_else(|| rt(format!("campaign: columns.{key} is required")))
+    };
+    let rectangular = match (with_unit("height", D::LENGTH)?, with_unit("across", D::LENGTH)?) {
+        (Some(height), Some(across)) => Some(RectangularColumns { height, across }),
+        (None, None) => None,
+        _ => return Err(rt("campaign: a rectangular conduit needs both columns.height and columns.across")),
+    };
+    Ok(CampaignColumns {
+        traverse: text(
+            field(&cols, "traverse").ok_or_else(|| rt("campaign: columns.traverse is required"))?,
+            "traverse",
+        )?,
+        deflection: req("deflection", D::LENGTH)?,
+        fluid_temperature: req("fluid_temperature", D::TEMPERATURE)?,
+        size: req("size", D::LENGTH)?,
+        rectangular,
+        position: with_unit("position", D::LENGTH)?,
+        line: field(&cols, "line").map(|d| text(d, "line")).transpose()?,
+        gauge_temperature: with_unit("gauge_temperature", D::TEMPERATURE)?,
+    })
+}
+
+/// The optional `uncertainty` map of a campaign spec (relative standard uncertainties of
+/// the inputs, the coverage probability and the layout rule for the method terms).
+fn campaign_uncertainty(o: &Map) -> Res<Option<CampaignUncertainty>> {
+    Ok(match field(o, "uncertainty") {
+        None => None,
+        Some(d) => {
+            let u: Map = d.clone().try_cast().ok_or_else(|| rt("campaign: 'uncertainty' must be a map"))?;
+            check_keys(
+                &u,
+                &["coefficient", "density", "diameter", "dp_rel", "dp_abs", "coverage", "rule"],
+                "campaign uncertainty",
+            )?;
+            let rel = |k: &str, default: f64| -> Res<f64> {
+                field(&u, k).map(|d| number(d, k)).transpose().map(|v| v.unwrap_or(default))
+            };
+            let rule = match field(&u, "rule") {
+                Some(d) => match text(d, "rule")?.as_str() {
+                    "log-linear" => stagna::LayoutRule::LogLinear,
+                    "log-chebyshev" => stagna::LayoutRule::LogChebyshev,
+                    _ => stagna::LayoutRule::EqualArea,
+                },
+                None => stagna::LayoutRule::EqualArea,
+            };
+            Some(CampaignUncertainty {
+                coefficient_rel: rel("coefficient", 0.005)?,
+                density_rel: rel("density", 0.002)?,
+                diameter_rel: rel("diameter", 0.002)?,
+                dp_rel: rel("dp_rel", 0.005)?,
+                dp_abs_pa: field(&u, "dp_abs").map(|d| si_of(d, D::PRESSURE, "dp_abs")).transpose()?.unwrap_or(0.5),
+                terms: MethodTerm::typical(rule),
+                coverage: rel("coverage", 0.95)?,
+            })
+        }
+    })
+}
+
+/// Registers the package.
+pub fn register(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
+    r.engine.register_type_with_name::<Campaign>("Campaign");
+    r.group("Campaign reductions");
+    reductions(r);
+}
+
+/// Reducing campaigns and what a reduction gives.
+fn reductions(r: &mut Registrar<'_>) {
+    r.func(
+        "reduce_campaign",
+        &Doc::new("reduce_campaign(table, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced.")
+            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{coefficient, density, diameter, dp_rel, dp_abs, coverage, rule}")
+            .returns("Campaign (.traverses table, .failures)")
+            .example("let t = table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})\n    .units(#{h: \"mm\", t: \"degC\", d: \"mm\", y: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),\n    columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\", position: \"y\"}};\nprint(reduce_campaign(t, spec).traverses);")
+            .source("velocity-area method, ISO 3966:2008 §9–10; point physics as in Manometer.dp and Probe.velocity"),
+        |t: Tbl, o: Map| -> Res<Campaign> {
+            let spec = campaign_spec(&t, &o)?;
+            Ok(Campaign { res: lib(stagna::campaign::reduce_campaign(&t.df, &spec))? })
+        },
+    );
+    r.func(
+        "point_velocities",
+        &Doc::new("point_velocities(table, spec) -> Table", "The table with dp_pa, density_kg_m3 and velocity_m_s per row, computed in Rust with the same spec as reduce_campaign (stops at the first bad row, naming it).")
+            .example("let t = table_from(#{tr: [\"T1\",\"T1\"], h: [20.0, 30.0], t: [20.0, 20.0], d: [500.0, 500.0]}).units(#{h: \"mm\", t: \"degC\", d: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0), columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\"}};\nprint(point_velocities(t, spec));")
+            .source("as Manometer.dp and Probe.velocity"),
+        |t: Tbl, o: Map| -> Res<Tbl> {
+            let spec = campaign_spec(&t, &o)?;
+            let df = lib(stagna::campaign::point_velocities(&t.df, &spec))?;
+            Ok(with_result_units(df, t.units.clone()))
+        },
+    );
+    r.engine.register_fn("to_string", |c: &mut Campaign| {
+        let mut s =
+            format!("Campaign: {} traverse(s) reduced, {} failed", c.res.traverses.height(), c.res.failures.len());
+        for f in &c.res.failures {
+            s.push_str(&format!("\n  traverse {}: {}", f.traverse, f.message));
+        }
+        s
+    });
+    r.property(
+        "Campaign",
+        "traverses",
+        &Doc::new("campaign.traverses -> Table", "One row per reduced traverse: points, mean velocity, volume and mass flow, mean density, max velocity, flatness, reversed points; reference flows and uncertainty columns when asked. Units are declared.")
+            .example("// see reduce_campaign\nprint(\"see reduce_campaign\");")
+            .source("velocity-area method"),
+        |c: &mut Campaign| with_result_units(c.res.traverses.clone(), BTreeMap::new()),
+    );
+    r.property(
+        "Campaign",
+        "failures",
+        &Doc::new("campaign.failures -> array", "Traverses that could not be reduced: maps #{traverse, message}.")
+            .example("// see reduce_campaign\nprint(\"see reduce_campaign\");")
+            .source("common practice, no source"),
+        |c: &mut Campaign| {
+            c.res
+                .failures
+                .iter()
+                .map(|f| {
+                    let mut m = Map::new();
+                    m.insert("traverse".into(), Dynamic::from(f.traverse.clone()));
+                    m.insert("message".into(), Dynamic::from(f.message.clone()));
+                    Dynamic::from(m)
+                })
+                .collect::<Array>()
+        },
+    );
+}

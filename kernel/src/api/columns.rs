@@ -1,0 +1,270 @@
+//! Whole columns in scripts: a table column as values in SI with its dimension;
+//! arithmetic, unit conversion and statistics run in Rust over the whole column.
+
+use polars::prelude::DataType;
+use rhai::{Array, Dynamic};
+use stagna::*;
+
+use super::tables::{Tbl, perr};
+use super::*;
+use crate::catalog::Doc;
+
+fn col_binop(a: &Col, b: &Col, op: char) -> Res<Col> {
+    if a.si.len() != b.si.len() {
+        return Err(rt(format!(
+            "columns '{}' ({} rows) and '{}' ({} rows) differ in length",
+            a.name,
+            a.si.len(),
+            b.name,
+            b.si.len()
+        )));
+    }
+    let (qa, qb) = (
+        Quantity { si: 1.0, dimension: a.dimension, absolute_temperature: a.absolute_temperature },
+        Quantity { si: 1.0, dimension: b.dimension, absolute_temperature: b.absolute_temperature },
+    );
+    let (dim, abs_t) = match op {
+        '+' => {
+            let q = lib(qa.try_add(qb))?;
+            (q.dimension, q.absolute_temperature)
+        }
+        '-' => {
+            let q = lib(qa.try_sub(qb))?;
+            (q.dimension, q.absolute_temperature)
+        }
+        '*' => ((qa * qb).dimension, false),
+        _ => ((qa / qb).dimension, false),
+    };
+    let v: Vec<f64> =
+        a.si.iter()
+            .zip(b.si.iter())
+            .map(|(x, y)| match op {
+                '+' => x + y,
+                '-' => x - y,
+                '*' => x * y,
+                _ => x / y,
+            })
+            .collect();
+    let unit = if matches!(op, '+' | '-') && abs_t == a.absolute_temperature { a.unit.clone() } else { None };
+    Ok(Col { name: a.name.clone(), si: std::sync::Arc::new(v), dimension: dim, absolute_temperature: abs_t, unit })
+}
+
+fn col_scale(a: &Col, k: f64, q: Option<&Q>, divide: bool, q_first: bool) -> Res<Col> {
+    let (dim, kk) = match q {
+        Some(q) => {
+            if q.q.absolute_temperature || a.absolute_temperature {
+                return Err(rt("cannot multiply or divide absolute temperatures; use differences or .si"));
+            }
+            let unit = Quantity { si: 1.0, dimension: a.dimension, absolute_temperature: false };
+            let d = if divide {
+                if q_first { (q.q / unit).dimension } else { (unit / q.q).dimension }
+            } else {
+                (unit * q.q).dimension
+            };
+            (d, q.q.si)
+        }
+        None => {
+            if a.absolute_temperature {
+                return Err(rt("cannot scale an absolute temperature column"));
+            }
+            (a.dimension, k)
+        }
+    };
+    let v: Vec<f64> =
+        a.si.iter()
+            .map(|x| match (divide, q_first) {
+                (false, _) => x * kk,
+                (true, false) => x / kk,
+                (true, true) => kk / x,
+            })
+            .collect();
+    let unit = if q.is_none() && !divide || q.is_none() && !q_first { a.unit.clone() } else { None };
+    Ok(Col { name: a.name.clone(), si: std::sync::Arc::new(v), dimension: dim, absolute_temperature: false, unit })
+}
+
+fn col_stat(c: &Col, f: impl Fn(&[f64]) -> f64) -> Q {
+    let v = f(&c.si);
+    let q = Quantity { si: v, dimension: c.dimension, absolute_temperature: c.absolute_temperature };
+    Q { q, unit: c.unit.clone() }
+}
+
+/// Registers the package.
+pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.engine.register_type_with_name::<Col>("Column");
+    r.group("Columns");
+    arithmetic(r, prefs);
+    conversions(r, prefs);
+    statistics(r);
+}
+
+/// Showing columns, and arithmetic between columns and quantities.
+fn arithmetic(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    let p = prefs.clone();
+    r.engine.register_fn("to_string", move |c: &mut Col| c.show(super::prefs(&p).system));
+    let p = prefs.clone();
+    r.engine.register_fn("to_debug", move |c: &mut Col| c.show(super::prefs(&p).system));
+    let e = &mut *r.engine;
+    for op in ['+', '-', '*', '/'] {
+        let s = op.to_string();
+        e.register_fn(s.as_str(), move |a: Col, b: Col| col_binop(&a, &b, op));
+        if op == '*' || op == '/' {
+            let div = op == '/';
+            e.register_fn(s.as_str(), move |a: Col, k: f64| col_scale(&a, k, None, div, false));
+            e.register_fn(s.as_str(), move |a: Col, k: i64| col_scale(&a, k as f64, None, div, false));
+            e.register_fn(s.as_str(), move |a: Col, q: Q| col_scale(&a, 1.0, Some(&q), div, false));
+            e.register_fn(s.as_str(), move |k: f64, a: Col| col_scale(&a, k, None, div, true));
+            e.register_fn(s.as_str(), move |q: Q, a: Col| col_scale(&a, 1.0, Some(&q), div, true));
+        } else {
+            e.register_fn(s.as_str(), move |a: Col, q: Q| -> Res<Col> {
+                let n = a.si.len();
+                let b = Col {
+                    name: a.name.clone(),
+                    si: std::sync::Arc::new(vec![q.q.si; n]),
+                    dimension: q.q.dimension,
+                    absolute_temperature: q.q.absolute_temperature,
+                    unit: q.unit.clone(),
+                };
+                col_binop(&a, &b, op)
+            });
+        }
+    }
+}
+
+/// Values in a unit, single rows, length.
+fn conversions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.method(
+        "Column",
+        "to",
+        &Doc::new("column.to(unit) -> Column", "The same column shown (and written) in another compatible unit.")
+            .example("let t = table_from(#{h: [12.5, 14.0]}).unit(\"h\", \"mm\");\nprint(t[\"h\"].to(\"in\"));")
+            .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
+        |c: &mut Col, u: &str| -> Res<Col> {
+            lib(c.values_in(u))?;
+            let mut out = c.clone();
+            out.unit = Some(u.into());
+            Ok(out)
+        },
+    );
+    r.method(
+        "Column",
+        "values",
+        &Doc::new(
+            "column.values() -> array",
+            "The values as numbers in the column's display unit (for small columns; domain work stays in columns).",
+        )
+        .example("print(table_from(#{h: [1.0, 2.0]}).unit(\"h\", \"mm\")[\"h\"].values());")
+        .source("common practice, no source"),
+        {
+            let p = prefs.clone();
+            move |c: &mut Col| -> Res<Array> {
+                let v = match c.out_unit(super::prefs(&p).system) {
+                    Some(u) => lib(c.values_in(&u))?,
+                    None => c.si.to_vec(),
+                };
+                Ok(v.into_iter().map(Dynamic::from).collect())
+            }
+        },
+    );
+    r.method(
+        "Column",
+        "at",
+        &Doc::new(
+            "column.at(row) -> Quantity",
+            "One value (rows counted from 0) as a quantity, for worked steps of a single reading.",
+        )
+        .example("let t = table_from(#{h: [41.5, 42.0]}).unit(\"h\", \"mm\");\nprint(t[\"h\"].at(0));")
+        .source("common practice, no source"),
+        |c: &mut Col, i: i64| -> Res<Q> {
+            let v = *c
+                .si
+                .get(usize::try_from(i).unwrap_or(usize::MAX))
+                .ok_or_else(|| rt(format!("row {i} of a column of {} rows", c.si.len())))?;
+            Ok(Q {
+                q: Quantity { si: v, dimension: c.dimension, absolute_temperature: c.absolute_temperature },
+                unit: c.unit.clone(),
+            })
+        },
+    );
+    r.property(
+        "Column",
+        "len",
+        &Doc::new("column.len -> integer", "Number of rows.")
+            .example("print(table_from(#{h: [1.0, 2.0]})[\"h\"].len);")
+            .source("common practice, no source"),
+        |c: &mut Col| c.si.len() as i64,
+    );
+}
+
+/// Statistics of a column and distinct values of a table column.
+fn statistics(r: &mut Registrar<'_>) {
+    type Stat = fn(&[f64]) -> f64;
+    let stats: [(&str, &str, Stat); 5] = [
+        ("mean", "Arithmetic mean, as a quantity.", |v| v.iter().sum::<f64>() / v.len() as f64),
+        ("sum", "Sum, as a quantity (e.g. the flows of several branches).", |v| v.iter().sum::<f64>()),
+        ("min", "Smallest value, as a quantity.", |v| v.iter().copied().fold(f64::INFINITY, f64::min)),
+        ("max", "Largest value, as a quantity.", |v| v.iter().copied().fold(f64::NEG_INFINITY, f64::max)),
+        ("std", "Sample standard deviation (n − 1), as a quantity.", |v| {
+            let n = v.len() as f64;
+            let m = v.iter().sum::<f64>() / n;
+            (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0)).sqrt()
+        }),
+    ];
+    for (name, summary, f) in stats {
+        r.method(
+            "Column",
+            name,
+            &Doc::new(&format!("column.{name}() -> Quantity"), summary)
+                .example(&format!(
+                    "let t = table_from(#{{v: [1.0, 2.0, 4.0]}}).unit(\"v\", \"m/s\");\nprint(t[\"v\"].{name}());"
+                ))
+                .source("common practice, no source"),
+            move |c: &mut Col| -> Res<Q> {
+                if c.si.is_empty() {
+                    return Err(rt(format!("{name} of an empty column")));
+                }
+                let mut q = col_stat(c, f);
+                if name == "std" || name == "sum" {
+                    q.q.absolute_temperature = false;
+                    if c.absolute_temperature {
+                        q.unit = None;
+                    }
+                }
+                Ok(q)
+            },
+        );
+    }
+    r.method(
+        "Column",
+        "sqrt_mean",
+        &Doc::new("column.sqrt_mean(unit) -> number", "Mean of the square roots of the values expressed in `unit` (the average √Δp of US EPA Method 2, with Δp in mm H₂O or in. H₂O). Negative values are refused with their row.")
+            .example("let t = table_from(#{dp: [100.0, 121.0]}).unit(\"dp\", \"Pa\");\nprint(t[\"dp\"].sqrt_mean(\"mmH2O\"));")
+            .source("US EPA Method 2 (40 CFR 60 App. A-1) Eq. 2-7"),
+        |c: &mut Col, unit: &str| -> Res<f64> { lib(stagna::methods::us_epa::mean_sqrt_dp(&lib(c.values_in(unit))?)) },
+    );
+    r.method(
+        "Table",
+        "distinct",
+        &Doc::new(
+            "t.distinct(column) -> array",
+            "The distinct values of a column as text, in first-seen order (e.g. the traverses of a campaign).",
+        )
+        .example("print(table_from(#{tr: [\"a\", \"a\", \"b\"]}).distinct(\"tr\"));")
+        .source("common practice, no source"),
+        |t: &mut Tbl, c: &str| -> Res<Array> {
+            let s =
+                t.df.column(c)
+                    .map_err(|_| rt(format!("column '{c}': no such column")))?
+                    .cast(&DataType::String)
+                    .map_err(perr)?;
+            let ca = s.str().map_err(perr)?;
+            let mut seen: Vec<String> = Vec::new();
+            for v in ca.iter() {
+                let v = v.unwrap_or("").to_string();
+                if !seen.contains(&v) {
+                    seen.push(v);
+                }
+            }
+            Ok(seen.into_iter().map(Dynamic::from).collect())
+        },
+    );
+}

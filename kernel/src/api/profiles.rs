@@ -1,0 +1,162 @@
+//! Velocity profiles in scripts: developed-flow models, fits through measured points
+//! and the single-point method.
+
+use rhai::{Array, Dynamic, Map};
+use stagna::section::profile::{KAPPA, StraightLengths};
+use stagna::units::dimension::Dimension as D;
+use stagna::*;
+
+use super::fluids::State;
+use super::*;
+use crate::catalog::Doc;
+
+/// Registers the package.
+pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.engine
+        .register_type_with_name::<ProfileModel>("ProfileModel")
+        .register_type_with_name::<SinglePointResult>("SinglePoint");
+    r.group("Conduits, profiles and flows");
+    models(r);
+    fits_and_single_point(r, prefs);
+}
+
+/// Power-law and developed-flow profile models.
+fn models(r: &mut Registrar<'_>) {
+    r.func(
+        "power_law",
+        &Doc::new("power_law(n) -> ProfileModel", "The power-law profile u/U_c = (y/R)^(1/n).")
+            .param("n", "exponent, 4 to 12 typical (7 is the classic 1/7 law)")
+            .example("let m = power_law(7);\nprint(m.mean_to_centreline);")
+            .source("U/U_c = 2n²/((n+1)(2n+1)); Schlichting, Boundary-Layer Theory"),
+        |n: Dynamic| -> Res<ProfileModel> { lib(ProfileModel::power_law(number(&n, "n")?)) },
+    );
+    r.func(
+        "profile_for",
+        &Doc::new("profile_for(reynolds, relative_roughness, family) -> ProfileModel", "The developed-flow profile for a Reynolds number: family \"power-law\" (n = 1/√f) or \"log-law\" (velocity-defect law, κ = 0.41); laminar below Re 2300.")
+            .example("print(profile_for(2e5, 1e-4, \"log-law\"));")
+            .source("friction factor by Colebrook 1939; n = 1/√f after Zagarola & Smits 1998; log law κ = 0.41"),
+        |re: Dynamic, rr: Dynamic, fam: &str| -> Res<ProfileModel> {
+            let family = profile_family(fam)?;
+            lib(ProfileModel::for_flow(family, number(&re, "Reynolds number")?, number(&rr, "relative roughness")?))
+        },
+    );
+    r.engine.register_fn("to_string", |m: &mut ProfileModel| format!("ProfileModel: {}", m.name()));
+    r.property(
+        "ProfileModel",
+        "mean_to_centreline",
+        &Doc::new("model.mean_to_centreline -> number", "Ratio of mean to centreline velocity U/U_c.")
+            .example("print(power_law(7).mean_to_centreline);")
+            .source("integral of the profile over the circle"),
+        |m: &mut ProfileModel| m.mean_to_centreline(),
+    );
+    r.method(
+        "ProfileModel",
+        "ratio",
+        &Doc::new("model.ratio(r_over_R) -> number", "u/U_c at a radius ratio r/R.")
+            .example("print(power_law(7).ratio(0.5));")
+            .source("the model's law"),
+        |m: &mut ProfileModel, x: Dynamic| -> Res<f64> { Ok(m.velocity_ratio(number(&x, "r/R")?)) },
+    );
+}
+
+/// Fits through measured points and the single-point method.
+fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.func(
+        "fit_power_law",
+        &Doc::new("fit_power_law(r_over_R, velocity) -> map", "Least-squares power law u = U_c (1 − |r/R|)^(1/n) through measured points: #{n, centreline, r_squared}. Points at the wall or with u ≤ 0 are left out.")
+            .param("r_over_R", "signed radius ratio of each point (column or array of numbers)")
+            .param("velocity", "velocity column (or array of velocities)")
+            .example("let t = table_from(#{r: [-0.9, -0.5, 0.0, 0.5, 0.9], v: [8.6, 10.6, 12.0, 10.6, 8.6]}).unit(\"v\", \"m/s\");\nprint(fit_power_law(t[\"r\"], t[\"v\"]));")
+            .source("linear regression of ln u on ln(y/R) (common practice, no source)"),
+        |x: Dynamic, v: Dynamic| -> Res<Map> {
+            let xs: Vec<f64> = match x.clone().try_cast::<Col>() {
+                Some(c) => c.si.to_vec(),
+                None => x.clone().try_cast::<Array>().ok_or_else(|| rt("fit_power_law: r_over_R must be a column or an array"))?.iter().map(|d| number(d, "r/R")).collect::<Res<_>>()?,
+            };
+            let vs: Vec<f64> = match v.clone().try_cast::<Col>() {
+                Some(c) if c.dimension == D::VELOCITY => c.si.to_vec(),
+                Some(_) => return Err(rt("fit_power_law: velocity must be a velocity column (declare its unit)")),
+                None => v.clone().try_cast::<Array>().ok_or_else(|| rt("fit_power_law: velocity must be a column or an array"))?.iter().map(|d| si_of(d, D::VELOCITY, "velocity")).collect::<Res<_>>()?,
+            };
+            if xs.len() != vs.len() {
+                return Err(rt(format!("fit_power_law: {} positions but {} velocities", xs.len(), vs.len())));
+            }
+            let (yr, u): (Vec<f64>, Vec<f64>) = xs.iter().zip(&vs).map(|(x, v)| (1.0 - x.abs(), *v)).filter(|(y, v)| *y > 0.0 && *v > 0.0).unzip();
+            let f = lib(stagna::section::profile_analysis::fit_power_law(&yr, &u))?;
+            let mut m = Map::new();
+            m.insert("n".into(), Dynamic::from(f.n));
+            m.insert("centreline".into(), Dynamic::from(Q::si(f.centreline, D::VELOCITY)));
+            m.insert("r_squared".into(), Dynamic::from(f.r_squared));
+            Ok(m)
+        },
+    );
+    r.func(
+        "single_point",
+        &Doc::new("single_point(centreline_velocity, state, conduit, options) -> SinglePoint", "Mean velocity and flow from one centreline velocity, iterating the Reynolds number with the profile model. Assumes fully developed, swirl-free flow in a straight round pipe; options: family (\"power-law\" default or \"log-law\"), upstream_D and downstream_D (straight lengths, for warnings).")
+            .example("let w = water().state(350.kPa, 11.degC);\nlet sp = single_point(1.62.m_s, w, round_duct(400.mm).roughness(0.05.mm), #{upstream_D: 30, downstream_D: 8});\nprint(sp);")
+            .source("ISO 3966:2008 / ISO 7145:1982 (single point at the centre); profile models as in profile_for"),
+        |v: Dynamic, s: State, c: Conduit, o: Map| -> Res<SinglePointResult> {
+            check_keys(&o, &["family", "upstream_D", "downstream_D"], "single_point")?;
+            let family = match field(&o, "family") {
+                Some(f) => profile_family(&text(f, "family")?)?,
+                None => ProfileFamily::PowerLawFromFriction,
+            };
+            let straight = match (field(&o, "upstream_D"), field(&o, "downstream_D")) {
+                (Some(u), Some(d)) => Some(StraightLengths {
+                    upstream_diameters: number(u, "upstream_D")?,
+                    downstream_diameters: number(d, "downstream_D")?,
+                }),
+                (None, None) => None,
+                _ => return Err(rt("single_point: give both upstream_D and downstream_D")),
+            };
+            lib(single_point(Velocity::m_s(si_of(&v, D::VELOCITY, "centreline velocity")?), &s.s, &c, family, straight))
+        },
+    );
+    let p = prefs.clone();
+    r.engine.register_fn("to_string", move |s: &mut SinglePointResult| {
+        let mut out = format!(
+            "SinglePoint ({}): U/U_c = {:.4}, mean {}, Q = {}, Re = {:.3e}",
+            s.model.name(),
+            s.ratio,
+            show_q(s.mean_velocity.si(), D::VELOCITY, &p),
+            show_q(s.volume_flow.si(), D::VOLUME_FLOW, &p),
+            s.reynolds
+        );
+        for w in &s.warnings {
+            out.push_str(&format!("\n  warning: {}", w.message));
+        }
+        out
+    });
+    r.property(
+        "SinglePoint",
+        "mean_velocity",
+        &Doc::new("result.mean_velocity -> Quantity", "Mean velocity.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{}).mean_velocity);").source("single-point method"),
+        |s: &mut SinglePointResult| Q::si(s.mean_velocity.si(), D::VELOCITY),
+    );
+    r.property(
+        "SinglePoint",
+        "volume_flow",
+        &Doc::new("result.volume_flow -> Quantity", "Volume flow at the measuring conditions.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{}).volume_flow.to(\"L/s\"));").source("Q = U A"),
+        |s: &mut SinglePointResult| Q::si(s.volume_flow.si(), D::VOLUME_FLOW),
+    );
+    r.property(
+        "SinglePoint",
+        "ratio",
+        &Doc::new("result.ratio -> number", "U/U_c used.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{}).ratio);").source("profile model"),
+        |s: &mut SinglePointResult| s.ratio,
+    );
+    r.property(
+        "SinglePoint",
+        "warnings",
+        &Doc::new("result.warnings -> array", "Remarks (straight lengths, regime).").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{upstream_D: 10, downstream_D: 3}).warnings);").source("common practice, no source (25 D / 5 D)"),
+        |s: &mut SinglePointResult| warnings_of(&s.warnings),
+    );
+}
+
+fn profile_family(s: &str) -> Res<ProfileFamily> {
+    match s.to_ascii_lowercase().replace(['_', ' '], "-").as_str() {
+        "power-law" | "power" => Ok(ProfileFamily::PowerLawFromFriction),
+        "log-law" | "log" => Ok(ProfileFamily::LogLaw { kappa: KAPPA }),
+        _ => Err(rt(format!("profile family: \"power-law\" or \"log-law\", got \"{s}\""))),
+    }
+}

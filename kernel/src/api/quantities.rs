@@ -1,0 +1,333 @@
+//! Quantities in scripts: unit suffixes on numbers (`78.mm`, `20.degC`, `1.2.kPa`),
+//! `qty("3 inH2O@60F")`, arithmetic with dimension checks, conversion, comparison and
+//! the session's display units.
+
+use rhai::Dynamic;
+use stagna::Quantity;
+use stagna::units::unit;
+
+use super::*;
+use crate::catalog::Doc;
+
+/// Identifier spellings of units for the number suffixes, with the unit string each
+/// stands for (units whose names are not identifiers, or compounds).
+pub const SUFFIX_ALIASES: &[(&str, &str)] = &[
+    ("inch", "in"),
+    ("inH2O_60F", "inH2O@60F"),
+    ("inH2O_68F", "inH2O@68F"),
+    ("inH2O_4C", "inH2O@4C"),
+    ("mmH2O_4C", "mmH2O@4C"),
+    ("mmH2O_20C", "mmH2O@20C"),
+    ("mmHg_0C", "mmHg@0C"),
+    ("inHg_32F", "inHg@32F"),
+    ("inHg_60F", "inHg@60F"),
+    ("m_s", "m/s"),
+    ("ft_s", "ft/s"),
+    ("ft_min", "ft/min"),
+    ("m2", "m^2"),
+    ("ft2", "ft^2"),
+    ("m3_s", "m^3/s"),
+    ("m3_h", "m^3/h"),
+    ("L_s", "L/s"),
+    ("L_min", "L/min"),
+    ("kg_s", "kg/s"),
+    ("kg_h", "kg/h"),
+    ("lb_h", "lb/h"),
+    ("kg_m3", "kg/m^3"),
+    ("lb_ft3", "lb/ft^3"),
+    ("g_mol", "g/mol"),
+    ("kg_kmol", "kg/kmol"),
+    ("Pa_s", "Pa*s"),
+    ("m_s2", "m/s^2"),
+];
+
+fn is_ident(s: &str) -> bool {
+    let mut c = s.chars();
+    matches!(c.next(), Some(ch) if ch.is_ascii_alphabetic() || ch == '_')
+        && c.all(|ch| ch.is_ascii_alphanumeric() || ch == '_')
+        && !matches!(s, "in" | "fn" | "if" | "do" | "let" | "for" | "const")
+}
+
+/// Every suffix name with the unit string it means.
+pub fn suffixes() -> Vec<(String, String)> {
+    let mut v: Vec<(String, String)> =
+        unit::unit_names().into_iter().filter(|n| is_ident(n)).map(|n| (n.to_string(), n.to_string())).collect();
+    v.extend(SUFFIX_ALIASES.iter().map(|(a, u)| (a.to_string(), u.to_string())));
+    v.sort();
+    v.dedup();
+    v
+}
+
+fn unit_source(u: &str) -> String {
+    let base = u.split(['/', '*', '^', '@']).next().unwrap_or(u);
+    unit::UNITS
+        .iter()
+        .find(|d| d.names.contains(&u) || d.names.contains(&base))
+        .map(|d| d.source.to_string())
+        .unwrap_or_else(|| "SI (BIPM SI Brochure, 9th ed.); temperature scales by definition".into())
+}
+
+fn same_dim(a: &Q, b: &Q, op: &str) -> Res<()> {
+    if a.q.dimension != b.q.dimension {
+        return Err(rt(format!(
+            "cannot {op} {} and {}: different dimensions",
+            describe(&Dynamic::from(a.clone())),
+            describe(&Dynamic::from(b.clone()))
+        )));
+    }
+    Ok(())
+}
+
+fn keep_unit(a: &Q, b: &Q) -> Option<std::sync::Arc<str>> {
+    a.unit.clone().or_else(|| b.unit.clone())
+}
+
+fn scale(a: &Q, k: f64) -> Q {
+    let mut q = a.q;
+    if q.absolute_temperature {
+        q.absolute_temperature = false; // a scaled absolute temperature is not a temperature
+    }
+    q.si *= k;
+    Q { q, unit: if a.q.absolute_temperature { None } else { a.unit.clone() } }
+}
+
+fn cmp(a: &Q, b: &Q) -> Res<std::cmp::Ordering> {
+    same_dim(a, b, "compare")?;
+    a.q.try_cmp(&b.q).map_err(rt)?.ok_or_else(|| rt("cannot compare NaN"))
+}
+
+/// Registers quantities.
+pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.engine.register_type_with_name::<Q>("Quantity");
+    r.group("Quantities and units");
+    units_and_qty(r);
+    display(r, prefs);
+    members(r);
+    arithmetic(r);
+}
+
+/// Unit suffixes on numbers and `qty`.
+fn units_and_qty(r: &mut Registrar<'_>) {
+    for (name, u) in suffixes() {
+        let Ok(one) = Quantity::new(1.0, &u) else { continue };
+        let uu: std::sync::Arc<str> = u.as_str().into();
+        let (u1, u2) = (uu.clone(), uu.clone());
+        r.engine.register_get(&name, move |v: &mut f64| -> Res<Q> {
+            Ok(Q { q: lib(Quantity::new(*v, &u1))?, unit: Some(u1.clone()) })
+        });
+        r.engine.register_get(&name, move |v: &mut i64| -> Res<Q> {
+            Ok(Q { q: lib(Quantity::new(*v as f64, &u2))?, unit: Some(u2.clone()) })
+        });
+        let dim = one.dimension.name().unwrap_or("quantity").to_string();
+        let what = if one.absolute_temperature { "absolute temperature".to_string() } else { dim };
+        r.unit(
+            &name,
+            &Doc::new(&format!("NUMBER.{name} -> Quantity"), &format!("A {what} in {}.", pretty_unit(&u)))
+                .param("NUMBER", "an integer or decimal literal, a variable or a bracketed expression")
+                .returns(&format!("Quantity shown in {}", pretty_unit(&u)))
+                .example(&format!("let x = 2.{name};\nprint(x);"))
+                .source(&unit_source(&u)),
+        );
+    }
+
+    r.func(
+        "qty",
+        &Doc::new("qty(text) -> Quantity", "A quantity from text: a number and any unit the unit parser reads, including compounds and reference conditions.")
+            .param("text", "e.g. \"3 inH2O@60F\", \"1.2 kPa\", \"20 °C\", \"850 m3/h\"")
+            .returns("Quantity shown in the unit written")
+            .example("let dp = qty(\"0.45 inH2O@60F\");\nprint(dp.to(\"Pa\"));")
+            .source("unit factors: NIST SP 811 (2008) Appendix B.8; conventional water and mercury columns at the stated temperature"),
+        |s: &str| -> Res<Q> {
+            let q = lib(Quantity::parse(s))?;
+            let unit = s.trim().trim_start_matches(|c: char| c.is_ascii_digit() || "+-.eE".contains(c)).trim();
+            Ok(Q { q, unit: if unit.is_empty() { None } else { Some(unit.into()) } })
+        },
+    );
+    r.func("qty", &Doc::new("qty(value, unit) -> Quantity", ""), |v: f64, u: &str| -> Res<Q> {
+        lib(Q::with_unit(v, u))
+    });
+    r.func("qty", &Doc::new("qty(value, unit) -> Quantity", ""), |v: i64, u: &str| -> Res<Q> {
+        lib(Q::with_unit(v as f64, u))
+    });
+}
+
+/// Display units and conversion.
+fn display(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    let p = prefs.clone();
+    r.func(
+        "display_units",
+        &Doc::new("display_units(system)", "Sets how quantities and columns without an explicit unit are shown in this session: \"SI\" (Pa, m, m/s, m³/s, kg/s, kg/m³, °C) or \"US\" (inH₂O at 60 °F, ft, ft/s, cfm, lb/h, lb/ft³, °F). Values are stored in SI either way.")
+            .param("system", "\"SI\" or \"US\"")
+            .example("display_units(\"US\");\nprint(100.Pa);\ndisplay_units(\"SI\");")
+            .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
+        move |s: &str| -> Res<()> {
+            let system = match s.to_ascii_uppercase().as_str() {
+                "SI" => UnitSystem::Si,
+                "US" | "USC" => UnitSystem::Us,
+                _ => return Err(rt(format!("display_units: \"SI\" or \"US\", got \"{s}\""))),
+            };
+            match p.write() {
+                Ok(mut g) => g.system = system,
+                Err(e) => e.into_inner().system = system,
+            }
+            Ok(())
+        },
+    );
+
+    let p = prefs.clone();
+    r.engine.register_fn("to_string", move |q: &mut Q| q.show(super::prefs(&p).system));
+    let p = prefs.clone();
+    r.engine.register_fn("to_debug", move |q: &mut Q| q.show(super::prefs(&p).system));
+
+    r.method(
+        "Quantity",
+        "to",
+        &Doc::new("q.to(unit) -> Quantity", "The same quantity shown in another unit of the same dimension.")
+            .param("unit", "any compatible unit, e.g. \"mm\", \"inH2O@60F\", \"m3/h\"")
+            .example("let d = 600.mm;\nprint(d.to(\"in\"));")
+            .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
+        |q: &mut Q, u: &str| -> Res<Q> {
+            lib(q.q.value_in(u))?;
+            Ok(Q { q: q.q, unit: Some(u.into()) })
+        },
+    );
+    r.method(
+        "Quantity",
+        "value_in",
+        &Doc::new("q.value_in(unit) -> number", "The number of `unit`s in the quantity.")
+            .param("unit", "any compatible unit")
+            .example("print(1.2.kPa.value_in(\"inH2O@60F\"));")
+            .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
+        |q: &mut Q, u: &str| -> Res<f64> { lib(q.q.value_in(u)) },
+    );
+}
+
+/// What a quantity gives.
+fn members(r: &mut Registrar<'_>) {
+    r.property(
+        "Quantity",
+        "si",
+        &Doc::new("q.si -> number", "The value in coherent SI units (Pa, m, m/s, K, ...).")
+            .example("print(20.degC.si);")
+            .source("SI (BIPM SI Brochure, 9th ed.)"),
+        |q: &mut Q| q.q.si,
+    );
+    r.property(
+        "Quantity",
+        "value",
+        &Doc::new("q.value -> number", "The number shown, in the quantity's display unit (SI if it has none).")
+            .example("print(78.mm.value);")
+            .source("common practice, no source"),
+        |q: &mut Q| q.unit.as_deref().and_then(|u| q.q.value_in(u).ok()).unwrap_or(q.q.si),
+    );
+    r.property(
+        "Quantity",
+        "unit",
+        &Doc::new("q.unit -> string", "The display unit (empty when it follows the session).")
+            .example("print(78.mm.unit);")
+            .source("common practice, no source"),
+        |q: &mut Q| q.unit.as_deref().unwrap_or("").to_string(),
+    );
+    r.property(
+        "Quantity",
+        "dimension",
+        &Doc::new("q.dimension -> string", "The dimension's name (pressure, length, velocity, ...).")
+            .example("print(3.m_s.dimension);")
+            .source("ISO 80000-1 quantity dimensions"),
+        |q: &mut Q| {
+            q.q.dimension
+                .name()
+                .map(str::to_string)
+                .unwrap_or_else(|| stagna::units::quantity::si_symbol(q.q.dimension))
+        },
+    );
+    r.method(
+        "Quantity",
+        "sqrt",
+        &Doc::new("q.sqrt() -> Quantity", "Square root; the dimension's exponents must be even.")
+            .example("print((4.m2).sqrt());")
+            .source("ISO 80000-1"),
+        |q: &mut Q| -> Res<Q> { Ok(Q { q: lib(q.q.sqrt())?, unit: None }) },
+    );
+    r.method(
+        "Quantity",
+        "abs",
+        &Doc::new("q.abs() -> Quantity", "Magnitude (for differences and signed velocities).")
+            .example("print((-3.Pa).abs());")
+            .source("common practice, no source"),
+        |q: &mut Q| -> Res<Q> {
+            if q.q.absolute_temperature {
+                return Err(rt("abs of an absolute temperature"));
+            }
+            let mut out = q.clone();
+            out.q.si = out.q.si.abs();
+            Ok(out)
+        },
+    );
+}
+
+/// Arithmetic and comparison with dimension checks.
+fn arithmetic(r: &mut Registrar<'_>) {
+    // Arithmetic with dimension checks.
+    let e = &mut *r.engine;
+    e.register_fn("+", |a: Q, b: Q| -> Res<Q> {
+        same_dim(&a, &b, "add")?;
+        let u = keep_unit(&a, &b);
+        Ok(Q { q: lib(a.q.try_add(b.q))?, unit: u })
+    });
+    e.register_fn("-", |a: Q, b: Q| -> Res<Q> {
+        same_dim(&a, &b, "subtract")?;
+        let q = lib(a.q.try_sub(b.q))?;
+        let u = if q.absolute_temperature == a.q.absolute_temperature { keep_unit(&a, &b) } else { None };
+        Ok(Q { q, unit: u })
+    });
+    e.register_fn("-", |a: Q| -> Res<Q> {
+        if a.q.absolute_temperature {
+            return Err(rt("cannot negate an absolute temperature"));
+        }
+        Ok(Q { q: -a.q, unit: a.unit })
+    });
+    e.register_fn("*", |a: Q, b: Q| -> Res<Q> {
+        if a.q.absolute_temperature || b.q.absolute_temperature {
+            return Err(rt("cannot multiply an absolute temperature; use .si for kelvins"));
+        }
+        let q = a.q * b.q;
+        Ok(Q { q, unit: None })
+    });
+    e.register_fn("/", |a: Q, b: Q| -> Res<Q> {
+        if a.q.absolute_temperature || b.q.absolute_temperature {
+            return Err(rt("cannot divide an absolute temperature; use .si for kelvins"));
+        }
+        Ok(Q { q: a.q / b.q, unit: None })
+    });
+    e.register_fn("*", |a: Q, k: f64| scale(&a, k));
+    e.register_fn("*", |a: Q, k: i64| scale(&a, k as f64));
+    e.register_fn("*", |k: f64, a: Q| scale(&a, k));
+    e.register_fn("*", |k: i64, a: Q| scale(&a, k as f64));
+    e.register_fn("/", |a: Q, k: f64| scale(&a, 1.0 / k));
+    e.register_fn("/", |a: Q, k: i64| scale(&a, 1.0 / k as f64));
+    e.register_fn("/", |k: f64, a: Q| Q { q: Quantity::number(k) / a.q, unit: None });
+    e.register_fn("/", |k: i64, a: Q| Q { q: Quantity::number(k as f64) / a.q, unit: None });
+    e.register_fn("**", |a: Q, n: i64| -> Res<Q> {
+        if !(-8..=8).contains(&n) {
+            return Err(rt("quantity powers from -8 to 8"));
+        }
+        Ok(Q { q: a.q.powi(n as i8), unit: None })
+    });
+    e.register_fn("==", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_eq()));
+    e.register_fn("!=", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_ne()));
+    e.register_fn("<", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_lt()));
+    e.register_fn("<=", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_le()));
+    e.register_fn(">", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_gt()));
+    e.register_fn(">=", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_ge()));
+    for op in ["+", "-"] {
+        let o = op.to_string();
+        e.register_fn(op, move |a: Q, b: f64| -> Res<Q> {
+            Err(rt(format!(
+                "cannot {} a plain number ({b}) and {}; give the number a unit",
+                if o == "+" { "add" } else { "subtract" },
+                describe(&Dynamic::from(a))
+            )))
+        });
+    }
+}

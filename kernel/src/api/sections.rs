@@ -1,0 +1,104 @@
+//! Measuring sections in scripts: round and rectangular conduits, area, hydraulic
+//! diameter, Reynolds number and friction factor.
+
+use rhai::{Array, Dynamic};
+use stagna::units::dimension::Dimension as D;
+use stagna::*;
+
+use super::fluids::State;
+use super::*;
+use crate::catalog::Doc;
+
+/// Registers the package.
+pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.engine.register_type_with_name::<Conduit>("Conduit");
+    r.group("Conduits, profiles and flows");
+    conduits(r, prefs);
+}
+
+/// Round and rectangular conduits and what they give.
+fn conduits(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.func(
+        "round_duct",
+        &Doc::new(
+            "round_duct(diameter) -> Conduit",
+            "A circular conduit; pass an array of measured diameters to use their mean.",
+        )
+        .param("diameter", "inside diameter, or an array of diameters measured across different angles")
+        .example("let d = round_duct([600.mm, 602.mm, 599.mm]);\nprint(d.area);")
+        .source("A = πD²/4"),
+        |d: Dynamic| -> Res<Conduit> {
+            if let Some(a) = d.clone().try_cast::<Array>() {
+                let ds: Res<Vec<Length>> = a.iter().map(|x| length(x, "diameter")).collect();
+                return lib(Conduit::circular_from_diameters(&ds?));
+            }
+            lib(Conduit::circular(length(&d, "diameter")?))
+        },
+    );
+    r.func(
+        "rect_duct",
+        &Doc::new(
+            "rect_duct(width, height) -> Conduit",
+            "A rectangular conduit; the width is the side with the ports.",
+        )
+        .example("print(rect_duct(1200.mm, 800.mm).hydraulic_diameter);")
+        .source("A = W H; D_h = 4A/P"),
+        |w: Dynamic, h: Dynamic| -> Res<Conduit> {
+            lib(Conduit::rectangular(length(&w, "width")?, length(&h, "height")?))
+        },
+    );
+    r.method(
+        "Conduit",
+        "roughness",
+        &Doc::new(
+            "conduit.roughness(epsilon) -> Conduit",
+            "The conduit with an equivalent sand-grain roughness (for friction and profile models).",
+        )
+        .example("print(round_duct(400.mm).roughness(0.05.mm));")
+        .source("equivalent roughness: Moody 1944 tables (values are the user's)"),
+        |c: &mut Conduit, eps: Dynamic| -> Res<Conduit> { lib(c.clone().with_roughness(length(&eps, "roughness")?)) },
+    );
+    let p = prefs.clone();
+    r.engine.register_fn("to_string", move |c: &mut Conduit| {
+        format!("Conduit: {c}, A = {}", show_q(c.area().si(), D::AREA, &p))
+    });
+    r.property(
+        "Conduit",
+        "area",
+        &Doc::new("conduit.area -> Quantity", "Cross-section area.")
+            .example("print(round_duct(600.mm).area);")
+            .source("geometry"),
+        |c: &mut Conduit| Q::si(c.area().si(), D::AREA),
+    );
+    r.property(
+        "Conduit",
+        "hydraulic_diameter",
+        &Doc::new("conduit.hydraulic_diameter -> Quantity", "4A/P (the diameter itself for a circle).")
+            .example("print(rect_duct(1.m, 0.5.m).hydraulic_diameter);")
+            .source("D_h = 4A/P"),
+        |c: &mut Conduit| Q { q: c.hydraulic_diameter().into(), unit: Some("mm".into()) },
+    );
+    r.method(
+        "Conduit",
+        "reynolds",
+        &Doc::new("conduit.reynolds(velocity, state) -> number", "Reynolds number ρVD_h/μ of a mean velocity.")
+            .example("print(round_duct(400.mm).reynolds(1.5.m_s, water().state(300.kPa, 12.degC)));")
+            .source("Re = ρ V D_h / μ"),
+        |c: &mut Conduit, v: Dynamic, s: State| -> Res<f64> {
+            lib(c.reynolds(Velocity::m_s(si_of(&v, D::VELOCITY, "velocity")?), &s.s))
+        },
+    );
+    r.method(
+        "Conduit",
+        "friction_factor",
+        &Doc::new(
+            "conduit.friction_factor(reynolds) -> number",
+            "Darcy friction factor by the Colebrook equation (solved exactly), 64/Re when laminar.",
+        )
+        .example("print(round_duct(400.mm).roughness(0.05.mm).friction_factor(5e5));")
+        .source("Colebrook, J. ICE 11 (1939) 133–156"),
+        |c: &mut Conduit, re: Dynamic| -> Res<f64> {
+            Ok(lib(c.friction_factor(number(&re, "Reynolds number")?, FrictionModel::Colebrook))?.f)
+        },
+    );
+}

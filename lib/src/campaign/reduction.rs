@@ -1,0 +1,1007 @@
+//! Whole campaigns: many traverses in one polars `DataFrame`, reduced in one
+//! call. Per-row physics (fluid density, Δp from the deflection, point
+//! velocity) runs in one fused pass over the column buffers; polars finds the
+//! traverse groups (slices when the key column is sorted); each traverse is
+//! then averaged (arithmetic mean, or integration over positions). A traverse
+//! with bad data fails alone, is listed with the reason, and the rest of the
+//! campaign still reduces.
+//!
+//! Columns are read in declared units (`mm`, `degC`, ...) and converted to SI
+//! on the fly; no intermediate column is allocated unless a column is not
+//! `f64` without nulls.
+
+use polars::prelude::*;
+
+use crate::error::{Error, Result};
+use crate::fluids::fluid::Fluid;
+use crate::instruments::manometer::Manometer;
+use crate::instruments::probe::{Probe, incompressible, isentropic};
+use crate::section::integration::{Averaging, section_mean};
+use crate::section::layout::Position;
+use crate::units::quantity::Pressure;
+use crate::units::unit::Unit;
+
+/// Which columns hold what, in which units.
+#[derive(Debug, Clone)]
+pub struct CampaignColumns {
+    /// Traverse identifier (any type).
+    pub traverse: String,
+    /// Manometer deflection, and its unit.
+    pub deflection: (String, Unit),
+    /// Working-fluid temperature, and its unit (absolute temperature unit).
+    pub fluid_temperature: (String, Unit),
+    /// Inside diameter of a round conduit, or the width of a rectangular one (the side with
+    /// the ports), and its unit.
+    pub size: (String, Unit),
+    /// For rectangular conduits: the height (traverse depth) and, per point, the distance
+    /// of its traverse line from the side wall across the width.
+    pub rectangular: Option<RectangularColumns>,
+    /// Distance of the point from the port-side wall along its diameter, and its unit
+    /// (needed for integration and for position checks).
+    pub position: Option<(String, Unit)>,
+    /// Diameter (line) number within the traverse, if several.
+    pub line: Option<String>,
+    /// Gauge-liquid temperature column; the fluid temperature is used when absent.
+    pub gauge_temperature: Option<(String, Unit)>,
+}
+
+impl CampaignColumns {
+    /// Columns with the usual names and units: `traverse`, `deflection_mm`,
+    /// `fluid_temp_c`, `diameter_mm`, `position_mm`.
+    pub fn standard() -> Result<Self> {
+        Ok(Self {
+            traverse: "traverse".into(),
+            deflection: ("deflection_mm".into(), Unit::parse("mm")?),
+            fluid_temperature: ("fluid_temp_c".into(), Unit::parse("degC")?),
+            size: ("diameter_mm".into(), Unit::parse("mm")?),
+            rectangular: None,
+            position: Some(("position_mm".into(), Unit::parse("mm")?)),
+            line: None,
+            gauge_temperature: None,
+        })
+    }
+}
+
+/// The extra columns of a rectangular conduit.
+#[derive(Debug, Clone)]
+pub struct RectangularColumns {
+    /// Inside height (the traverse depth), and its unit.
+    pub height: (String, Unit),
+    /// Distance of the point's traverse line from the side wall, across the width, and its unit.
+    pub across: (String, Unit),
+}
+
+/// How a campaign is measured.
+#[derive(Debug, Clone)]
+pub struct CampaignSpec {
+    /// Column names and units.
+    pub columns: CampaignColumns,
+    /// Working fluid.
+    pub fluid: Fluid,
+    /// Absolute static pressure at the section.
+    pub static_pressure: Pressure,
+    /// The manometer.
+    pub manometer: Manometer,
+    /// The probe.
+    pub probe: Probe,
+    /// Averaging over each traverse.
+    pub averaging: Averaging,
+    /// Fewest points a traverse must have.
+    pub min_points: usize,
+    /// Reference condition, moisture (dry basis) and wall factor for the reported flows.
+    pub flow: crate::section::flow::FlowOptions,
+    /// Per-traverse flow uncertainty by the GUM, if wanted.
+    pub uncertainty: Option<CampaignUncertainty>,
+}
+
+/// Relative standard uncertainties for the per-traverse GUM budget of the flow
+/// (see [`crate::uncertainty::flow_models::TraverseUncertainty`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct CampaignUncertainty {
+    /// u(C)/C of the probe coefficient.
+    pub coefficient_rel: f64,
+    /// u(ρ)/ρ of the density.
+    pub density_rel: f64,
+    /// u(D)/D of the diameter (of the width and of the height for rectangular conduits).
+    pub diameter_rel: f64,
+    /// Relative part of each reading's u(Δp).
+    pub dp_rel: f64,
+    /// Absolute part of each reading's u(Δp), Pa (resolution, zero drift).
+    pub dp_abs_pa: f64,
+    /// Method terms (layout, positioning, unsteadiness, ...).
+    pub terms: Vec<crate::uncertainty::flow_models::MethodTerm>,
+    /// Coverage probability of the expanded uncertainty.
+    pub coverage: f64,
+}
+
+/// A traverse that could not be reduced.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TraverseFailure {
+    /// The traverse identifier as text.
+    pub traverse: String,
+    /// Why.
+    pub message: String,
+}
+
+/// Result of a campaign reduction.
+#[derive(Debug, Clone)]
+pub struct CampaignResult {
+    /// One row per reduced traverse: the key column, `points`,
+    /// `mean_velocity_m_s`, `volume_flow_m3_s`, `mass_flow_kg_s`,
+    /// `mean_density_kg_m3`, `max_velocity_m_s`, `flatness`, `reversed_points`, and
+    /// with a reference condition `reference_flow_m3_s` (and `dry_reference_flow_m3_s`
+    /// with a moisture fraction). A wall factor scales the mean velocity and the flows.
+    /// With an uncertainty spec: `u_flow_m3_s`, `relative_u_pct`, `coverage_factor`,
+    /// `expanded_flow_m3_s`, `effective_dof` (NaN where a point has Δp ≤ 0, which the
+    /// velocity-area model cannot take).
+    pub traverses: DataFrame,
+    /// Traverses that failed, with the reason.
+    pub failures: Vec<TraverseFailure>,
+}
+
+fn table_err(e: PolarsError) -> Error {
+    Error::Inconsistent { context: "campaign", message: e.to_string() }
+}
+
+/// A column read in place when it is a single-chunk f64, i64 or i32 column without
+/// nulls (any other numeric column is copied once into f64 with NaN for nulls); the
+/// unit conversion to SI is applied on the fly.
+struct SiColumn<'a> {
+    data: ColumnData<'a>,
+    factor: f64,
+    offset: f64,
+}
+
+enum ColumnData<'a> {
+    F64(&'a [f64]),
+    I64(&'a [i64]),
+    I32(&'a [i32]),
+    Owned(Vec<f64>),
+}
+
+impl SiColumn<'_> {
+    /// The raw value (before unit conversion).
+    #[inline(always)]
+    fn raw(&self, i: usize) -> f64 {
+        match &self.data {
+            ColumnData::F64(d) => d[i],
+            ColumnData::I64(d) => d[i] as f64,
+            ColumnData::I32(d) => f64::from(d[i]),
+            ColumnData::Owned(d) => d[i],
+        }
+    }
+
+    #[inline(always)]
+    fn at(&self, i: usize) -> f64 {
+        self.raw(i) * self.factor + self.offset
+    }
+}
+
+fn column<'a>(df: &'a DataFrame, name: &str, unit: &Unit, what: &str) -> Result<SiColumn<'a>> {
+    let col = df.column(name).map_err(|_| Error::Inconsistent {
+        context: "campaign",
+        message: format!(
+            "missing column '{name}' ({what}); columns present: {}",
+            df.get_column_names().iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
+        ),
+    })?;
+    let s = col.as_materialized_series();
+    let single = s.null_count() == 0 && s.n_chunks() == 1;
+    let data = match s.dtype() {
+        DataType::Float64 if single => ColumnData::F64(s.f64().map_err(table_err)?.cont_slice().map_err(table_err)?),
+        DataType::Int64 if single => ColumnData::I64(s.i64().map_err(table_err)?.cont_slice().map_err(table_err)?),
+        DataType::Int32 if single => ColumnData::I32(s.i32().map_err(table_err)?.cont_slice().map_err(table_err)?),
+        _ => {
+            let cast = s.cast(&DataType::Float64).map_err(|_| Error::Inconsistent {
+                context: "campaign",
+                message: format!("column '{name}' ({what}) is {}, not numeric", s.dtype()),
+            })?;
+            let ca = cast.f64().map_err(table_err)?;
+            ColumnData::Owned(ca.iter().map(|v| v.unwrap_or(f64::NAN)).collect())
+        }
+    };
+    Ok(SiColumn { data, factor: unit.factor, offset: unit.offset })
+}
+
+/// Memo of the last input and result of an expensive scalar function: readings
+/// of one traverse usually repeat their temperatures.
+struct Memo {
+    key: u64,
+    value: f64,
+}
+
+impl Memo {
+    fn new() -> Self {
+        Self { key: f64::NAN.to_bits() ^ 1, value: 0.0 }
+    }
+    #[inline(always)]
+    fn get(&mut self, x: f64, f: impl FnOnce(f64) -> Result<f64>) -> Result<f64> {
+        if x.to_bits() != self.key {
+            self.value = f(x)?;
+            self.key = x.to_bits();
+        }
+        Ok(self.value)
+    }
+}
+
+/// Groups of the key column: slices when sorted (checked here for integer keys), else indices.
+fn groups(df: &DataFrame, key: &str) -> Result<GroupPositions> {
+    let col = df.column(key).map_err(|_| Error::Inconsistent {
+        context: "campaign",
+        message: format!("missing column '{key}' (traverse identifier)"),
+    })?;
+    let mut s = col.as_materialized_series().clone();
+    if s.dtype().is_integer() && s.null_count() == 0 {
+        let as_i64 = s.cast(&DataType::Int64).map_err(table_err)?;
+        let ca = as_i64.i64().map_err(table_err)?;
+        let mut sorted = true;
+        let mut last = i64::MIN;
+        for v in ca.into_no_null_iter() {
+            if v < last {
+                sorted = false;
+                break;
+            }
+            last = v;
+        }
+        if sorted {
+            s.set_sorted_flag(polars::series::IsSorted::Ascending);
+        }
+    }
+    let keys = DataFrame::new_infer_height(vec![s.into()]).map_err(table_err)?;
+    let gb = keys.group_by_stable([key]).map_err(table_err)?;
+    Ok(gb.get_groups().clone())
+}
+
+struct TraverseOut {
+    first_row: usize,
+    points: u32,
+    mean_v: f64,
+    q: f64,
+    m: f64,
+    rho: f64,
+    vmax: f64,
+    reversed: u32,
+    t_mean: f64,
+    /// (u, relative u, k, U, ν_eff) of the flow.
+    unc: Option<[f64; 5]>,
+}
+
+/// Everything a traverse reduction reads, shared by all threads.
+/// The per-row physics shared by the campaign reduction and the per-point table:
+/// fluid density, gauge-liquid densities, Δp from the deflection, point velocity.
+struct RowPhysics<'a> {
+    spec: &'a CampaignSpec,
+    defl: SiColumn<'a>,
+    temp: SiColumn<'a>,
+    gauge_t: Option<SiColumn<'a>>,
+    p: f64,
+    gamma: Option<f64>,
+    two_liquid: bool,
+}
+
+/// Memos of the densities, which readings of one traverse usually repeat.
+struct Memos {
+    rho_f: Memo,
+    rho_m: Memo,
+    light: Memo,
+}
+
+impl Memos {
+    fn new() -> Self {
+        Self { rho_f: Memo::new(), rho_m: Memo::new(), light: Memo::new() }
+    }
+}
+
+impl<'a> RowPhysics<'a> {
+    fn new(df: &'a DataFrame, spec: &'a CampaignSpec) -> Result<Self> {
+        let cols = &spec.columns;
+        Ok(Self {
+            spec,
+            defl: column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?,
+            temp: column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?,
+            gauge_t: cols.gauge_temperature.as_ref().map(|(n, u)| column(df, n, u, "gauge temperature")).transpose()?,
+            p: spec.static_pressure.si(),
+            gamma: spec.fluid.isentropic_exponent(),
+            two_liquid: matches!(spec.manometer.kind(), crate::instruments::manometer::ManometerKind::TwoLiquid { .. }),
+        })
+    }
+
+    /// (Δp in Pa, fluid density in kg/m³, velocity in m/s, fluid temperature in K) of one row.
+    #[inline(always)]
+    fn point(&self, row: usize, m: &mut Memos) -> Result<(f64, f64, f64, f64)> {
+        let spec = self.spec;
+        let h = self.defl.at(row);
+        if !h.is_finite() {
+            return Err(Error::NotFinite { context: "reading", param: "deflection", value: self.defl.raw(row) });
+        }
+        let t = self.temp.at(row);
+        let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
+        let rho_f = m.rho_f.get(t, |t| spec.fluid.density_si(self.p, t))?;
+        let rho_m = m.rho_m.get(tg, |t| Ok(spec.manometer.liquid().density(crate::Temperature::kelvin(t))?.si()))?;
+        let light = if self.two_liquid {
+            Some(m.light.get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))?)
+        } else {
+            None
+        };
+        let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f)?;
+        let v = match self.gamma {
+            Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, self.p, g),
+            None => incompressible(spec.probe.coefficient, dp, rho_f),
+        };
+        Ok((dp, rho_f, v, t))
+    }
+}
+
+struct Kernel<'a> {
+    phys: RowPhysics<'a>,
+    dia: SiColumn<'a>,
+    height: Option<SiColumn<'a>>,
+    across: Option<SiColumn<'a>>,
+    pos: Option<SiColumn<'a>>,
+    line: Option<SiColumn<'a>>,
+    integrate: bool,
+    wall_factor: f64,
+}
+
+/// Per-thread memos and buffers, reused from traverse to traverse.
+struct Scratch {
+    memos: Memos,
+    lines: Vec<usize>,
+    pos: Vec<Position>,
+    v: Vec<f64>,
+    keyed: Vec<(f64, f64)>,
+    dps: Vec<f64>,
+}
+
+impl Scratch {
+    fn new() -> Self {
+        Self { memos: Memos::new(), lines: vec![], pos: vec![], v: vec![], keyed: vec![], dps: vec![] }
+    }
+}
+
+impl Kernel<'_> {
+    fn traverse(
+        &self,
+        rows: impl Iterator<Item = usize> + Clone,
+        first: usize,
+        sc: &mut Scratch,
+    ) -> Result<TraverseOut> {
+        let spec = self.phys.spec;
+        let d = self.dia.at(first);
+        if !(d.is_finite() && d > 0.0) {
+            return Err(Error::Inconsistent {
+                context: "traverse",
+                message: format!("diameter or width {} is not a positive number", self.dia.raw(first)),
+            });
+        }
+        // Round: depth = D, area πD²/4. Rectangular: width d, depth = height, area d·h.
+        let (depth, area) = match &self.height {
+            None => (d, std::f64::consts::PI * d * d / 4.0),
+            Some(hc) => {
+                let h = hc.at(first);
+                if !(h.is_finite() && h > 0.0) {
+                    return Err(Error::Inconsistent {
+                        context: "traverse",
+                        message: format!("height {} is not a positive number", hc.raw(first)),
+                    });
+                }
+                (h, d * h)
+            }
+        };
+        let (mut n, mut sum_v, mut sum_rho, mut vmax, mut reversed, mut sum_t) = (0u32, 0.0, 0.0, f64::MIN, 0u32, 0.0);
+        let (mut ordered, mut last_line, mut last_s) = (true, f64::MIN, f64::MIN);
+        sc.lines.clear();
+        sc.pos.clear();
+        sc.v.clear();
+        sc.keyed.clear();
+        sc.dps.clear();
+        for (k, row) in rows.clone().enumerate() {
+            let at = |e: Error| Error::Inconsistent {
+                context: "traverse",
+                message: format!("point {} (row {}): {e}", k + 1, row + 1),
+            };
+            if self.dia.at(row) != d || self.height.as_ref().is_some_and(|hc| hc.at(row) != depth) {
+                return Err(at(Error::Inconsistent {
+                    context: "traverse",
+                    message: "the conduit size changes within the traverse".into(),
+                }));
+            }
+            let (dp, rho_f, v, t) = self.phys.point(row, &mut sc.memos).map_err(at)?;
+            if spec.uncertainty.is_some() {
+                sc.dps.push(dp);
+            }
+            n += 1;
+            sum_v += v;
+            sum_rho += rho_f;
+            sum_t += t;
+            vmax = vmax.max(v);
+            reversed += u32::from(dp < 0.0);
+            if let Some(pc) = &self.pos {
+                let s = pc.at(row);
+                if !(s > 0.0 && s < depth) {
+                    return Err(at(Error::Inconsistent {
+                        context: "position",
+                        message: format!(
+                            "{} m from the wall lies outside the section (depth {depth} m)",
+                            crate::units::quantity::format_number(s)
+                        ),
+                    }));
+                }
+                let x = match &self.across {
+                    None => 0.0,
+                    Some(ac) => {
+                        let x = ac.at(row);
+                        if !(x > 0.0 && x < d) {
+                            return Err(at(Error::Inconsistent {
+                                context: "position",
+                                message: format!(
+                                    "{} m across lies outside the width {d} m",
+                                    crate::units::quantity::format_number(x)
+                                ),
+                            }));
+                        }
+                        x
+                    }
+                };
+                let line = match &self.line {
+                    None => 0,
+                    Some(l) => {
+                        let x = l.at(row);
+                        let whole = x as usize;
+                        if !(x >= 0.0 && whole as f64 == x) {
+                            return Err(at(Error::Inconsistent {
+                                context: "line",
+                                message: format!("line number {x} is not a whole number ≥ 0"),
+                            }));
+                        }
+                        whole
+                    }
+                };
+                let key = if self.across.is_some() { x } else { line as f64 };
+                ordered &= key > last_line || (key == last_line && s > last_s);
+                last_line = key;
+                last_s = s;
+                if self.integrate {
+                    sc.lines.push(line);
+                    sc.pos.push(match self.across {
+                        None => Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 },
+                        Some(_) => Position::Grid { x_over_w: x / d, y_over_h: s / depth },
+                    });
+                    sc.v.push(v);
+                }
+            }
+        }
+        if (n as usize) < spec.min_points.max(1) {
+            return Err(Error::Inconsistent {
+                context: "traverse",
+                message: format!("{n} points, fewer than the {} the layout needs", spec.min_points),
+            });
+        }
+        if let (Some(pc), false) = (&self.pos, ordered) {
+            // Positions not strictly increasing along each line: look for duplicates
+            // (rows re-read; the ordered case, the usual one, needs no buffer).
+            sc.keyed.clear();
+            sc.keyed.extend(rows.map(|row| {
+                let key = match (&self.across, &self.line) {
+                    (Some(ac), _) => ac.at(row),
+                    (None, Some(l)) => l.at(row),
+                    (None, None) => 0.0,
+                };
+                (key, pc.at(row))
+            }));
+            sc.keyed.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
+            if let Some(w) = sc.keyed.windows(2).find(|w| w[0].0 == w[1].0 && (w[0].1 - w[1].1).abs() < 1e-12) {
+                return Err(Error::Inconsistent {
+                    context: "traverse",
+                    message: format!(
+                        "duplicate position: {} m from the wall twice on {}",
+                        crate::units::quantity::format_number(w[0].1),
+                        if self.across.is_some() {
+                            format!("the line {} m across", crate::units::quantity::format_number(w[0].0))
+                        } else {
+                            format!("line {}", w[0].0 + 1.0)
+                        }
+                    ),
+                });
+            }
+        }
+        if self.integrate && self.across.is_some() {
+            // Rectangular lines are numbered by their position across the width.
+            let mut xs: Vec<f64> =
+                sc.pos.iter().map(|p| if let Position::Grid { x_over_w, .. } = p { *x_over_w } else { 0.0 }).collect();
+            xs.sort_by(f64::total_cmp);
+            xs.dedup();
+            for (line, p) in sc.lines.iter_mut().zip(&sc.pos) {
+                if let Position::Grid { x_over_w, .. } = p {
+                    *line = xs.partition_point(|x| x < x_over_w);
+                }
+            }
+        }
+        let mean_v = self.wall_factor
+            * match spec.averaging {
+                Averaging::Arithmetic => sum_v / f64::from(n),
+                integ => section_mean(&sc.lines, &sc.pos, &sc.v, integ)?.mean.si(),
+            };
+        let rho = sum_rho / f64::from(n);
+        let q = mean_v * area;
+        // Rectangular: the equivalent size √(W·H) with A = size², and u(size)/size = r/√2 when
+        // width and height each have relative uncertainty r (derived).
+        let (size, shape, rel_scale) = if self.height.is_some() {
+            (area.sqrt(), 1.0, std::f64::consts::FRAC_1_SQRT_2)
+        } else {
+            (d, std::f64::consts::FRAC_PI_4, 1.0)
+        };
+        let unc = spec
+            .uncertainty
+            .as_ref()
+            .map(|u| traverse_uncertainty(u, spec.probe.coefficient, rho, size, shape, rel_scale, &sc.dps));
+        Ok(TraverseOut {
+            first_row: first,
+            points: n,
+            mean_v,
+            q,
+            m: q * rho,
+            rho,
+            vmax,
+            reversed,
+            t_mean: sum_t / f64::from(n),
+            unc,
+        })
+    }
+}
+
+/// GUM budget of one traverse's flow; NaNs when the model cannot take the readings.
+fn traverse_uncertainty(
+    u: &CampaignUncertainty,
+    c: f64,
+    rho: f64,
+    d: f64,
+    shape: f64,
+    rel_scale: f64,
+    dps: &[f64],
+) -> [f64; 5] {
+    use crate::uncertainty::Input;
+    use crate::uncertainty::flow_models::TraverseUncertainty;
+    let build = || -> Result<[f64; 5]> {
+        let points = crate::uncertainty::flow_models::dp_inputs(dps, u.dp_rel, u.dp_abs_pa)?;
+        let t = TraverseUncertainty::new(
+            Input::normal("probe coefficient", "1", c, u.coefficient_rel * c)?,
+            Input::normal("density", "kg/m³", rho, u.density_rel * rho)?,
+            Input::normal("diameter or equivalent size", "m", d, u.diameter_rel * rel_scale * d)?,
+            &u.terms,
+            points,
+        )?;
+        let g = t.with_area_factor(shape).gum(u.coverage)?;
+        Ok([g.u, g.u / g.value * 100.0, g.k, g.expanded, g.dof])
+    };
+    build().unwrap_or([f64::NAN; 5])
+}
+
+/// Traverses per parallel work item.
+const CHUNK: usize = 2048;
+
+/// Reduces every traverse of a campaign (see the module doc).
+pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignResult> {
+    use rayon::prelude::*;
+    let cols = &spec.columns;
+    let opt = |c: &Option<(String, Unit)>, what: &str| -> Result<Option<SiColumn<'_>>> {
+        c.as_ref().map(|(n, u)| column(df, n, u, what)).transpose()
+    };
+    let one = Unit::parse("1")?;
+    let gamma = spec.fluid.isentropic_exponent();
+    let kernel = Kernel {
+        phys: RowPhysics::new(df, spec)?,
+        dia: column(df, &cols.size.0, &cols.size.1, "diameter or width")?,
+        height: cols.rectangular.as_ref().map(|r| column(df, &r.height.0, &r.height.1, "height")).transpose()?,
+        across: cols
+            .rectangular
+            .as_ref()
+            .map(|r| column(df, &r.across.0, &r.across.1, "position across the width"))
+            .transpose()?,
+        pos: opt(&cols.position, "position")?,
+        line: cols.line.as_ref().map(|n| column(df, n, &one, "line number")).transpose()?,
+        integrate: !matches!(spec.averaging, Averaging::Arithmetic),
+        wall_factor: match spec.flow.wall_factor {
+            Some(w) => crate::error::within("campaign", "wall adjustment factor", w.value(), "", 0.9, 1.0)?,
+            None => 1.0,
+        },
+    };
+    if !matches!(spec.averaging, Averaging::Arithmetic) && kernel.pos.is_none() {
+        return Err(Error::Inconsistent { context: "campaign", message: "integration needs a position column".into() });
+    }
+    let reference = match spec.flow.reference {
+        Some(r) => {
+            if gamma.is_none() {
+                return Err(Error::Inconsistent {
+                    context: "campaign",
+                    message: "a flow at reference conditions is for gases".into(),
+                });
+            }
+            Some(r.state())
+        }
+        None => {
+            if spec.flow.moisture.is_some() {
+                return Err(Error::Inconsistent {
+                    context: "campaign",
+                    message: "a dry-basis flow needs a reference condition".into(),
+                });
+            }
+            None
+        }
+    };
+    let dry = spec
+        .flow
+        .moisture
+        .map(|b| crate::error::within("campaign", "moisture fraction B_ws", b, "", 0.0, 1.0))
+        .transpose()?
+        .map(|b| 1.0 - b);
+    let key_series = df.column(&cols.traverse).map_err(table_err)?.as_materialized_series().clone();
+    let groups = groups(df, &cols.traverse)?;
+
+    // One result per traverse, in group order, computed in parallel chunks.
+    let results: Vec<(usize, Result<TraverseOut>)> = match &*groups {
+        GroupsType::Slice { groups, .. } => groups
+            .par_chunks(CHUNK)
+            .flat_map_iter(|chunk| {
+                let mut sc = Scratch::new();
+                chunk
+                    .iter()
+                    .map(|&[off, len]| {
+                        let (off, len) = (off as usize, len as usize);
+                        (off, kernel.traverse(off..off + len, off, &mut sc))
+                    })
+                    .collect::<Vec<_>>()
+            })
+            .collect(),
+        GroupsType::Idx(idx) => idx
+            .first()
+            .par_chunks(CHUNK)
+            .zip(idx.all().par_chunks(CHUNK))
+            .flat_map_iter(|(firsts, alls)| {
+                let mut sc = Scratch::new();
+                firsts
+                    .iter()
+                    .zip(alls)
+                    .map(|(&first, rows)| {
+                        (first as usize, kernel.traverse(rows.iter().map(|i| *i as usize), first as usize, &mut sc))
+                    })
+                    .collect::<Vec<_>>()
+            })
+            .collect(),
+    };
+    let mut outs = Vec::with_capacity(results.len());
+    let mut failures = Vec::new();
+    for (first, r) in results {
+        match r {
+            Ok(o) => outs.push(o),
+            Err(e) => failures.push(TraverseFailure {
+                traverse: key_series
+                    .get(first)
+                    .map(|v| v.to_string().trim_matches('"').to_string())
+                    .unwrap_or_default(),
+                message: e.to_string(),
+            }),
+        }
+    }
+    let p = kernel.phys.p;
+
+    let idx: Vec<IdxSize> = outs.iter().map(|o| o.first_row as IdxSize).collect();
+    let keys = key_series.take_slice(&idx).map_err(table_err)?;
+    let f = |name: &str, v: Vec<f64>| Column::new(name.into(), v);
+    let mut traverses = DataFrame::new_infer_height(vec![
+        keys.into(),
+        Column::new("points".into(), outs.iter().map(|o| o.points).collect::<Vec<u32>>()),
+        f("mean_velocity_m_s", outs.iter().map(|o| o.mean_v).collect()),
+        f("volume_flow_m3_s", outs.iter().map(|o| o.q).collect()),
+        f("mass_flow_kg_s", outs.iter().map(|o| o.m).collect()),
+        f("mean_density_kg_m3", outs.iter().map(|o| o.rho).collect()),
+        f("max_velocity_m_s", outs.iter().map(|o| o.vmax).collect()),
+        f("flatness", outs.iter().map(|o| if o.vmax > 0.0 { o.mean_v / o.vmax } else { f64::NAN }).collect()),
+        Column::new("reversed_points".into(), outs.iter().map(|o| o.reversed).collect::<Vec<u32>>()),
+    ])
+    .map_err(table_err)?;
+    if spec.uncertainty.is_some() {
+        let col = |k: usize| outs.iter().map(|o| o.unc.map_or(f64::NAN, |u| u[k])).collect::<Vec<f64>>();
+        for (k, name) in ["u_flow_m3_s", "relative_u_pct", "coverage_factor", "expanded_flow_m3_s", "effective_dof"]
+            .iter()
+            .enumerate()
+        {
+            traverses.with_column(f(name, col(k))).map_err(table_err)?;
+        }
+    }
+    if let Some((t_ref, p_ref)) = reference {
+        let q_ref: Vec<f64> = outs.iter().map(|o| o.q * (p / p_ref.si()) * (t_ref.k() / o.t_mean)).collect();
+        if let Some(k) = dry {
+            traverses
+                .with_column(f("dry_reference_flow_m3_s", q_ref.iter().map(|q| q * k).collect()))
+                .map_err(table_err)?;
+        }
+        traverses.with_column(f("reference_flow_m3_s", q_ref)).map_err(table_err)?;
+    }
+    Ok(CampaignResult { traverses, failures })
+}
+
+/// Per-row Δp, density and velocity as new columns `dp_pa`, `density_kg_m3`,
+/// `velocity_m_s` (a copy of `df` with them appended). Stops at the first bad row.
+pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame> {
+    let phys = RowPhysics::new(df, spec)?;
+    let n = df.height();
+    let (mut dps, mut rhos, mut vs) = (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
+    let mut memos = Memos::new();
+    for row in 0..n {
+        let (dp, rho_f, v, _) = phys.point(row, &mut memos).map_err(|e| e.at_row(row))?;
+        dps.push(dp);
+        rhos.push(rho_f);
+        vs.push(v);
+    }
+    let mut out = df.clone();
+    for (name, v) in [("dp_pa", dps), ("density_kg_m3", rhos), ("velocity_m_s", vs)] {
+        out.with_column(Column::new(name.into(), v)).map_err(table_err)?;
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fluids::gauge_liquid::GaugeLiquid;
+    use crate::fluids::gravity;
+    use crate::fluids::water::Water;
+    use crate::instruments::manometer::{ManometerKind, Reading};
+    use crate::instruments::probe::{ProbeKind, VelocityMethod};
+    use crate::units::quantity::{Length, Temperature};
+    use crate::{HumidAir, UserLiquid};
+
+    fn air_spec() -> CampaignSpec {
+        let oil =
+            UserLiquid::new("oil", crate::Density::kg_m3(826.0), Temperature::celsius(20.0), Some(7.5e-4)).unwrap();
+        CampaignSpec {
+            columns: CampaignColumns::standard().unwrap(),
+            fluid: Fluid::HumidAir(HumidAir::relative(0.5).unwrap()),
+            static_pressure: Pressure::pa(101_000.0),
+            manometer: Manometer::new(
+                ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 },
+                GaugeLiquid::User(oil),
+                gravity::standard(),
+            )
+            .unwrap(),
+            probe: Probe::new(ProbeKind::PitotStatic, 0.998).unwrap(),
+            averaging: Averaging::Arithmetic,
+            min_points: 4,
+            flow: Default::default(),
+            uncertainty: None,
+        }
+    }
+
+    fn frame(ids: Vec<i64>, defl: Vec<f64>, temp: Vec<f64>, pos: Vec<f64>) -> DataFrame {
+        let n = ids.len();
+        DataFrame::new_infer_height(vec![
+            Column::new("traverse".into(), ids),
+            Column::new("deflection_mm".into(), defl),
+            Column::new("fluid_temp_c".into(), temp),
+            Column::new("diameter_mm".into(), vec![500.0; n]),
+            Column::new("position_mm".into(), pos),
+        ])
+        .unwrap()
+    }
+
+    const EA4: [f64; 4] = [33.5, 125.0, 375.0, 466.5]; // EPA Table 1-1, 4 points: 6.7/25/75/93.3 % of 500 mm
+
+    // The campaign path must agree with the scalar path (Manometer + Fluid + Probe), which is
+    // tested against published values in its own modules.
+    #[test]
+    fn matches_scalar_path_and_isolates_bad_traverses() {
+        let spec = air_spec();
+        let defl = vec![20.0, 30.0, 31.0, 21.0, 22.0, 33.0, f64::NAN, 23.0, 18.0, 25.0, 26.0, 19.0];
+        let df = frame(vec![1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3], defl.clone(), vec![18.0; 12], [EA4; 3].concat());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert_eq!(r.traverses.height(), 2);
+        assert_eq!(r.failures.len(), 1);
+        assert_eq!(r.failures[0].traverse, "2");
+        assert!(
+            r.failures[0].message.contains("point 3 (row 7)") && r.failures[0].message.contains("NaN"),
+            "{}",
+            r.failures[0].message
+        );
+        let state = spec.fluid.state(spec.static_pressure, Temperature::celsius(18.0)).unwrap();
+        let scalar: Vec<f64> = defl[..4]
+            .iter()
+            .map(|h| {
+                let dp = spec
+                    .manometer
+                    .differential_pressure(
+                        Reading::Deflection(Length::mm(*h)),
+                        Temperature::celsius(18.0),
+                        state.density,
+                    )
+                    .unwrap();
+                spec.probe.velocity(dp.dp, &state, VelocityMethod::Auto).unwrap().velocity.si()
+            })
+            .collect();
+        let mean = scalar.iter().sum::<f64>() / 4.0;
+        let got = r.traverses.column("mean_velocity_m_s").unwrap().f64().unwrap().get(0).unwrap();
+        assert!((got - mean).abs() < 1e-12, "{got} vs {mean}");
+        let q = r.traverses.column("volume_flow_m3_s").unwrap().f64().unwrap().get(0).unwrap();
+        assert!((q - mean * std::f64::consts::PI * 0.0625).abs() < 1e-12);
+        let per_row = point_velocities(&df.slice(0, 4), &spec).unwrap();
+        let v = per_row.column("velocity_m_s").unwrap().f64().unwrap();
+        for (i, s) in scalar.iter().enumerate() {
+            assert!((v.get(i).unwrap() - s).abs() < 1e-12);
+        }
+    }
+
+    #[test]
+    fn unsorted_text_keys_and_integration() {
+        let mut spec = air_spec();
+        spec.averaging = Averaging::Integrate { wall_exponent: 7.0 };
+        let df = DataFrame::new_infer_height(vec![
+            Column::new("traverse".into(), vec!["B", "A", "B", "A", "B", "A", "B", "A"]),
+            Column::new("deflection_mm".into(), vec![20.0, 20.0, 30.0, 30.0, 30.0, 30.0, 20.0, 20.0]),
+            Column::new("fluid_temp_c".into(), vec![18.0; 8]),
+            Column::new("diameter_mm".into(), vec![500.0; 8]),
+            Column::new("position_mm".into(), vec![33.5, 33.5, 125.0, 125.0, 375.0, 375.0, 466.5, 466.5]),
+        ])
+        .unwrap();
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert!(r.failures.is_empty(), "{:?}", r.failures);
+        assert_eq!(r.traverses.column("traverse").unwrap().str().unwrap().get(0), Some("B"));
+        let v = r.traverses.column("mean_velocity_m_s").unwrap().f64().unwrap();
+        assert!((v.get(0).unwrap() - v.get(1).unwrap()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn bad_traverses_are_named_and_listed() {
+        let spec = air_spec();
+        let ids = vec![1, 1, 1, 1, 2, 2, 2, 3, 3, 3, 3];
+        let mut pos = [EA4; 3].concat();
+        pos.remove(4); // traverse 2 keeps 3 points
+        pos[8] = 600.0; // traverse 3: outside
+        let df = frame(ids, vec![20.0; 11], vec![18.0; 11], pos);
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert_eq!(r.traverses.height(), 1);
+        let msgs: Vec<&str> = r.failures.iter().map(|f| f.message.as_str()).collect();
+        assert!(msgs[0].contains("3 points, fewer than the 4"), "{msgs:?}");
+        assert!(msgs[1].contains("outside the section"), "{msgs:?}");
+        let dup = frame(vec![1, 1, 1, 1], vec![20.0; 4], vec![18.0; 4], vec![33.5, 125.0, 125.0, 466.5]);
+        assert!(reduce_campaign(&dup, &spec).unwrap().failures[0].message.contains("duplicate position"));
+        let e = reduce_campaign(&df.drop("fluid_temp_c").unwrap(), &spec).unwrap_err();
+        assert!(
+            e.to_string().contains("missing column 'fluid_temp_c' (fluid temperature); columns present: traverse"),
+            "{e}"
+        );
+    }
+
+    // Reference and dry-basis flows follow crate::section::flow::flow (tested against the EPA worked
+    // example there) for the traverse's mean temperature.
+    #[test]
+    fn reference_and_dry_flows_match_the_scalar_flow() {
+        let mut spec = air_spec();
+        spec.flow = crate::section::flow::FlowOptions {
+            reference: Some(crate::ReferenceCondition::Normal0C),
+            moisture: Some(0.02),
+            wall_factor: Some(crate::section::flow::WallFactor::EpaOtherStacks),
+        };
+        let df = frame(vec![1; 4], vec![20.0, 30.0, 31.0, 21.0], vec![18.0; 4], EA4.to_vec());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        let col = |n: &str| r.traverses.column(n).unwrap().f64().unwrap().get(0).unwrap();
+        let state = spec.fluid.state(spec.static_pressure, Temperature::celsius(18.0)).unwrap();
+        let conduit = crate::Conduit::circular(Length::mm(500.0)).unwrap();
+        let unscaled = col("mean_velocity_m_s") / 0.995;
+        let s = crate::section::flow::flow(crate::Velocity::m_s(unscaled), &conduit, &state, &spec.flow).unwrap();
+        assert!((col("mean_velocity_m_s") - s.mean_velocity.si()).abs() < 1e-12);
+        assert!((col("reference_flow_m3_s") - s.reference_flow.unwrap().si()).abs() < 1e-12);
+        assert!((col("dry_reference_flow_m3_s") - s.dry_reference_flow.unwrap().si()).abs() < 1e-12);
+    }
+
+    // The per-traverse columns equal a direct GUM budget of the same traverse
+    // (crate::uncertainty::flow_models, tested against JCGM 100/101 examples).
+    #[test]
+    fn per_traverse_uncertainty_columns() {
+        use crate::uncertainty::Input;
+        use crate::uncertainty::flow_models::{MethodTerm, TraverseUncertainty};
+        let mut spec = air_spec();
+        spec.fluid = Fluid::IdealGas {
+            name: "air".into(),
+            molar_mass: crate::MolarMass::g_mol(28.96),
+            isentropic_exponent: 1.4,
+            viscosity: None,
+        };
+        let terms = MethodTerm::typical(crate::LayoutRule::EqualArea);
+        spec.uncertainty = Some(CampaignUncertainty {
+            coefficient_rel: 0.0025,
+            density_rel: 0.002,
+            diameter_rel: 0.001,
+            dp_rel: 0.01,
+            dp_abs_pa: 0.5,
+            terms: terms.clone(),
+            coverage: 0.95,
+        });
+        let df = frame(vec![1; 4], vec![20.0, 30.0, 31.0, 21.0], vec![18.0; 4], EA4.to_vec());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        let col = |n: &str| r.traverses.column(n).unwrap().f64().unwrap().get(0).unwrap();
+        let per_row = point_velocities(&df, &spec).unwrap();
+        let dps: Vec<f64> = per_row.column("dp_pa").unwrap().f64().unwrap().into_no_null_iter().collect();
+        let rho = col("mean_density_kg_m3");
+        let t = TraverseUncertainty::new(
+            Input::normal("C", "1", 0.998, 0.0025 * 0.998).unwrap(),
+            Input::normal("ρ", "kg/m³", rho, 0.002 * rho).unwrap(),
+            Input::normal("D", "m", 0.5, 0.0005).unwrap(),
+            &terms,
+            dps.iter()
+                .map(|dp| Input::normal("Δp", "Pa", *dp, ((0.01 * dp).powi(2) + 0.25f64).sqrt()).unwrap())
+                .collect(),
+        )
+        .unwrap();
+        let g = t.gum(0.95).unwrap();
+        assert!((col("u_flow_m3_s") - g.u).abs() < 1e-15 && (col("expanded_flow_m3_s") - g.expanded).abs() < 1e-15);
+        assert!((col("relative_u_pct") - g.u / g.value * 100.0).abs() < 1e-12);
+        assert!(col("relative_u_pct") > 0.8 && col("relative_u_pct") < 2.0, "{}", col("relative_u_pct"));
+    }
+
+    // A 1000 × 500 mm duct on the US EPA Method 1 Table 1-2 12-point grid (4 lines × 3 points,
+    // centroids (2i − 1)/(2n)): equal readings give the point velocity as the mean, and the
+    // flow is mean × W·H (definition).
+    #[test]
+    fn rectangular_campaign() {
+        let mut spec = air_spec();
+        spec.columns.rectangular = Some(RectangularColumns {
+            height: ("height_mm".into(), Unit::parse("mm").unwrap()),
+            across: ("across_mm".into(), Unit::parse("mm").unwrap()),
+        });
+        spec.averaging = Averaging::Integrate { wall_exponent: 7.0 };
+        let (mut across, mut depth) = (vec![], vec![]);
+        for i in 0..4 {
+            for j in 0..3 {
+                across.push((2 * i + 1) as f64 / 8.0 * 1000.0);
+                depth.push((2 * j + 1) as f64 / 6.0 * 500.0);
+            }
+        }
+        let df = DataFrame::new_infer_height(vec![
+            Column::new("traverse".into(), vec![1i64; 12]),
+            Column::new("deflection_mm".into(), vec![25.0; 12]),
+            Column::new("fluid_temp_c".into(), vec![18.0; 12]),
+            Column::new("diameter_mm".into(), vec![1000.0; 12]),
+            Column::new("height_mm".into(), vec![500.0; 12]),
+            Column::new("across_mm".into(), across.clone()),
+            Column::new("position_mm".into(), depth.clone()),
+        ])
+        .unwrap();
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert!(r.failures.is_empty(), "{:?}", r.failures);
+        let col = |n: &str| r.traverses.column(n).unwrap().f64().unwrap().get(0).unwrap();
+        let v = point_velocities(&df.slice(0, 1), &spec)
+            .unwrap()
+            .column("velocity_m_s")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .get(0)
+            .unwrap();
+        // integration of a flat profile with m = 7 wall zones: each 1-D mean is
+        // (1 − 2·(1/2n)) + 2·(1/2n)·7/8 of the point value (derived)
+        let line = |n: f64| 1.0 - 1.0 / n + (1.0 / n) * 0.875;
+        assert!((col("mean_velocity_m_s") - v * line(4.0) * line(3.0)).abs() < 1e-12);
+        assert!((col("volume_flow_m3_s") - col("mean_velocity_m_s") * 0.5).abs() < 1e-12);
+        let mut bad = across.clone();
+        bad[5] = 1200.0;
+        let df2 = df.clone().with_column(Column::new("across_mm".into(), bad)).unwrap().clone();
+        let r2 = reduce_campaign(&df2, &spec).unwrap();
+        assert!(r2.failures[0].message.contains("outside the width"), "{:?}", r2.failures);
+    }
+
+    #[test]
+    fn water_campaign_with_mercury() {
+        let spec = CampaignSpec {
+            fluid: Fluid::Water(Water::default()),
+            static_pressure: Pressure::pa(101_325.0),
+            manometer: Manometer::new(ManometerKind::UTube, GaugeLiquid::Mercury, gravity::standard()).unwrap(),
+            probe: Probe::new(ProbeKind::WallTapPitot, 1.0).unwrap(),
+            ..air_spec()
+        };
+        // 50 mm Hg under 20 °C water → 3.511 m/s (check-values.md §4.1, with g_n)
+        let df = frame(vec![7; 4], vec![50.0; 4], vec![20.0; 4], EA4.to_vec());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        let v = r.traverses.column("mean_velocity_m_s").unwrap().f64().unwrap().get(0).unwrap();
+        assert!((v - 3.5110).abs() < 2e-4, "{v}");
+    }
+}

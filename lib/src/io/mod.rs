@@ -1,0 +1,9 @@
+//! Around the chain: getting readings in and results out.
+//!
+//! Reads tables of readings (CSV, Parquet, spreadsheets) and writes them atomically
+//! ([`table`]), draws charts of profiles, trends, budgets and layouts as SVG or PNG
+//! ([`plot`]) and shows the library's main types in Rust notebooks ([`evcxr`]).
+
+pub mod evcxr;
+pub mod plot;
+pub mod table;

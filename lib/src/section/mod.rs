@@ -1,0 +1,16 @@
+//! The measuring section, from point velocities to flows.
+//!
+//! Takes in the conduit's shape and size and the point velocities of the
+//! instruments stage and gives out where to put the probe ([`layout`]), the
+//! Reynolds number and friction factor ([`conduit`], [`friction`]), developed-flow
+//! profiles and the single-point method ([`profile`]), the section-mean velocity
+//! ([`integration`]), volume, mass and reference-condition flows ([`flow`]) and
+//! profile fits and checks ([`profile_analysis`]).
+
+pub mod conduit;
+pub mod flow;
+pub mod friction;
+pub mod integration;
+pub mod layout;
+pub mod profile;
+pub mod profile_analysis;

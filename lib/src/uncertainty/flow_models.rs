@@ -1,0 +1,271 @@
+//! Uncertainty models of the differential-pressure chain: point velocity,
+//! traverse mean velocity and flow, with method terms as named budget lines.
+//!
+//! # Formula
+//! - Point: v = C √(2 Δp/ρ).
+//! - Traverse: Q = Π f_k · (π D²/4) · (1/N) Σ_i C √(2 Δp_i/ρ), where the probe
+//!   coefficient C, density ρ and diameter D are single inputs shared by all
+//!   points (so fully correlated across points, as they should be), each Δp_i
+//!   is its own input (point-to-point scatter independent), and each method
+//!   term f_k (layout/integration bias, positioning, unsteadiness, turbulence,
+//!   alignment) is a factor of value 1 with a relative standard uncertainty.
+//!
+//! # References
+//! JCGM 100:2008; the method terms' typical magnitudes as collected in
+//! `shared/reference/check-values.md` §7.3 (common practice, no source) and
+//! the layout biases of §5.4.
+
+use crate::error::{Error, Result};
+use crate::uncertainty::{Correlations, GumResult, Input, Model, Real, gum};
+
+/// v = C √(2 Δp/ρ); inputs in the order C, Δp (Pa), ρ (kg/m³).
+#[derive(Debug, Clone, Copy, Default)]
+pub struct PointVelocityModel;
+
+impl Model for PointVelocityModel {
+    fn eval<R: Real>(&self, x: &[R]) -> R {
+        x[0] * (R::constant(2.0) * x[1] / x[2]).sqrt()
+    }
+}
+
+/// A method term: a factor of value 1 with a relative standard uncertainty.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MethodTerm {
+    /// Name of the budget line.
+    pub name: String,
+    /// Relative standard uncertainty (e.g. 0.005 for 0.5 %).
+    pub relative_u: f64,
+    /// Where the value comes from.
+    pub source: String,
+}
+
+impl MethodTerm {
+    /// A term of your own.
+    pub fn new(name: &str, relative_u: f64, source: &str) -> Result<Self> {
+        crate::error::within("method term", "relative standard uncertainty", relative_u, "", 0.0, 0.5)?;
+        Ok(Self { name: name.into(), relative_u, source: source.into() })
+    }
+
+    /// Typical terms for a calibrated pitot-static traverse with the given layout rule:
+    /// layout/integration 0.5 % (equal-area) or 0.2 % (log rules) after the biases of
+    /// check-values.md §5.4; positioning 0.25 %, unsteadiness 0.5 %, turbulence 0.5 %,
+    /// alignment 0.2 % (check-values.md §7.3; common practice, no source).
+    pub fn typical(rule: crate::section::layout::LayoutRule) -> Vec<MethodTerm> {
+        let layout = if rule == crate::section::layout::LayoutRule::EqualArea { 0.005 } else { 0.002 };
+        let cp = "common practice, no source (typical magnitude)";
+        vec![
+            MethodTerm {
+                name: format!("layout/integration ({rule})"),
+                relative_u: layout,
+                source: "layout bias on model profiles, check-values.md §5.4".into(),
+            },
+            MethodTerm { name: "probe positioning".into(), relative_u: 0.0025, source: cp.into() },
+            MethodTerm { name: "flow unsteadiness".into(), relative_u: 0.005, source: cp.into() },
+            MethodTerm { name: "turbulence".into(), relative_u: 0.005, source: cp.into() },
+            MethodTerm { name: "probe alignment (yaw/pitch < 5°)".into(), relative_u: 0.002, source: cp.into() },
+        ]
+    }
+}
+
+/// Q = Π f_k (π D²/4)(1/N) Σ C √(2 Δp_i/ρ) (or the mean velocity, without the area);
+/// inputs C, ρ, D, f_1…f_K, Δp_1…Δp_N.
+#[derive(Debug, Clone, Copy)]
+pub struct TraverseFlowModel {
+    /// Number of method terms K.
+    pub terms: usize,
+    /// Number of points N.
+    pub points: usize,
+    /// True for the mean velocity (m/s), false for the volume flow (m³/s).
+    pub mean_velocity: bool,
+    /// k in A = k·D²: π/4 for a round conduit (the default), 1 for a rectangle given by
+    /// its equivalent size √(W·H).
+    pub area_factor: f64,
+}
+
+impl Model for TraverseFlowModel {
+    fn eval<R: Real>(&self, x: &[R]) -> R {
+        let (c, rho, d) = (x[0], x[1], x[2]);
+        let mut factor = R::constant(1.0);
+        for f in &x[3..3 + self.terms] {
+            factor = factor * *f;
+        }
+        let mut sum = R::constant(0.0);
+        for dp in &x[3 + self.terms..] {
+            sum = sum + (R::constant(2.0) * *dp / rho).sqrt();
+        }
+        let mean = factor * c * sum / R::constant(self.points as f64);
+        if self.mean_velocity { mean } else { mean * R::constant(self.area_factor) * d * d }
+    }
+}
+
+/// One normal Δp input per reading, named "Δp point i", with
+/// u = √((rel·Δp)² + abs²): a relative part (gauge liquid, scale, calibration) and an
+/// absolute part in Pa (resolution, zero drift).
+pub fn dp_inputs(dps: &[f64], rel: f64, abs_pa: f64) -> Result<Vec<Input>> {
+    dps.iter()
+        .enumerate()
+        .map(|(i, dp)| {
+            Input::normal(&format!("Δp point {}", i + 1), "Pa", *dp, ((rel * dp).powi(2) + abs_pa * abs_pa).sqrt())
+        })
+        .collect()
+}
+
+/// A traverse flow with its uncertainty inputs, ready for [`gum`] or Monte Carlo.
+#[derive(Debug, Clone)]
+pub struct TraverseUncertainty {
+    /// The model.
+    pub model: TraverseFlowModel,
+    /// Its inputs, in model order.
+    pub inputs: Vec<Input>,
+}
+
+impl TraverseUncertainty {
+    /// From the shared inputs (probe coefficient, density, diameter), the method terms and
+    /// one Δp input per point.
+    pub fn new(
+        coefficient: Input,
+        density: Input,
+        diameter: Input,
+        terms: &[MethodTerm],
+        dps: Vec<Input>,
+    ) -> Result<Self> {
+        if dps.is_empty() {
+            return Err(Error::Inconsistent { context: "traverse uncertainty", message: "no points".into() });
+        }
+        for (i, dp) in dps.iter().enumerate() {
+            if dp.value <= 0.0 {
+                return Err(Error::Inconsistent {
+                    context: "traverse uncertainty",
+                    message: format!(
+                        "point {}: Δp = {} Pa; the √Δp model needs positive Δp (reverse flow is not a velocity-area measurement)",
+                        i + 1,
+                        dp.value
+                    ),
+                });
+            }
+        }
+        let mut inputs = vec![coefficient, density, diameter];
+        for t in terms {
+            inputs.push(Input::normal(&t.name, "1", 1.0, t.relative_u)?.with_source(&t.source));
+        }
+        let points = dps.len();
+        inputs.extend(dps);
+        Ok(Self {
+            model: TraverseFlowModel {
+                terms: terms.len(),
+                points,
+                mean_velocity: false,
+                area_factor: std::f64::consts::FRAC_PI_4,
+            },
+            inputs,
+        })
+    }
+
+    /// The same traverse with another area factor k (A = k·D²).
+    pub fn with_area_factor(mut self, k: f64) -> Self {
+        self.model.area_factor = k;
+        self
+    }
+
+    /// The same traverse with the mean velocity (m/s) as the output instead of the flow.
+    pub fn for_mean_velocity(mut self) -> Self {
+        self.model.mean_velocity = true;
+        self
+    }
+
+    /// GUM budget of the flow (m³/s) at coverage probability `p`.
+    pub fn gum(&self, p: f64) -> Result<GumResult> {
+        gum(&self.model, &self.inputs, &Correlations::none(), p)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::uncertainty::monte_carlo::{McOptions, monte_carlo, validate};
+    use crate::uncertainty::sensitivities;
+
+    fn point_inputs(dp: Input) -> Vec<Input> {
+        vec![Input::normal("C", "1", 0.997, 0.003).unwrap(), dp, Input::normal("ρ", "kg/m³", 1.200, 0.003).unwrap()]
+    }
+
+    // check-values.md §7.2 pitot point example [C]: C = 0.997 (u 0.003), Δp = 250 Pa (u 1.5),
+    // ρ = 1.200 (u 0.003), all normal: v = 20.35118, GUM u_c = 0.09014, U(k=2) = 0.1803;
+    // MCM mean 20.35099, u 0.09017, 95 % [20.1744, 20.5279].
+    #[test]
+    fn pitot_point_gum_and_monte_carlo() {
+        let inputs = point_inputs(Input::normal("Δp", "Pa", 250.0, 1.5).unwrap());
+        let g = gum(&PointVelocityModel, &inputs, &Correlations::none(), 0.9545).unwrap();
+        assert!((g.value - 20.351_18).abs() < 1e-5);
+        assert!((g.u - 0.090_14).abs() < 1e-5);
+        assert!((g.expanded - 0.1803).abs() < 2e-4, "k ≈ 2 for ν = ∞ at 95.45 %");
+        let mc = monte_carlo(&PointVelocityModel, &inputs, &Correlations::none(), &McOptions::default()).unwrap();
+        assert!((mc.mean - 20.350_99).abs() < 3e-4, "{}", mc.mean);
+        assert!((mc.u - 0.090_17).abs() < 3e-4, "{}", mc.u);
+        assert!(
+            (mc.symmetric.0 - 20.1744).abs() < 1e-3 && (mc.symmetric.1 - 20.5279).abs() < 1e-3,
+            "{:?}",
+            mc.symmetric
+        );
+        let g95 = gum(&PointVelocityModel, &inputs, &Correlations::none(), 0.95).unwrap();
+        assert!(validate(&g95, &mc, 1).passed, "near-linear case validates at 1 significant digit");
+    }
+
+    // check-values.md §7.2 low-Δp case [C]: Δp = 5 Pa with u = 0.5 Pa rectangular: v = 2.8781,
+    // GUM u 0.1442; MCM mean 2.8742, u 0.1446, 95 % [2.6305, 3.1066]: the non-linearity shifts
+    // the mean and makes the interval asymmetric.
+    #[test]
+    fn low_dp_non_linear_case() {
+        let inputs = point_inputs(Input::rectangular("Δp", "Pa", 5.0, 0.5 * 3f64.sqrt()).unwrap());
+        let g = gum(&PointVelocityModel, &inputs, &Correlations::none(), 0.95).unwrap();
+        assert!((g.value - 2.8781).abs() < 1e-4 && (g.u - 0.1442).abs() < 1e-4);
+        let mc = monte_carlo(&PointVelocityModel, &inputs, &Correlations::none(), &McOptions::default()).unwrap();
+        assert!((mc.mean - 2.8742).abs() < 1e-3, "{}", mc.mean);
+        assert!((mc.u - 0.1446).abs() < 1e-3);
+        assert!((mc.symmetric.0 - 2.6305).abs() < 2e-3 && (mc.symmetric.1 - 3.1066).abs() < 2e-3, "{:?}", mc.symmetric);
+        assert!(mc.mean < g.value - 0.002, "Monte Carlo mean is shifted below f(x)");
+        let (lo, hi) = (g.value - mc.symmetric.0, mc.symmetric.1 - g.value);
+        assert!(lo > hi, "asymmetric interval: {lo} below, {hi} above");
+    }
+
+    #[test]
+    fn traverse_budget_has_named_lines_and_exact_sensitivities() {
+        let dps: Vec<Input> = [180.0, 210.0, 230.0, 240.0, 235.0, 225.0, 205.0, 175.0]
+            .iter()
+            .enumerate()
+            .map(|(i, dp)| Input::normal(&format!("Δp point {}", i + 1), "Pa", *dp, 0.01 * dp).unwrap())
+            .collect();
+        let t = TraverseUncertainty::new(
+            Input::normal("C", "1", 0.998, 0.0025).unwrap(),
+            Input::normal("ρ", "kg/m³", 1.2, 0.0024).unwrap(),
+            Input::normal("D", "m", 0.8, 0.0008).unwrap(),
+            &MethodTerm::typical(crate::section::layout::LayoutRule::LogChebyshev),
+            dps,
+        )
+        .unwrap();
+        let g = t.gum(0.95).unwrap();
+        assert_eq!(g.budget.len(), 3 + 5 + 8);
+        assert!(g.budget.iter().any(|l| l.name.starts_with("layout/integration")));
+        // Shares add to 1 without correlations (definition).
+        assert!((g.budget.iter().map(|l| l.share).sum::<f64>() - 1.0).abs() < 1e-12);
+        // Relative sensitivities: ∂Q/∂D·D/Q = 2, ∂Q/∂ρ·ρ/Q = −1/2, ∂Q/∂C·C/Q = 1 (derived, GUM 5.1.6).
+        let rel = |i: usize| g.budget[i].sensitivity * g.budget[i].value / g.value;
+        assert!((rel(2) - 2.0).abs() < 1e-12 && (rel(1) + 0.5).abs() < 1e-12 && (rel(0) - 1.0).abs() < 1e-12);
+        assert!(g.to_string().contains("ν_eff"));
+        // Mean velocity: same relative uncertainty without the diameter's share (u(Q)² = u(U)²·A² + …).
+        let gv = t.clone().for_mean_velocity().gum(0.95).unwrap();
+        let rel_d = g.budget[2].contribution / g.value;
+        assert!(((g.u / g.value).powi(2) - (gv.u / gv.value).powi(2) - rel_d * rel_d).abs() < 1e-15);
+        assert!((g.value / gv.value - std::f64::consts::PI * 0.16).abs() < 1e-12);
+        let e = TraverseUncertainty::new(
+            Input::normal("C", "1", 1.0, 0.0).unwrap(),
+            Input::normal("ρ", "kg/m³", 1.2, 0.0).unwrap(),
+            Input::normal("D", "m", 1.0, 0.0).unwrap(),
+            &[],
+            vec![Input::normal("Δp", "Pa", -3.0, 0.1).unwrap()],
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("positive Δp"));
+        let _ = sensitivities(&t.model, &t.inputs.iter().map(|i| i.value).collect::<Vec<_>>());
+    }
+}

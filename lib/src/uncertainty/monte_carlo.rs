@@ -1,0 +1,394 @@
+//! Propagation of distributions by Monte Carlo (JCGM 101:2008): seeded and
+//! reproducible, multi-threaded, 10⁶ trials by default, probabilistically
+//! symmetric and shortest coverage intervals, the adaptive procedure (§7.9)
+//! and validation of a GUM result (§8).
+//!
+//! Trials are drawn in fixed chunks of 65 536, each chunk with its own
+//! generator seeded from the run's seed and the chunk's number, so the result
+//! depends on the seed and the number of trials only, not on the number of
+//! threads. Correlated inputs must be normal (JCGM 101 §6.4.8, multivariate
+//! Gaussian), drawn through the Cholesky factor of their correlation matrix.
+//!
+//! # References
+//! JCGM 101:2008 §6 (sampling), §7.5–7.7 (estimate, standard uncertainty,
+//! coverage intervals), §7.9 (adaptive procedure), §8 (validation).
+
+use rand::rngs::SmallRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::{Distribution as _, StandardNormal};
+use rayon::prelude::*;
+
+use crate::error::{Error, Result};
+use crate::uncertainty::{Correlations, Distribution, GumResult, Input, Model, cholesky};
+
+const CHUNK: usize = 65_536;
+
+/// Options of a Monte Carlo run.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct McOptions {
+    /// Number of trials M.
+    pub trials: usize,
+    /// Seed of the generator.
+    pub seed: u64,
+    /// Coverage probability p.
+    pub coverage: f64,
+}
+
+impl Default for McOptions {
+    fn default() -> Self {
+        Self { trials: 1_000_000, seed: 20_261_202, coverage: 0.95 }
+    }
+}
+
+/// Result of a Monte Carlo run.
+#[derive(Debug, Clone, PartialEq)]
+pub struct McResult {
+    /// Trials used.
+    pub trials: usize,
+    /// Mean of the model values (the estimate of y).
+    pub mean: f64,
+    /// Standard deviation of the model values (u(y)).
+    pub u: f64,
+    /// Probabilistically symmetric coverage interval.
+    pub symmetric: (f64, f64),
+    /// Shortest coverage interval.
+    pub shortest: (f64, f64),
+    /// Coverage probability.
+    pub coverage: f64,
+}
+
+fn splitmix(mut z: u64) -> u64 {
+    z = z.wrapping_add(0x9E37_79B9_7F4A_7C15);
+    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+    z ^ (z >> 31)
+}
+
+struct Sampler {
+    values: Vec<f64>,
+    dists: Vec<Distribution>,
+    /// For correlated normal inputs: their indices, standard deviations and Cholesky factor.
+    correlated: Vec<usize>,
+    sds: Vec<f64>,
+    chol: Vec<Vec<f64>>,
+}
+
+impl Sampler {
+    fn new(inputs: &[Input], correlations: &Correlations) -> Result<Self> {
+        let n = inputs.len();
+        let r = correlations.matrix(n)?;
+        let correlated: Vec<usize> = (0..n).filter(|&i| (0..n).any(|j| j != i && r[i][j] != 0.0)).collect();
+        for &i in &correlated {
+            if !matches!(inputs[i].distribution, Distribution::Normal { .. }) {
+                return Err(Error::Inconsistent {
+                    context: "Monte Carlo",
+                    message: format!(
+                        "input '{}' is correlated but not normal; JCGM 101 draws correlated inputs from a multivariate Gaussian",
+                        inputs[i].name
+                    ),
+                });
+            }
+        }
+        let sub: Vec<Vec<f64>> = correlated.iter().map(|&i| correlated.iter().map(|&j| r[i][j]).collect()).collect();
+        let chol = cholesky(&sub).map_err(|_| Error::Inconsistent {
+            context: "Monte Carlo",
+            message: "correlation matrix is not positive semi-definite".into(),
+        })?;
+        Ok(Self {
+            values: inputs.iter().map(|i| i.value).collect(),
+            dists: inputs.iter().map(|i| i.distribution.clone()).collect(),
+            sds: correlated.iter().map(|&i| inputs[i].standard_uncertainty()).collect(),
+            correlated,
+            chol,
+        })
+    }
+
+    fn draw(&self, rng: &mut SmallRng, x: &mut [f64], z: &mut [f64]) {
+        for (i, d) in self.dists.iter().enumerate() {
+            x[i] = self.values[i]
+                + match d {
+                    Distribution::Normal { sd } => {
+                        let z: f64 = StandardNormal.sample(rng);
+                        sd * z
+                    }
+                    Distribution::Rectangular { half_width } => half_width * (2.0 * rng.random::<f64>() - 1.0),
+                    Distribution::Triangular { half_width } => half_width * (rng.random::<f64>() - rng.random::<f64>()),
+                    Distribution::Samples(dev) => dev[rng.random_range(0..dev.len())],
+                };
+        }
+        if !self.correlated.is_empty() {
+            for zi in z.iter_mut() {
+                *zi = StandardNormal.sample(rng);
+            }
+            for (a, &i) in self.correlated.iter().enumerate() {
+                let mut s = 0.0;
+                for (b, zb) in z.iter().enumerate().take(a + 1) {
+                    s += self.chol[a][b] * zb;
+                }
+                x[i] = self.values[i] + self.sds[a] * s;
+            }
+        }
+    }
+}
+
+/// Model values for `trials` trials, in trial order (reproducible for a seed).
+pub fn sample_model<M: Model>(
+    model: &M,
+    inputs: &[Input],
+    correlations: &Correlations,
+    trials: usize,
+    seed: u64,
+) -> Result<Vec<f64>> {
+    if trials == 0 {
+        return Err(Error::OutOfRange {
+            context: "Monte Carlo",
+            param: "number of trials",
+            value: 0.0,
+            unit: "",
+            allowed: "at least 1".into(),
+        });
+    }
+    if inputs.is_empty() {
+        return Err(Error::Inconsistent { context: "Monte Carlo", message: "no inputs".into() });
+    }
+    let sampler = Sampler::new(inputs, correlations)?;
+    let mut out = vec![0.0; trials];
+    out.par_chunks_mut(CHUNK).enumerate().for_each(|(c, chunk)| {
+        let mut rng = SmallRng::seed_from_u64(splitmix(seed ^ splitmix(c as u64)));
+        let mut x = vec![0.0; inputs.len()];
+        let mut z = vec![0.0; sampler.correlated.len()];
+        for y in chunk.iter_mut() {
+            sampler.draw(&mut rng, &mut x, &mut z);
+            *y = model.eval(&x);
+        }
+    });
+    if let Some(i) = out.iter().position(|y| !y.is_finite()) {
+        return Err(Error::Inconsistent {
+            context: "Monte Carlo",
+            message: format!(
+                "trial {} gave a non-finite model value; an input's distribution reaches outside the model's domain (e.g. a negative Δp under a square root)",
+                i + 1
+            ),
+        });
+    }
+    Ok(out)
+}
+
+/// Summary of model values: mean, standard deviation and both coverage intervals.
+pub fn summarize(mut values: Vec<f64>, coverage: f64) -> Result<McResult> {
+    if !(coverage > 0.0 && coverage < 1.0) {
+        return Err(Error::OutOfRange {
+            context: "Monte Carlo",
+            param: "coverage probability",
+            value: coverage,
+            unit: "",
+            allowed: "in (0, 1)".into(),
+        });
+    }
+    let m = values.len();
+    if m < 2 {
+        return Err(Error::Inconsistent { context: "Monte Carlo", message: "needs at least 2 trials".into() });
+    }
+    let mean = values.par_iter().sum::<f64>() / m as f64;
+    let var = values.par_iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (m as f64 - 1.0);
+    values.par_sort_unstable_by(f64::total_cmp);
+    // JCGM 101 §7.7: q = pM + ½ rounded; symmetric interval [y_(r), y_(r+q)] with r = (M − q)/2.
+    let q = ((coverage * m as f64) + 0.5).floor() as usize;
+    let q = q.clamp(1, m - 1);
+    let r = (m - q) / 2;
+    let symmetric = (values[r], values[(r + q).min(m - 1)]);
+    let (mut best, mut best_r) = (f64::INFINITY, 0);
+    for r in 0..m - q {
+        let w = values[r + q] - values[r];
+        if w < best {
+            best = w;
+            best_r = r;
+        }
+    }
+    Ok(McResult { trials: m, mean, u: var.sqrt(), symmetric, shortest: (values[best_r], values[best_r + q]), coverage })
+}
+
+/// A Monte Carlo run of M trials (JCGM 101 §7).
+///
+/// ```
+/// use stagna::uncertainty::{Correlations, Input, Model, Real};
+/// use stagna::uncertainty::monte_carlo::{monte_carlo, McOptions};
+/// struct Sum;
+/// impl Model for Sum { fn eval<R: Real>(&self, x: &[R]) -> R { x[0] + x[1] + x[2] + x[3] } }
+/// let inputs: Vec<Input> = (0..4).map(|i| Input::normal(&format!("X{i}"), "1", 0.0, 1.0).unwrap()).collect();
+/// let r = monte_carlo(&Sum, &inputs, &Correlations::none(), &McOptions::default()).unwrap();
+/// assert!((r.u - 2.0).abs() < 0.01); // JCGM 101 §9.2.2: u(y) = 2
+/// ```
+pub fn monte_carlo<M: Model>(
+    model: &M,
+    inputs: &[Input],
+    correlations: &Correlations,
+    opts: &McOptions,
+) -> Result<McResult> {
+    summarize(sample_model(model, inputs, correlations, opts.trials, opts.seed)?, opts.coverage)
+}
+
+/// The numerical tolerance δ of JCGM 101 §7.9.2 for u(y) stated to `ndig` significant digits:
+/// u = c·10^l with c an `ndig`-digit integer, δ = ½·10^l.
+pub fn numerical_tolerance(u: f64, ndig: u32) -> f64 {
+    if u <= 0.0 || !u.is_finite() {
+        return 0.0;
+    }
+    let l = u.log10().floor() as i32 - (ndig as i32 - 1);
+    0.5 * 10f64.powi(l)
+}
+
+/// The adaptive Monte Carlo procedure of JCGM 101 §7.9: sequences of M = max(⌈100/(1 − p)⌉, 10⁴)
+/// trials until twice the standard deviations of the sequences' means, standard uncertainties
+/// and interval ends are all within δ for `ndig` significant digits of u(y). At most
+/// `max_trials` trials.
+pub fn monte_carlo_adaptive<M: Model>(
+    model: &M,
+    inputs: &[Input],
+    correlations: &Correlations,
+    ndig: u32,
+    coverage: f64,
+    seed: u64,
+    max_trials: usize,
+) -> Result<(McResult, f64)> {
+    let m = ((100.0 / (1.0 - coverage)).ceil() as usize).max(10_000);
+    let mut all = Vec::new();
+    let mut stats: Vec<[f64; 4]> = Vec::new();
+    loop {
+        let h = stats.len() as u64;
+        let run = sample_model(model, inputs, correlations, m, splitmix(seed.wrapping_add(h)))?;
+        all.extend_from_slice(&run);
+        let s = summarize(run, coverage)?;
+        stats.push([s.mean, s.u, s.symmetric.0, s.symmetric.1]);
+        if stats.len() >= 2 {
+            let hf = stats.len() as f64;
+            let sd_of_mean = |k: usize| {
+                let mean = stats.iter().map(|s| s[k]).sum::<f64>() / hf;
+                (stats.iter().map(|s| (s[k] - mean).powi(2)).sum::<f64>() / (hf * (hf - 1.0))).sqrt()
+            };
+            let u_all = {
+                let mean = all.iter().sum::<f64>() / all.len() as f64;
+                (all.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (all.len() as f64 - 1.0)).sqrt()
+            };
+            let delta = numerical_tolerance(u_all, ndig);
+            if (0..4).all(|k| 2.0 * sd_of_mean(k) <= delta) || all.len() + m > max_trials {
+                return Ok((summarize(all, coverage)?, delta));
+            }
+        }
+    }
+}
+
+/// Validation of a GUM result by a Monte Carlo one (JCGM 101 §8).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Validation {
+    /// Numerical tolerance δ.
+    pub tolerance: f64,
+    /// |y − U − y_low|.
+    pub d_low: f64,
+    /// |y + U − y_high|.
+    pub d_high: f64,
+    /// True when both are within δ.
+    pub passed: bool,
+}
+
+/// Compares the GUM interval y ± U with the Monte Carlo symmetric interval at tolerance δ
+/// for `ndig` significant digits of the GUM u_c.
+pub fn validate(gum: &GumResult, mc: &McResult, ndig: u32) -> Validation {
+    let delta = numerical_tolerance(gum.u, ndig);
+    let d_low = (gum.value - gum.expanded - mc.symmetric.0).abs();
+    let d_high = (gum.value + gum.expanded - mc.symmetric.1).abs();
+    Validation { tolerance: delta, d_low, d_high, passed: d_low <= delta && d_high <= delta }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::uncertainty::flow_models::PointVelocityModel;
+    use crate::uncertainty::gum;
+
+    fn pitot_inputs() -> Vec<Input> {
+        vec![
+            Input::normal("C", "1", 0.997, 0.003).unwrap(),
+            Input::normal("Δp", "Pa", 250.0, 1.5).unwrap(),
+            Input::normal("ρ", "kg/m³", 1.2, 0.003).unwrap(),
+        ]
+    }
+
+    #[test]
+    fn reproducible_and_independent_of_threads() {
+        let i = pitot_inputs();
+        let a = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7).unwrap();
+        let b = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7).unwrap();
+        assert_eq!(a, b);
+        let one = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+        let c = one.install(|| sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7).unwrap());
+        assert_eq!(a, c);
+        let d = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 8).unwrap();
+        assert_ne!(a, d);
+    }
+
+    // JCGM 101 §7.9.2 example of δ: u(y) = 0.09014 to 2 significant digits = 90 × 10⁻³ → δ = 0.0005.
+    #[test]
+    fn tolerance_and_adaptive_procedure() {
+        assert!((numerical_tolerance(0.090_14, 2) - 0.0005).abs() < 1e-15);
+        assert!((numerical_tolerance(2.0, 1) - 0.5).abs() < 1e-15);
+        let i = pitot_inputs();
+        let (r, delta) =
+            monte_carlo_adaptive(&PointVelocityModel, &i, &Correlations::none(), 2, 0.95, 11, 5_000_000).unwrap();
+        assert!((delta - 0.0005).abs() < 1e-15);
+        assert!(r.trials >= 20_000 && r.trials % 10_000 == 0 && r.trials < 5_000_000);
+        let g = gum(&PointVelocityModel, &i, &Correlations::none(), 0.95).unwrap();
+        let v = validate(&g, &r, 2);
+        assert!(v.passed, "{v:?}"); // near-linear: GUM validated at 2 digits
+    }
+
+    #[test]
+    fn shortest_interval_of_a_skewed_output() {
+        // y = x² with x ~ N(0, 1): shortest 95 % interval starts at 0 (chi-square, 1 dof:
+        // [0, 3.841]; common practice, no source), the symmetric one at 0.000982.
+        struct Square;
+        impl Model for Square {
+            fn eval<R: crate::uncertainty::Real>(&self, x: &[R]) -> R {
+                x[0] * x[0]
+            }
+        }
+        let i = vec![Input::normal("x", "1", 0.0, 1.0).unwrap()];
+        let r = monte_carlo(&Square, &i, &Correlations::none(), &McOptions::default()).unwrap();
+        assert!(r.shortest.0 < 1e-4 && (r.shortest.1 - 3.841).abs() < 0.03, "{:?}", r.shortest);
+        assert!((r.symmetric.0 - 0.000_982).abs() < 2e-4 && (r.symmetric.1 - 5.024).abs() < 0.05, "{:?}", r.symmetric);
+    }
+
+    #[test]
+    fn bad_requests() {
+        let i = pitot_inputs();
+        let e =
+            monte_carlo(&PointVelocityModel, &i, &Correlations::none(), &McOptions { trials: 0, ..Default::default() })
+                .unwrap_err();
+        assert!(e.to_string().contains("number of trials must be at least 1"), "{e}");
+        let rect = vec![Input::rectangular("a", "1", 1.0, 1.0).unwrap(), Input::normal("b", "1", 1.0, 1.0).unwrap()];
+        struct Add2;
+        impl Model for Add2 {
+            fn eval<R: crate::uncertainty::Real>(&self, x: &[R]) -> R {
+                x[0] + x[1]
+            }
+        }
+        let corr = Correlations::none().with(0, 1, 0.5).unwrap();
+        assert!(
+            monte_carlo(&Add2, &rect, &corr, &McOptions::default()).unwrap_err().to_string().contains("not normal")
+        );
+        // Δp reaching below zero under the square root: a clear error, never NaN results.
+        let wide = vec![
+            Input::normal("C", "1", 1.0, 0.0).unwrap(),
+            Input::rectangular("Δp", "Pa", 1.0, 2.0).unwrap(),
+            Input::normal("ρ", "kg/m³", 1.2, 0.0).unwrap(),
+        ];
+        let e = monte_carlo(
+            &PointVelocityModel,
+            &wide,
+            &Correlations::none(),
+            &McOptions { trials: 10_000, ..Default::default() },
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("non-finite"), "{e}");
+    }
+}
