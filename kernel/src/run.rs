@@ -2,7 +2,9 @@
 //!
 //! Each input file gets its own session (in parallel, with a progress bar on a
 //! terminal) with `input`, `input_name` and `output_dir` set; relative output paths go
-//! to the output folder (a subfolder per input file when there are several); input
+//! to the output folder (a subfolder per input file when there are several, unique per
+//! input: its path relative to the inputs' common folder); temporaries that an
+//! interrupted earlier run left in the output folder are removed first; input
 //! files and the script are never overwritten; every write goes through a temporary
 //! file and a rename. The first failing file's message ends the run with status 1
 //! after the others finish.
@@ -113,6 +115,53 @@ fn run_one(args: &RunArgs, script: &str, file: Option<&Path>, out_dir: &Path, pr
     }
 }
 
+/// One output subfolder per input file, unique across the batch: the input's path
+/// relative to the folder all inputs share, without its extension (`siteX/run.csv` and
+/// `siteY/run.csv` go to `OUT/siteX/run` and `OUT/siteY/run`). Inputs that differ only
+/// in their extension keep it (`run-csv`, `run-parquet`); a file given twice is refused.
+pub fn output_dirs(files: &[PathBuf], out: &Path) -> Result<Vec<PathBuf>, String> {
+    let abs: Vec<PathBuf> = files
+        .iter()
+        .map(|f| std::fs::canonicalize(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display())))
+        .collect::<Result<_, _>>()?;
+    for (i, a) in abs.iter().enumerate() {
+        if let Some(j) = abs[..i].iter().position(|b| b == a) {
+            return Err(format!(
+                "{}: the same input file is given twice (also as {}); give each file once",
+                files[i].display(),
+                files[j].display()
+            ));
+        }
+    }
+    let mut common: PathBuf = abs[0].parent().map(Path::to_path_buf).unwrap_or_default();
+    for a in &abs[1..] {
+        while !a.starts_with(&common) {
+            if !common.pop() {
+                break;
+            }
+        }
+    }
+    let rel = |a: &Path, keep_ext: bool| -> PathBuf {
+        let r = a.strip_prefix(&common).unwrap_or(a);
+        let name = match (keep_ext, r.extension()) {
+            (true, Some(ext)) => {
+                format!("{}-{}", r.file_stem().unwrap_or_default().to_string_lossy(), ext.to_string_lossy())
+            }
+            _ => r.file_stem().map(|s| s.to_string_lossy().to_string()).unwrap_or_else(|| "input".into()),
+        };
+        r.with_file_name(name)
+    };
+    let plain: Vec<PathBuf> = abs.iter().map(|a| rel(a, false)).collect();
+    Ok(abs
+        .iter()
+        .zip(&plain)
+        .map(|(a, p)| {
+            let clash = plain.iter().filter(|q| *q == p).count() > 1;
+            out.join(if clash { rel(a, true) } else { p.clone() })
+        })
+        .collect())
+}
+
 /// Runs the batch; returns the exit status.
 pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     let script = std::fs::read_to_string(&args.script)
@@ -144,7 +193,12 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         return Ok(0);
     }
 
+    let removed = stagna::io::table::remove_stale_temporaries(&args.out);
+    if removed > 0 {
+        eprintln!("{}: removed {removed} temporary file(s) left by an interrupted earlier run", args.out.display());
+    }
     let several = args.files.len() > 1;
+    let dirs = if several { output_dirs(&args.files, &args.out)? } else { vec![args.out.clone()] };
     let bar = if several && std::io::stderr().is_terminal() {
         let b = indicatif::ProgressBar::new(args.files.len() as u64);
         if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} files  {elapsed}  {msg}") {
@@ -158,15 +212,10 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     let results: Vec<RunResult> = pool.install(|| {
         args.files
             .par_iter()
-            .map(|f| {
-                let dir = if several {
-                    args.out
-                        .join(f.file_stem().map(|s| s.to_string_lossy().to_string()).unwrap_or_else(|| "input".into()))
-                } else {
-                    args.out.clone()
-                };
-                let r = match std::fs::create_dir_all(&dir) {
-                    Ok(()) => run_one(args, &script, Some(f), &dir, &protected),
+            .zip(dirs.par_iter())
+            .map(|(f, dir)| {
+                let r = match std::fs::create_dir_all(dir) {
+                    Ok(()) => run_one(args, &script, Some(f), dir, &protected),
                     Err(e) => RunResult {
                         printed: vec![],
                         error: Some(format!("{}: cannot create folder: {e}", dir.display())),

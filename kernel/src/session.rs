@@ -448,18 +448,15 @@ impl Session {
 
     /// Completions at a byte position: (start of the replaced word, candidates).
     pub fn complete(&self, line: &str, pos: usize) -> (usize, Vec<String>) {
-        let pos = pos.min(line.len());
+        let pos = char_boundary(line, pos);
         let before = &line[..pos];
-        let start = before
-            .rfind(|c: char| !(c.is_alphanumeric() || c == '_'))
-            .map_or(0, |i| i + before[i..].chars().next().map_or(1, char::len_utf8));
+        let start = after_last(before, |c| !(c.is_alphanumeric() || c == '_'));
         let word = &before[start..];
         let mut out: Vec<String> = Vec::new();
         if start > 0 && before[..start].ends_with('.') {
             let recv_end = start - 1;
             let recv_text = &before[..recv_end];
-            let recv_start =
-                recv_text.rfind(|c: char| !(c.is_alphanumeric() || c == '_' || c == '.')).map_or(0, |i| i + 1);
+            let recv_start = after_last(recv_text, |c| !(c.is_alphanumeric() || c == '_' || c == '.'));
             let recv = &recv_text[recv_start..];
             let is_number = !recv.is_empty() && recv.chars().all(|c| c.is_ascii_digit() || c == '.' || c == '_');
             if is_number {
@@ -490,6 +487,23 @@ impl Session {
         (start, out)
     }
 
+    /// Help for the name under a byte position (for the kernel's inspection): the word
+    /// around the cursor, `Type.method` paths included; `None` when there is no word or
+    /// no help for it. Any position is accepted (clamped to the text, moved back to a
+    /// character boundary).
+    pub fn inspect(&self, code: &str, pos: usize) -> Option<String> {
+        let is_word = |c: char| c.is_alphanumeric() || c == '_' || c == '.';
+        let b = char_boundary(code, pos);
+        let start = after_last(&code[..b], |c| !is_word(c));
+        let end = code[b..].find(|c: char| !is_word(c)).map_or(code.len(), |i| b + i);
+        let word = code[start..end].trim_matches('.');
+        if word.is_empty() {
+            return None;
+        }
+        let text = self.help(word);
+        (!text.starts_with("no help for")).then_some(text)
+    }
+
     /// Help for a name (function, Type.method, type name, variable) from the catalog.
     pub fn help(&self, name: &str) -> String {
         if let Some(v) = self.scope.get(name.trim()) {
@@ -504,6 +518,21 @@ impl Default for Session {
     fn default() -> Self {
         Self::new()
     }
+}
+
+/// `pos` clamped to the text and moved back to the start of the character it falls in.
+fn char_boundary(s: &str, pos: usize) -> usize {
+    let mut p = pos.min(s.len());
+    while !s.is_char_boundary(p) {
+        p -= 1;
+    }
+    p
+}
+
+/// The byte just after the last character of `s` that matches `sep` (0 when none does):
+/// where the word that ends `s` starts, whatever the width of the separator.
+fn after_last(s: &str, sep: impl Fn(char) -> bool) -> usize {
+    s.char_indices().rev().find(|(_, c)| sep(*c)).map_or(0, |(i, c)| i + c.len_utf8())
 }
 
 /// The script language's keywords (for completion and highlighting).
@@ -843,8 +872,10 @@ mod tests {
         eval(&mut s, "let t = table_from(#{h: [1.0, 2.0, 0.0]}).unit(\"h\", \"mm\");");
         let r = s.eval("let bad = t.with_column(\"h\", col(\"h\") / col(\"h\")); bad[\"h\"]");
         assert!(r.is_ok());
-        let e = err(&mut s, "u_tube(gauge_water()).dp(t[\"h\"] / 0.0 * 0.0, 20.degC, 1.2.kg_m3)");
-        assert!(e.message.contains("row 1"), "{e:?}");
+        // Row 3 is 0/0 (NaN): a column division by a scalar zero is refused where it
+        // happens (issue 16), so the NaN comes from a polars expression here.
+        let e = err(&mut s, "u_tube(gauge_water()).dp(bad[\"h\"] * 1.mm, 20.degC, 1.2.kg_m3)");
+        assert!(e.message.contains("row 3"), "{e:?}");
     }
 
     #[test]
@@ -863,6 +894,61 @@ mod tests {
         assert!(s.help("water").contains("IAPWS"));
         assert!(s.help("Probe").contains(".velocity"));
         assert!(s.help("probe").contains(".velocity"), "help on a variable shows its type");
+    }
+
+    #[test]
+    fn cursors_beside_multi_byte_characters_never_panic() {
+        // Regression (issue 16): a cursor after a non-word character of more than one
+        // byte (`°`, `·`, `×`, `≥`) panicked the kernel's evaluation thread.
+        let mut s = Session::new();
+        eval(&mut s, "let probe = pitot_static(0.99);");
+        for code in ["let t = 20°", "a·b", "2×probe.velocity", "x ≥ 3", "°", "×probe", "≥water"] {
+            for pos in 0..=code.len() + 2 {
+                let _ = s.complete(code, pos);
+                let _ = s.inspect(code, pos);
+            }
+        }
+        assert!(s.inspect("×water", "×water".len()).is_some_and(|h| h.contains("IAPWS")));
+        let (start, c) = s.complete("2×probe.vel", "2×probe.vel".len());
+        assert_eq!(start, "2×probe.".len());
+        assert!(c.contains(&"velocity".to_string()), "{c:?}");
+        assert_eq!(s.inspect("let t = 20°", "let t = 20°".len()), None);
+    }
+
+    #[test]
+    fn non_finite_results_and_plain_integers_get_clear_errors() {
+        // Regressions (issue 16): these printed inf, wrapped dimensions around, gave
+        // NaN, or fell through to the engine's "no function +".
+        let mut s = Session::new();
+        for (src, want) in [
+            ("qty(\"1e400 Pa\")", "too large"),
+            ("1.m / 0", "not a finite number"),
+            ("1.m / 0.m", "not a finite number"),
+            ("1 / 0.m", "not a finite number"),
+            ("qty(\"1 m^100*m^100\")", "±127"),
+            ("((1.m**8)**8)**2", "±127"),
+            ("1.m + 5", "cannot add a plain number (5)"),
+            ("5 + 1.m", "cannot add a plain number (5)"),
+            ("1.m - 5", "cannot subtract a plain number (5)"),
+            ("2.5 - 1.m", "cannot subtract a plain number (2.5)"),
+        ] {
+            let e = err(&mut s, src);
+            assert!(e.message.contains(want), "{src}: {}", e.message);
+        }
+        assert!(err(&mut s, "1.m + 5").message.contains("5.m"), "the hint shows the literal to write");
+        eval(&mut s, "let one = table_from(#{v: [1.5]}).unit(\"v\", \"m/s\");");
+        let e = err(&mut s, "one[\"v\"].std()");
+        assert!(e.message.contains("at least 2 values"), "{}", e.message);
+        eval(
+            &mut s,
+            "let gap = table_from(#{v: [1.0, 2.0, 4.0]}).with_column(\"v\", col(\"v\") / (col(\"v\") - 2.0) * 0.0).unit(\"v\", \"m/s\");",
+        );
+        let e = err(&mut s, "gap[\"v\"].mean()");
+        assert!(e.message.contains("row 2") && e.message.contains("drop_missing"), "{}", e.message);
+        let m = s.eval("gap[\"v\"].drop_missing().mean()").unwrap().value.unwrap().text;
+        assert!(m.starts_with("0 m/s"), "{m}");
+        let e = err(&mut s, "one[\"v\"] / 0.0");
+        assert!(e.message.contains("row 1") && e.message.contains("'v' / 0"), "{}", e.message);
     }
 
     #[test]

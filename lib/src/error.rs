@@ -109,6 +109,15 @@ pub enum Error {
         /// What is wrong, with the available columns where useful.
         message: String,
     },
+    /// Arithmetic whose result is no usable quantity: not finite (division by zero,
+    /// overflow) or a dimension exponent out of range.
+    #[error("{operation}: {message}")]
+    Arithmetic {
+        /// The operation as written, e.g. "1 m / 0".
+        operation: String,
+        /// What went wrong and what to do.
+        message: String,
+    },
     /// Inputs that are individually valid but do not fit together.
     #[error("{context}: {message}")]
     Inconsistent {

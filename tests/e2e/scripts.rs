@@ -173,3 +173,53 @@ fn batch_runs_many_files_in_parallel_and_never_overwrites_inputs() {
     assert!(!o.status.success());
     assert!(String::from_utf8_lossy(&o.stderr).contains("operation limit"));
 }
+
+#[test]
+fn batch_outputs_are_unique_per_input_and_every_written_file_is_checked() {
+    // Regressions (issue 16): inputs with one file name in two folders wrote to one
+    // output folder (one result silently lost); the CSV units sidecar could overwrite
+    // an input; a killed writer's temporary file stayed behind.
+    let dir = tempdir("unique");
+    let data = root().join("demo-data/hollin-brook-main.csv");
+    for site in ["siteX", "siteY"] {
+        std::fs::create_dir_all(dir.join(site)).expect("dir");
+        std::fs::copy(&data, dir.join(site).join("run.csv")).expect("copy");
+    }
+    std::fs::copy(&data, dir.join("siteX").join("run.tsv")).expect("copy");
+    let script = dir.join("tag.rhai");
+    std::fs::write(&script, "table_from(#{where: [input]}).write(\"result.csv\");").expect("script");
+    let out = dir.join("out");
+    std::fs::create_dir_all(out.join("siteX")).expect("dir");
+    let stale = out.join("siteX").join(format!(".result.csv.{}-0.stagna-tmp", u32::MAX - 1));
+    std::fs::write(&stale, "half a file").expect("stale");
+    let inputs = [dir.join("siteX/run.csv"), dir.join("siteY/run.csv"), dir.join("siteX/run.tsv")];
+    let mut args = vec!["run", script.to_str().unwrap_or_default(), "-j", "3", "-o", out.to_str().unwrap_or_default()];
+    args.extend(inputs.iter().map(|p| p.to_str().unwrap_or_default()));
+    let o = stagna(&args);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("removed 1 temporary file"));
+    assert!(!stale.exists());
+    for (sub, input) in [("siteX/run-csv", &inputs[0]), ("siteY/run", &inputs[1]), ("siteX/run-tsv", &inputs[2])] {
+        let text = std::fs::read_to_string(out.join(sub).join("result.csv")).expect("each input has its own result");
+        assert!(text.contains(input.to_str().unwrap_or_default()), "{sub}: {text}");
+    }
+
+    // The same file twice is refused before anything runs.
+    let o = stagna(&["run", script.to_str().unwrap_or_default(), args[6], args[6], "-o", args[5]]);
+    assert!(!o.status.success() && String::from_utf8_lossy(&o.stderr).contains("given twice"));
+
+    // A units sidecar that would land on an input file is refused; the input is intact.
+    let victim = dir.join("t.csv.units.csv");
+    std::fs::write(&victim, "column,unit\nkeep,me\n").expect("victim");
+    std::fs::write(&script, "table_from(#{a: [1.0]}).unit(\"a\", \"mm\").write(\"t.csv\");").expect("script");
+    let o = stagna(&[
+        "run",
+        script.to_str().unwrap_or_default(),
+        victim.to_str().unwrap_or_default(),
+        "-o",
+        dir.to_str().unwrap_or_default(),
+    ]);
+    assert!(!o.status.success());
+    assert!(String::from_utf8_lossy(&o.stderr).contains("refusing to overwrite an input file"));
+    assert_eq!(std::fs::read_to_string(&victim).expect("read"), "column,unit\nkeep,me\n");
+}

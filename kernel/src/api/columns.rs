@@ -2,7 +2,7 @@
 //! arithmetic, unit conversion and statistics run in Rust over the whole column.
 
 use polars::prelude::DataType;
-use rhai::{Array, Dynamic};
+use rhai::{Array, Dynamic, NativeCallContext};
 use stagna::*;
 
 use super::tables::{Tbl, perr};
@@ -32,8 +32,8 @@ fn col_binop(a: &Col, b: &Col, op: char) -> Res<Col> {
             let q = lib(qa.try_sub(qb))?;
             (q.dimension, q.absolute_temperature)
         }
-        '*' => ((qa * qb).dimension, false),
-        _ => ((qa / qb).dimension, false),
+        '*' => (lib(qa.try_mul(qb))?.dimension, false),
+        _ => (lib(qa.try_div(qb))?.dimension, false),
     };
     let v: Vec<f64> =
         a.si.iter()
@@ -45,8 +45,20 @@ fn col_binop(a: &Col, b: &Col, op: char) -> Res<Col> {
                 _ => x / y,
             })
             .collect();
+    finite_rows(&v, &a.si, &b.si, || format!("'{}' {op} '{}'", a.name, b.name))?;
     let unit = if matches!(op, '+' | '-') && abs_t == a.absolute_temperature { a.unit.clone() } else { None };
     Ok(Col { name: a.name.clone(), si: std::sync::Arc::new(v), dimension: dim, absolute_temperature: abs_t, unit })
+}
+
+/// Refuses a result column with a non-finite value where the inputs were finite (a
+/// division by zero or an overflow), naming the first such row (counted from 1).
+/// Missing inputs (NaN) stay missing and are left to the functions that read them.
+fn finite_rows(out: &[f64], a: &[f64], b: &[f64], op: impl Fn() -> String) -> Res<()> {
+    let at = |c: &[f64], i: usize| if c.len() == 1 { c[0] } else { c[i] };
+    if let Some(i) = (0..out.len()).find(|&i| !out[i].is_finite() && at(a, i).is_finite() && at(b, i).is_finite()) {
+        return Err(rt(format!("row {}: {} is not a finite number (a division by zero or an overflow)", i + 1, op())));
+    }
+    Ok(())
 }
 
 fn col_scale(a: &Col, k: f64, q: Option<&Q>, divide: bool, q_first: bool) -> Res<Col> {
@@ -55,12 +67,12 @@ fn col_scale(a: &Col, k: f64, q: Option<&Q>, divide: bool, q_first: bool) -> Res
             if q.q.absolute_temperature || a.absolute_temperature {
                 return Err(rt("cannot multiply or divide absolute temperatures; use differences or .si"));
             }
-            let unit = Quantity { si: 1.0, dimension: a.dimension, absolute_temperature: false };
-            let d = if divide {
-                if q_first { (q.q / unit).dimension } else { (unit / q.q).dimension }
-            } else {
-                (unit * q.q).dimension
-            };
+            let (ad, qd) = (a.dimension, q.q.dimension);
+            let d =
+                if divide { if q_first { qd.checked_div(ad) } else { ad.checked_div(qd) } } else { ad.checked_mul(qd) }
+                    .ok_or_else(|| {
+                        rt(format!("column '{}': a dimension exponent would leave the range ±127", a.name))
+                    })?;
             (d, q.q.si)
         }
         None => {
@@ -78,6 +90,14 @@ fn col_scale(a: &Col, k: f64, q: Option<&Q>, divide: bool, q_first: bool) -> Res
                 (true, true) => kk / x,
             })
             .collect();
+    finite_rows(&v, &a.si, &[kk], || {
+        let k = q.map_or_else(|| format_number(kk), |q| q.show(UnitSystem::Si));
+        match (divide, q_first) {
+            (false, _) => format!("'{}' × {k}", a.name),
+            (true, false) => format!("'{}' / {k}", a.name),
+            (true, true) => format!("{k} / '{}'", a.name),
+        }
+    })?;
     let unit = if q.is_none() && !divide || q.is_none() && !q_first { a.unit.clone() } else { None };
     Ok(Col { name: a.name.clone(), si: std::sync::Arc::new(v), dimension: dim, absolute_temperature: false, unit })
 }
@@ -222,6 +242,21 @@ fn statistics(r: &mut Registrar<'_>) {
                 if c.si.is_empty() {
                     return Err(rt(format!("{name} of an empty column")));
                 }
+                if let Some(i) = c.si.iter().position(|v| !v.is_finite()) {
+                    let n = c.si.iter().filter(|v| !v.is_finite()).count();
+                    return Err(rt(format!(
+                        "column '{}': row {} is empty or not a number ({n} of {} rows are); to leave such rows out, write .drop_missing().{name}()",
+                        c.name,
+                        i + 1,
+                        c.si.len()
+                    )));
+                }
+                if name == "std" && c.si.len() < 2 {
+                    return Err(rt(format!(
+                        "column '{}': a standard deviation needs at least 2 values, the column has 1",
+                        c.name
+                    )));
+                }
                 let mut q = col_stat(c, f);
                 if name == "std" || name == "sum" {
                     q.q.absolute_temperature = false;
@@ -233,6 +268,22 @@ fn statistics(r: &mut Registrar<'_>) {
             },
         );
     }
+    r.method(
+        "Column",
+        "drop_missing",
+        &Doc::new("column.drop_missing() -> Column", "The column without its empty or not-a-number rows (as CSV files give empty cells); says on the error stream how many rows were left out, so that nothing is skipped silently.")
+            .example("let t = table_from(#{v: [1.0, 2.0, 4.0]}).unit(\"v\", \"m/s\");\nprint(t[\"v\"].drop_missing().mean());")
+            .source("common practice, no source"),
+        |ctx: NativeCallContext, c: &mut Col| -> Res<Col> {
+            let kept: Vec<f64> = c.si.iter().copied().filter(|v| v.is_finite()).collect();
+            let dropped = c.si.len() - kept.len();
+            if dropped > 0 {
+                let msg = format!("column '{}': {dropped} of {} rows empty or not a number, left out", c.name, c.si.len());
+                ctx.call_native_fn::<()>("eprint", (rhai::ImmutableString::from(msg),))?;
+            }
+            Ok(Col { si: std::sync::Arc::new(kept), ..c.clone() })
+        },
+    );
     r.method(
         "Column",
         "sqrt_mean",

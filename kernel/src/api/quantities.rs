@@ -82,13 +82,27 @@ fn keep_unit(a: &Q, b: &Q) -> Option<std::sync::Arc<str>> {
     a.unit.clone().or_else(|| b.unit.clone())
 }
 
-fn scale(a: &Q, k: f64) -> Q {
+/// `a × k` (or `a / k` when `divide`), refused when the result is not finite.
+fn scale(a: &Q, k: f64, divide: bool) -> Res<Q> {
     let mut q = a.q;
     if q.absolute_temperature {
         q.absolute_temperature = false; // a scaled absolute temperature is not a temperature
     }
-    q.si *= k;
-    Q { q, unit: if a.q.absolute_temperature { None } else { a.unit.clone() } }
+    q.si = if divide { q.si / k } else { q.si * k };
+    if !q.si.is_finite() {
+        let op = if divide { "/" } else { "×" };
+        return Err(rt(format!(
+            "{} {op} {}: the result is not a finite number (a division by zero or an overflow)",
+            a.show(UnitSystem::Si),
+            format_number(k)
+        )));
+    }
+    Ok(Q { q, unit: if a.q.absolute_temperature { None } else { a.unit.clone() } })
+}
+
+/// `k / a`, refused when the result is not finite or its dimension out of range.
+fn invert(k: f64, a: &Q) -> Res<Q> {
+    Ok(Q { q: lib(Quantity::number(k).try_div(a.q))?, unit: None })
 }
 
 fn cmp(a: &Q, b: &Q) -> Res<std::cmp::Ordering> {
@@ -291,28 +305,30 @@ fn arithmetic(r: &mut Registrar<'_>) {
         if a.q.absolute_temperature || b.q.absolute_temperature {
             return Err(rt("cannot multiply an absolute temperature; use .si for kelvins"));
         }
-        let q = a.q * b.q;
-        Ok(Q { q, unit: None })
+        Ok(Q { q: lib(a.q.try_mul(b.q))?, unit: None })
     });
     e.register_fn("/", |a: Q, b: Q| -> Res<Q> {
         if a.q.absolute_temperature || b.q.absolute_temperature {
             return Err(rt("cannot divide an absolute temperature; use .si for kelvins"));
         }
-        Ok(Q { q: a.q / b.q, unit: None })
+        Ok(Q { q: lib(a.q.try_div(b.q))?, unit: None })
     });
-    e.register_fn("*", |a: Q, k: f64| scale(&a, k));
-    e.register_fn("*", |a: Q, k: i64| scale(&a, k as f64));
-    e.register_fn("*", |k: f64, a: Q| scale(&a, k));
-    e.register_fn("*", |k: i64, a: Q| scale(&a, k as f64));
-    e.register_fn("/", |a: Q, k: f64| scale(&a, 1.0 / k));
-    e.register_fn("/", |a: Q, k: i64| scale(&a, 1.0 / k as f64));
-    e.register_fn("/", |k: f64, a: Q| Q { q: Quantity::number(k) / a.q, unit: None });
-    e.register_fn("/", |k: i64, a: Q| Q { q: Quantity::number(k as f64) / a.q, unit: None });
+    e.register_fn("*", |a: Q, k: f64| scale(&a, k, false));
+    e.register_fn("*", |a: Q, k: i64| scale(&a, k as f64, false));
+    e.register_fn("*", |k: f64, a: Q| scale(&a, k, false));
+    e.register_fn("*", |k: i64, a: Q| scale(&a, k as f64, false));
+    e.register_fn("/", |a: Q, k: f64| scale(&a, k, true));
+    e.register_fn("/", |a: Q, k: i64| scale(&a, k as f64, true));
+    e.register_fn("/", |k: f64, a: Q| invert(k, &a));
+    e.register_fn("/", |k: i64, a: Q| invert(k as f64, &a));
     e.register_fn("**", |a: Q, n: i64| -> Res<Q> {
         if !(-8..=8).contains(&n) {
-            return Err(rt("quantity powers from -8 to 8"));
+            return Err(rt(format!("{} ** {n}: quantity powers go from -8 to 8", a.show(UnitSystem::Si))));
         }
-        Ok(Q { q: a.q.powi(n as i8), unit: None })
+        if a.q.absolute_temperature {
+            return Err(rt("cannot raise an absolute temperature to a power; use .si for kelvins"));
+        }
+        Ok(Q { q: lib(a.q.try_powi(n as i32))?, unit: None })
     });
     e.register_fn("==", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_eq()));
     e.register_fn("!=", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_ne()));
@@ -320,14 +336,25 @@ fn arithmetic(r: &mut Registrar<'_>) {
     e.register_fn("<=", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_le()));
     e.register_fn(">", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_gt()));
     e.register_fn(">=", |a: Q, b: Q| cmp(&a, &b).map(|o| o.is_ge()));
+    // A plain number beside a quantity, on either side, integer or not: the same clear
+    // message (an integer used to fall through to the engine's "no function +").
+    fn plain(op: &str, n: String, a: &Q) -> Res<Q> {
+        let verb = if op == "+" { "add" } else { "subtract" };
+        Err(rt(format!(
+            "cannot {verb} a plain number ({n}) and {}; give the number a unit, e.g. {n}.{}",
+            describe(&Dynamic::from(a.clone())),
+            a.unit
+                .as_deref()
+                .map(|u| u.replace(['/', '^', '*', '@'], "_"))
+                .or_else(|| preferred_unit(a.q.dimension, a.q.absolute_temperature, UnitSystem::Si)
+                    .map(|u| u.replace(['/', '^', '*', '@'], "_")))
+                .unwrap_or_else(|| "m".into())
+        )))
+    }
     for op in ["+", "-"] {
-        let o = op.to_string();
-        e.register_fn(op, move |a: Q, b: f64| -> Res<Q> {
-            Err(rt(format!(
-                "cannot {} a plain number ({b}) and {}; give the number a unit",
-                if o == "+" { "add" } else { "subtract" },
-                describe(&Dynamic::from(a))
-            )))
-        });
+        e.register_fn(op, move |a: Q, b: f64| plain(op, format_number(b), &a));
+        e.register_fn(op, move |a: Q, b: i64| plain(op, b.to_string(), &a));
+        e.register_fn(op, move |b: f64, a: Q| plain(op, format_number(b), &a));
+        e.register_fn(op, move |b: i64, a: Q| plain(op, b.to_string(), &a));
     }
 }

@@ -483,7 +483,9 @@ fn writing(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                 .map_err(perr)?;
                 let mut up = target.clone().into_os_string();
                 up.push(".units.csv");
-                lib(stagna::io::table::write_csv(&units, Path::new(&up)))?;
+                // The sidecar is a file the run writes like any other: same checks.
+                let up = writable(&super::prefs(&pp), PathBuf::from(up))?;
+                lib(stagna::io::table::write_csv(&units, &up))?;
             }
             Ok(())
         },

@@ -13,6 +13,7 @@ pub mod install;
 mod wire;
 
 use std::collections::VecDeque;
+use std::panic::{AssertUnwindSafe, catch_unwind};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::{Arc, mpsc};
 use std::time::Duration;
@@ -151,83 +152,98 @@ fn evaluation_thread(
             wait.recv().unwrap_or_else(|_| Err("no answer to the input request".into()))
         })));
     }
+    // Each request runs under `catch_unwind`: a bug that panics while answering one
+    // request drops that request's reply (the shell answers it with an error) and the
+    // thread goes on with the next one.
+    let mut handle = |job: Job| match job {
+        Job::Execute { code, silent, store_history, allow_stdin, parent, ids, reply } => {
+            if let Ok(mut g) = current_parent.lock() {
+                *g = parent.clone();
+            }
+            if let Ok(mut g) = ids_for_input.lock() {
+                *g = ids;
+            }
+            allow.store(allow_stdin, Ordering::Relaxed);
+            if store_history && !silent {
+                count += 1;
+            }
+            if !silent {
+                let _ = iopub.send(Out {
+                    parent: parent.clone(),
+                    msg_type: "execute_input",
+                    content: json!({"code": code, "execution_count": count}),
+                });
+            }
+            if let Some(name) = help_request(&code) {
+                let text = session.help(name);
+                let _ = reply.send(json!({"status": "ok", "execution_count": count, "user_expressions": {}, "payload": [{"source": "page", "data": {"text/plain": text}, "start": 0}]}));
+                return;
+            }
+            let content = match session.eval(&code) {
+                Ok(out) => {
+                    if let (Some(v), false) = (out.value, silent) {
+                        let _ = iopub.send(Out {
+                            parent: parent.clone(),
+                            msg_type: "execute_result",
+                            content: json!({"execution_count": count, "data": mime(&v), "metadata": {}}),
+                        });
+                    }
+                    json!({"status": "ok", "execution_count": count, "user_expressions": {}, "payload": []})
+                }
+                Err(e) => {
+                    let ename = if e.kind == "Interrupted" { "KeyboardInterrupt".to_string() } else { e.kind.clone() };
+                    let rendered = e.render("cell", &code, true);
+                    let traceback: Vec<String> = rendered.lines().map(str::to_string).collect();
+                    let err = json!({"ename": ename, "evalue": e.message, "traceback": traceback});
+                    let _ = iopub.send(Out { parent: parent.clone(), msg_type: "error", content: err.clone() });
+                    let mut c = err;
+                    c["status"] = json!("error");
+                    c["execution_count"] = json!(count);
+                    c
+                }
+            };
+            let _ = reply.send(content);
+        }
+        Job::Complete { code, cursor, reply } => {
+            let b = byte_at(&code, cursor);
+            let (start, matches) = session.complete(&code, b);
+            let _ = reply.send(json!({"status": "ok", "matches": matches, "cursor_start": cp_at(&code, start), "cursor_end": cursor, "metadata": {}}));
+        }
+        Job::Inspect { code, cursor, reply } => {
+            let b = byte_at(&code, cursor);
+            let (found, data) = match session.inspect(&code, b) {
+                Some(text) => (true, json!({"text/plain": text})),
+                None => (false, json!({})),
+            };
+            let _ = reply.send(json!({"status": "ok", "found": found, "data": data, "metadata": {}}));
+        }
+        Job::IsComplete { code, reply } => {
+            let c = match session.is_complete(&code) {
+                Ok(true) => json!({"status": "complete"}),
+                Ok(false) => json!({"status": "incomplete", "indent": "    "}),
+                Err(_) => json!({"status": "invalid"}),
+            };
+            let _ = reply.send(c);
+        }
+    };
     while let Ok(job) = jobs.recv() {
-        match job {
-            Job::Execute { code, silent, store_history, allow_stdin, parent, ids, reply } => {
-                if let Ok(mut g) = current_parent.lock() {
-                    *g = parent.clone();
-                }
-                if let Ok(mut g) = ids_for_input.lock() {
-                    *g = ids;
-                }
-                allow.store(allow_stdin, Ordering::Relaxed);
-                if store_history && !silent {
-                    count += 1;
-                }
-                if !silent {
-                    let _ = iopub.send(Out {
-                        parent: parent.clone(),
-                        msg_type: "execute_input",
-                        content: json!({"code": code, "execution_count": count}),
-                    });
-                }
-                if let Some(name) = help_request(&code) {
-                    let text = session.help(name);
-                    let _ = reply.send(json!({"status": "ok", "execution_count": count, "user_expressions": {}, "payload": [{"source": "page", "data": {"text/plain": text}, "start": 0}]}));
-                    continue;
-                }
-                let content = match session.eval(&code) {
-                    Ok(out) => {
-                        if let (Some(v), false) = (out.value, silent) {
-                            let _ = iopub.send(Out {
-                                parent: parent.clone(),
-                                msg_type: "execute_result",
-                                content: json!({"execution_count": count, "data": mime(&v), "metadata": {}}),
-                            });
-                        }
-                        json!({"status": "ok", "execution_count": count, "user_expressions": {}, "payload": []})
-                    }
-                    Err(e) => {
-                        let ename =
-                            if e.kind == "Interrupted" { "KeyboardInterrupt".to_string() } else { e.kind.clone() };
-                        let rendered = e.render("cell", &code, true);
-                        let traceback: Vec<String> = rendered.lines().map(str::to_string).collect();
-                        let err = json!({"ename": ename, "evalue": e.message, "traceback": traceback});
-                        let _ = iopub.send(Out { parent: parent.clone(), msg_type: "error", content: err.clone() });
-                        let mut c = err;
-                        c["status"] = json!("error");
-                        c["execution_count"] = json!(count);
-                        c
-                    }
-                };
-                let _ = reply.send(content);
-            }
-            Job::Complete { code, cursor, reply } => {
-                let b = byte_at(&code, cursor);
-                let (start, matches) = session.complete(&code, b);
-                let _ = reply.send(json!({"status": "ok", "matches": matches, "cursor_start": cp_at(&code, start), "cursor_end": cursor, "metadata": {}}));
-            }
-            Job::Inspect { code, cursor, reply } => {
-                let b = byte_at(&code, cursor);
-                let is_word = |c: char| c.is_alphanumeric() || c == '_' || c == '.';
-                let start = code[..b].rfind(|c: char| !is_word(c)).map_or(0, |i| i + 1);
-                let end = code[b..].find(|c: char| !is_word(c)).map_or(code.len(), |i| b + i);
-                let word = code[start..end].trim_matches('.');
-                let text = session.help(word);
-                let found = !word.is_empty() && !text.starts_with("no help for");
-                let data = if found { json!({"text/plain": text}) } else { json!({}) };
-                let _ = reply.send(json!({"status": "ok", "found": found, "data": data, "metadata": {}}));
-            }
-            Job::IsComplete { code, reply } => {
-                let c = match session.is_complete(&code) {
-                    Ok(true) => json!({"status": "complete"}),
-                    Ok(false) => json!({"status": "incomplete", "indent": "    "}),
-                    Err(_) => json!({"status": "invalid"}),
-                };
-                let _ = reply.send(c);
-            }
+        if catch_unwind(AssertUnwindSafe(|| handle(job))).is_err() {
+            log("a request panicked in the evaluation thread; it was answered with an error and the kernel goes on");
         }
     }
+}
+
+/// The reply to a request whose handler failed inside the kernel.
+fn internal_error_reply() -> Value {
+    json!({"status": "error", "ename": "KernelError", "evalue": "the kernel failed on this request (an internal error, logged on the kernel's standard error); later requests still run", "traceback": []})
+}
+
+/// The evaluation thread has ended while the kernel runs: no request can be answered
+/// any more, so the process ends and the client shows the kernel as dead (and offers
+/// to restart it) instead of answering every later cell with an error.
+fn evaluation_thread_gone() -> ! {
+    log("the evaluation thread has stopped; the kernel exits so that the client can restart it");
+    std::process::exit(70)
 }
 
 fn kernel_info() -> Value {
@@ -369,9 +385,11 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
     let kernel_session = wire::new_id();
     {
         let tx = iopub_tx.clone();
-        std::thread::Builder::new()
-            .name("stagna-eval".into())
-            .spawn(move || evaluation_thread(session, job_rx, tx, ask_tx))?;
+        std::thread::Builder::new().name("stagna-eval".into()).spawn(move || {
+            if catch_unwind(AssertUnwindSafe(|| evaluation_thread(session, job_rx, tx, ask_tx))).is_err() {
+                evaluation_thread_gone();
+            }
+        })?;
     }
 
     // iopub: one publisher task keeps the order of busy, outputs and idle.
@@ -543,11 +561,10 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
                     ids: m.ids.clone(),
                     reply,
                 };
-                let content = if job_tx.send(job).is_ok() {
-                    wait.await.unwrap_or_else(|_| json!({"status": "error", "ename": "KernelError", "evalue": "the evaluation thread stopped", "traceback": []}))
-                } else {
-                    json!({"status": "error", "ename": "KernelError", "evalue": "the evaluation thread stopped", "traceback": []})
-                };
+                if job_tx.send(job).is_err() {
+                    evaluation_thread_gone();
+                }
+                let content = wait.await.unwrap_or_else(|_| internal_error_reply());
                 if content["status"] == "error" && stop_on_error {
                     // Abort execute requests already waiting behind the failed one.
                     while let Ok(Ok(next)) = tokio::time::timeout(Duration::from_millis(5), shell.recv()).await {
@@ -582,11 +599,10 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
                     "inspect_request" => Job::Inspect { code, cursor, reply },
                     _ => Job::IsComplete { code, reply },
                 };
-                if job_tx.send(job).is_ok() {
-                    wait.await.unwrap_or_else(|_| json!({"status": "error"}))
-                } else {
-                    json!({"status": "error"})
+                if job_tx.send(job).is_err() {
+                    evaluation_thread_gone();
                 }
+                wait.await.unwrap_or_else(|_| internal_error_reply())
             }
             "history_request" => history_reply(&history, &m.content),
             "comm_info_request" => json!({"status": "ok", "comms": {}}),

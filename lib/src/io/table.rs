@@ -124,6 +124,45 @@ fn extension(path: &Path) -> String {
     path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase()
 }
 
+static TEMP_COUNTER: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+
+/// The ending of the temporary files [`write_atomically`] writes: `.NAME.PID-N.stagna-tmp`.
+pub const TEMP_SUFFIX: &str = ".stagna-tmp";
+
+/// Removes the temporary files that writers killed mid-write (SIGKILL, power loss) left
+/// in `dir` and its subfolders: files named `.NAME.PID-N.stagna-tmp` whose process no
+/// longer runs (on systems without `/proc`, any such file older than an hour). Returns
+/// how many were removed; folders that cannot be read are passed over.
+pub fn remove_stale_temporaries(dir: &Path) -> usize {
+    let mut removed = 0;
+    let Ok(entries) = std::fs::read_dir(dir) else { return 0 };
+    for e in entries.flatten() {
+        let path = e.path();
+        let Ok(ft) = e.file_type() else { continue };
+        if ft.is_dir() {
+            removed += remove_stale_temporaries(&path);
+            continue;
+        }
+        let name = e.file_name().to_string_lossy().to_string();
+        let Some(stem) = name.strip_suffix(TEMP_SUFFIX).filter(|_| name.starts_with('.')) else { continue };
+        let pid = stem.rsplit('.').next().and_then(|t| t.split('-').next()).and_then(|p| p.parse::<u32>().ok());
+        let Some(pid) = pid else { continue };
+        let running = if Path::new("/proc/self").exists() {
+            pid == std::process::id() || Path::new("/proc").join(pid.to_string()).exists()
+        } else {
+            e.metadata()
+                .and_then(|m| m.modified())
+                .ok()
+                .and_then(|t| t.elapsed().ok())
+                .is_none_or(|age| age < std::time::Duration::from_secs(3600))
+        };
+        if !running && std::fs::remove_file(&path).is_ok() {
+            removed += 1;
+        }
+    }
+    removed
+}
+
 /// Writes `bytes` to `path` through a temporary file in the same folder and a rename.
 pub fn write_atomically(path: &Path, write: impl FnOnce(&mut File) -> std::io::Result<()>) -> Result<()> {
     let dir = match path.parent() {
@@ -131,7 +170,10 @@ pub fn write_atomically(path: &Path, write: impl FnOnce(&mut File) -> std::io::R
         _ => PathBuf::from("."),
     };
     let name = path.file_name().ok_or_else(|| file_err(path, "not a file name"))?.to_string_lossy().to_string();
-    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    // Unique per writer: the process id and a per-process counter, so that parallel
+    // writers (threads of one run, or several runs) never share a temporary file.
+    let n = TEMP_COUNTER.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let tmp = dir.join(format!(".{name}.{}-{n}{TEMP_SUFFIX}", std::process::id()));
     let result = File::create(&tmp).and_then(|mut f| {
         write(&mut f)?;
         f.sync_all()
@@ -214,6 +256,35 @@ mod tests {
             let back = read_table(&p).unwrap();
             assert_eq!(float_column(&back, "h_mm").unwrap(), vec![12.5, 14.0]);
         }
+    }
+
+    #[test]
+    fn stale_temporaries_of_dead_writers_are_removed_and_live_ones_kept() {
+        // Regression (issue 16): a SIGKILL during a write left a hidden temporary behind.
+        let d = std::env::temp_dir().join(format!("stagna-stale-{}", std::process::id()));
+        std::fs::create_dir_all(d.join("sub")).unwrap();
+        // u32::MAX - 1 is above any pid_max, so no such process runs.
+        let dead = d.join("sub").join(format!(".out.csv.{}-0{TEMP_SUFFIX}", u32::MAX - 1));
+        let live = d.join(format!(".out.csv.{}-7{TEMP_SUFFIX}", std::process::id()));
+        let other = d.join(".hidden-user-file.tmp");
+        for f in [&dead, &live, &other] {
+            std::fs::write(f, "x").unwrap();
+        }
+        assert_eq!(remove_stale_temporaries(&d), 1);
+        assert!(!dead.exists() && live.exists() && other.exists());
+        std::fs::remove_dir_all(&d).unwrap();
+    }
+
+    #[test]
+    fn parallel_writers_of_one_file_never_share_a_temporary() {
+        let p = tmp("shared.csv");
+        let df = DataFrame::new_infer_height(vec![Column::new("a".into(), [1.0, 2.0])]).unwrap();
+        std::thread::scope(|s| {
+            for _ in 0..8 {
+                s.spawn(|| write_table(&df, &p).unwrap());
+            }
+        });
+        assert_eq!(float_column(&read_table(&p).unwrap(), "a").unwrap(), vec![1.0, 2.0]);
     }
 
     #[test]

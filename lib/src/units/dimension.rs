@@ -45,8 +45,37 @@ impl Dimension {
     pub const MOLAR_MASS: Self = Self([0, 1, 0, 0, -1]);
 
     /// The dimension raised to an integer power.
+    ///
+    /// For dimensions and powers the library itself chooses; anything that comes from
+    /// a user goes through [`checked_powi`](Self::checked_powi), which refuses an
+    /// exponent outside ±127 instead of wrapping around.
     pub fn powi(self, n: i8) -> Self {
-        Self(self.0.map(|e| e * n))
+        self.checked_powi(i32::from(n)).unwrap_or(self)
+    }
+
+    /// The dimension raised to an integer power, or `None` when an exponent would leave
+    /// the range ±127 (`m^100 · m^100` is no dimension of this domain).
+    pub fn checked_powi(self, n: i32) -> Option<Self> {
+        let mut out = [0i8; 5];
+        for (o, e) in out.iter_mut().zip(self.0) {
+            *o = i8::try_from(i32::from(e).checked_mul(n)?).ok()?;
+        }
+        Some(Self(out))
+    }
+
+    /// The product of two dimensions (exponents added), or `None` when an exponent
+    /// would leave the range ±127.
+    pub fn checked_mul(self, rhs: Self) -> Option<Self> {
+        let mut out = self.0;
+        for (o, r) in out.iter_mut().zip(rhs.0) {
+            *o = o.checked_add(r)?;
+        }
+        Some(Self(out))
+    }
+
+    /// The quotient of two dimensions, or `None` when an exponent would leave ±127.
+    pub fn checked_div(self, rhs: Self) -> Option<Self> {
+        self.checked_mul(rhs.checked_powi(-1)?)
     }
 
     /// A plain name for well-known dimensions ("pressure", "velocity", ...).
@@ -79,10 +108,12 @@ const NAMES: [(Dimension, &str); 17] = [
 #[allow(clippy::suspicious_arithmetic_impl)]
 impl Mul for Dimension {
     type Output = Self;
+    /// Saturates at ±127 rather than wrapping; user-driven products go through
+    /// [`Dimension::checked_mul`] and are refused there.
     fn mul(self, rhs: Self) -> Self {
         let mut out = self.0;
         for (o, r) in out.iter_mut().zip(rhs.0) {
-            *o += r;
+            *o = o.saturating_add(r);
         }
         Self(out)
     }
@@ -91,7 +122,11 @@ impl Mul for Dimension {
 impl Div for Dimension {
     type Output = Self;
     fn div(self, rhs: Self) -> Self {
-        self * rhs.powi(-1)
+        let mut out = self.0;
+        for (o, r) in out.iter_mut().zip(rhs.0) {
+            *o = o.saturating_sub(r);
+        }
+        Self(out)
     }
 }
 

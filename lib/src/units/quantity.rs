@@ -35,7 +35,14 @@ impl Quantity {
     /// ```
     pub fn new(value: f64, unit: &str) -> Result<Self> {
         let u = Unit::parse(unit)?;
-        Ok(Self::from_unit(value, &u))
+        let q = Self::from_unit(value, &u);
+        if !q.si.is_finite() {
+            return Err(Error::Arithmetic {
+                operation: format!("{value} {unit}"),
+                message: "not a finite quantity (beyond ±1.8e308 in SI units, or NaN); check the number".into(),
+            });
+        }
+        Ok(q)
     }
 
     /// Parses "value unit" text such as `"600 mm"`, `"1.2m"`, `"20 degC"` or `"3 inH2O@60F"`.
@@ -64,6 +71,12 @@ impl Quantity {
             reason: "expected a number followed by a unit, e.g. '600 mm' or '20 degC'".into(),
         })?;
         let unit = t[end..].trim();
+        if !value.is_finite() {
+            return Err(Error::Arithmetic {
+                operation: text.trim().to_string(),
+                message: "the number is too large to represent (beyond ±1.8e308)".into(),
+            });
+        }
         if unit.is_empty() {
             return Ok(Self::number(value));
         }
@@ -162,6 +175,34 @@ impl Quantity {
     }
 
     /// Integer power.
+    /// The product, refused when it is not finite or its dimension leaves ±127.
+    pub fn try_mul(self, rhs: Self) -> Result<Self> {
+        let dimension = self.dimension.checked_mul(rhs.dimension).ok_or_else(|| overflow(&self, "·", &rhs))?;
+        finite(Self { si: self.si * rhs.si, dimension, absolute_temperature: false }, &self, "·", &rhs)
+    }
+
+    /// The quotient, refused when it is not finite (division by zero, overflow) or its
+    /// dimension leaves ±127.
+    pub fn try_div(self, rhs: Self) -> Result<Self> {
+        let dimension = self.dimension.checked_div(rhs.dimension).ok_or_else(|| overflow(&self, "/", &rhs))?;
+        finite(Self { si: self.si / rhs.si, dimension, absolute_temperature: false }, &self, "/", &rhs)
+    }
+
+    /// An integer power, refused when it is not finite or its dimension leaves ±127.
+    pub fn try_powi(self, n: i32) -> Result<Self> {
+        let op = || format!("({self})^{n}");
+        let dimension = self.dimension.checked_powi(n).ok_or_else(|| Error::Arithmetic {
+            operation: op(),
+            message: "a dimension exponent would leave the range ±127".into(),
+        })?;
+        let q = Self { si: self.si.powi(n), dimension, absolute_temperature: false };
+        if !q.si.is_finite() {
+            return Err(Error::Arithmetic { operation: op(), message: NOT_FINITE.into() });
+        }
+        Ok(q)
+    }
+
+    /// The quantity raised to a power the caller chose (trusted); see [`Self::try_powi`].
     pub fn powi(self, n: i8) -> Self {
         Self { si: self.si.powi(i32::from(n)), dimension: self.dimension.powi(n), absolute_temperature: false }
     }
@@ -227,6 +268,23 @@ pub fn si_symbol(d: Dimension) -> String {
     }
     let s = d.to_string();
     s.split(" (").next().unwrap_or(&s).to_string()
+}
+
+const NOT_FINITE: &str = "the result is not a finite number (a division by zero or an overflow)";
+
+fn overflow(a: &Quantity, op: &str, b: &Quantity) -> Error {
+    Error::Arithmetic {
+        operation: format!("{a} {op} {b}"),
+        message: "a dimension exponent would leave the range ±127".into(),
+    }
+}
+
+fn finite(q: Quantity, a: &Quantity, op: &str, b: &Quantity) -> Result<Quantity> {
+    if q.si.is_finite() {
+        Ok(q)
+    } else {
+        Err(Error::Arithmetic { operation: format!("{a} {op} {b}"), message: NOT_FINITE.into() })
+    }
 }
 
 impl Mul for Quantity {
@@ -512,6 +570,27 @@ impl fmt::Display for Temperature {
 mod tests {
     use super::*;
     use proptest::prelude::*;
+
+    #[test]
+    fn non_finite_results_and_overflowing_dimensions_are_errors() {
+        // Regressions (issue 16): these printed inf or wrapped around to m^-56.
+        let e = Quantity::parse("1e400 Pa").unwrap_err().to_string();
+        assert!(e.contains("1e400 Pa") && e.contains("too large"), "{e}");
+        let e = Quantity::parse("1 m^100*m^100").unwrap_err().to_string();
+        assert!(e.contains("±127"), "{e}");
+        let m = Quantity::new(1.0, "m").unwrap();
+        let e = m.try_div(Quantity::number(0.0)).unwrap_err().to_string();
+        assert!(e.starts_with("1 m / 0") && e.contains("division by zero"), "{e}");
+        assert!(m.try_div(Quantity::new(0.0, "m").unwrap()).is_err());
+        let m8 = m.try_powi(8).unwrap();
+        let m64 = m8.try_powi(8).unwrap();
+        assert_eq!(m64.dimension, Dimension::LENGTH.checked_powi(64).unwrap());
+        assert!(m64.try_powi(2).unwrap_err().to_string().contains("±127"));
+        assert!(m64.try_mul(m64).is_err());
+        let ok = m.try_mul(Quantity::new(2.0, "m").unwrap()).unwrap();
+        assert_eq!((ok.si, ok.dimension), (2.0, Dimension::AREA));
+        assert!(Quantity::new(f64::NAN, "m").is_err());
+    }
 
     #[test]
     fn dimension_mismatch_names_both() {

@@ -264,7 +264,7 @@ impl Unit {
                 };
                 err(hint)
             })?;
-            power *= sign;
+            power = power.checked_mul(sign).ok_or_else(|| err("a power must be within ±127".into()))?;
             if atom.temperature.is_some() {
                 lone_temperature = atom.temperature;
             }
@@ -272,7 +272,11 @@ impl Unit {
                 offset = atom.offset;
             }
             factor *= atom.factor.powi(i32::from(power));
-            dimension = dimension * atom.dimension.powi(power);
+            dimension = atom
+                .dimension
+                .checked_powi(i32::from(power))
+                .and_then(|d| dimension.checked_mul(d))
+                .ok_or_else(|| err("a dimension exponent would leave the range ±127".into()))?;
             terms += 1;
             if (terms > 1 || power != 1)
                 && let Some(t) = lone_temperature
