@@ -227,3 +227,70 @@ def test_completion_cursor_counts_code_points(kernel):
     reply = kc.get_shell_msg(timeout=TIMEOUT)["content"]
     assert "pitot_static" in reply["matches"]
     assert reply["cursor_end"] == len(code) and reply["cursor_start"] == len(code) - len("pitot_sta")
+
+
+def test_large_requests_and_results_arrive_whole_and_later_cells_are_prompt(kernel):
+    """Regression (issue 16): a 50 MB request or a ~16 MB result got its shell reply but
+    its iopub messages (execute_input, result, idle) never arrived, and later cells'
+    messages came a minute late."""
+    km, kc = kernel
+    big = "x" * (50 * 1024 * 1024)
+    content, outputs = run(kc, f'let s = "{big}"; s.len()', timeout=120)
+    types = [m["msg_type"] for m in outputs]
+    assert content["status"] == "ok"
+    assert types[0] == "status" and "execute_input" in types and types[-1] == "status", types
+    echo = next(m for m in outputs if m["msg_type"] == "execute_input")
+    assert len(echo["content"]["code"]) > 50 * 1024 * 1024
+    assert str(50 * 1024 * 1024) in text_of(outputs)
+    content, outputs = run(kc, 'let a = "y"; while a.len() < 16000000 { a += a; } a', timeout=120)
+    assert content["status"] == "ok" and len(text_of(outputs)) >= 16_000_000
+    t0 = time.time()
+    content, outputs = run(kc, "1 + 1", timeout=10)
+    assert "2" in text_of(outputs) and time.time() - t0 < 5
+
+
+def test_a_replayed_signed_request_does_not_run_again(kernel):
+    """Regression (issue 16): the same signed execute request sent twice ran twice."""
+    km, kc = kernel
+    s = kc.session
+    msg = s.msg("execute_request", {"code": "let runs = if is_def_var(\"runs\") { runs + 1 } else { 1 }; runs",
+                                    "silent": False, "store_history": True, "user_expressions": {},
+                                    "allow_stdin": False, "stop_on_error": True})
+    header, parent, metadata, content = (s.pack(msg[k]) for k in ("header", "parent_header", "metadata", "content"))
+    parts = [header, parent, metadata, content]
+    frames = [b"<IDS|MSG>", s.sign(parts)] + parts
+    kc.shell_channel.socket.send_multipart(frames)
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    assert reply["content"]["status"] == "ok"
+    kc.shell_channel.socket.send_multipart(frames)
+    time.sleep(1.0)
+    _, outputs = run(kc, "runs")
+    assert text_of(outputs).strip() == "1", "the replay ran again"
+
+
+def test_execute_request_whose_code_is_not_text_is_an_error(kernel):
+    """Regression (issue 16): such a request replied ok and ran nothing."""
+    km, kc = kernel
+    msg = kc.session.msg("execute_request", {"code": 42, "silent": False, "store_history": True,
+                                             "user_expressions": {}, "allow_stdin": False, "stop_on_error": False})
+    kc.shell_channel.send(msg)
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    assert reply["content"]["status"] == "error" and "'code' must be a string" in reply["content"]["evalue"]
+    content, outputs = run(kc, "1 + 1")
+    assert content["status"] == "ok" and "2" in text_of(outputs)
+
+
+def test_inspect_and_complete_beside_multi_byte_characters(kernel):
+    """Regression (issue 16): a cursor after ° panicked the evaluation thread and every
+    later cell answered that the evaluation thread had stopped."""
+    km, kc = kernel
+    for code in ["let t = 20°", "a·b", "2×water", "x ≥ 3"]:
+        for cursor in range(len(code) + 1):
+            kc.inspect(code, cursor)
+            assert kc.get_shell_msg(timeout=TIMEOUT)["content"]["status"] == "ok"
+            kc.complete(code, cursor)
+            assert kc.get_shell_msg(timeout=TIMEOUT)["content"]["status"] == "ok"
+    kc.inspect("2×water", len("2×water"))
+    assert "IAPWS" in kc.get_shell_msg(timeout=TIMEOUT)["content"]["data"]["text/plain"]
+    content, outputs = run(kc, "1 + 1")
+    assert content["status"] == "ok" and "2" in text_of(outputs)

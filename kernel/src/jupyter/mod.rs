@@ -1,7 +1,8 @@
 //! The Jupyter kernel: the same [`Session`] behind the Jupyter messaging protocol (5.3).
 //!
-//! Five ZeroMQ sockets (the pure-Rust `zeromq` crate on tokio): shell and control
-//! (ROUTER), iopub (PUB), stdin (ROUTER) and heartbeat (REP). Every message is signed
+//! Five ZeroMQ sockets on tokio: shell and control (ROUTER), stdin (ROUTER) and
+//! heartbeat (REP) from the pure-Rust `zeromq` crate, and iopub (PUB) of our own in
+//! `publisher`, which delivers large messages whole. Every message is signed
 //! with HMAC-SHA256 (`hmac` + `sha2`); a message whose signature is missing or wrong is
 //! logged and dropped, never executed; a signed but malformed request gets an error reply.
 //! Evaluation runs on its own thread, so heartbeat and control (interrupt, shutdown)
@@ -10,6 +11,7 @@
 //! `null`, which clients reject (`transient`, `user_expressions` must be objects).
 
 pub mod install;
+mod publisher;
 mod wire;
 
 use std::collections::VecDeque;
@@ -21,7 +23,7 @@ use std::time::Duration;
 use base64::Engine as _;
 use bytes::Bytes;
 use serde_json::{Value, json};
-use zeromq::{PubSocket, RepSocket, RouterSocket, Socket, SocketRecv, SocketSend, ZmqMessage};
+use zeromq::{RepSocket, RouterSocket, Socket, SocketRecv, SocketSend, ZmqMessage};
 
 use crate::session::{Bundle, Event, Session};
 use wire::{Connection, Message, Parsed};
@@ -337,6 +339,10 @@ async fn accept(
             log(&format!("dropped a {channel} message with a bad or missing signature"));
             None
         }
+        Parsed::Replayed => {
+            log(&format!("dropped a replayed {channel} message (its signature was already used)"));
+            None
+        }
         Parsed::Malformed { ids, header, reason } => {
             log(&format!("malformed {channel} message: {reason}"));
             if let Some(h) = header {
@@ -369,12 +375,16 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
     let mut shell = RouterSocket::new();
     let mut control = RouterSocket::new();
     let mut stdin = RouterSocket::new();
-    let mut iopub = PubSocket::new();
     let mut hb = RepSocket::new();
     bind(&mut shell, &conn, conn.shell_port).await?;
     bind(&mut control, &conn, conn.control_port).await?;
     bind(&mut stdin, &conn, conn.stdin_port).await?;
-    bind(&mut iopub, &conn, conn.iopub_port).await?;
+    if conn.transport != "tcp" {
+        return Err(
+            format!("transport '{}' is not supported; the connection file must say \"tcp\"", conn.transport).into()
+        );
+    }
+    let iopub = publisher::Publisher::bind(&conn.ip, conn.iopub_port).await?;
     bind(&mut hb, &conn, conn.hb_port).await?;
 
     let session = Session::new();
@@ -399,9 +409,7 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
         while let Some(o) = iopub_rx.recv().await {
             let topic = Bytes::from(format!("kernel.{ks}.{}", o.msg_type));
             let m = Message::new(&ks, o.msg_type, o.parent, o.content);
-            if let Err(e) = iopub.send(m.encode(&c, vec![topic])).await {
-                log(&format!("iopub send failed: {e}"));
-            }
+            iopub.send(&m.encode(&c, vec![topic]).into_vec());
         }
     });
     let status = |tx: &tokio::sync::mpsc::UnboundedSender<Out>, parent: &Value, state: &str| {
@@ -443,6 +451,10 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
                         Parsed::Ok(_) => continue,
                         Parsed::BadSignature => {
                             log("dropped a stdin message with a bad or missing signature");
+                            continue;
+                        }
+                        Parsed::Replayed => {
+                            log("dropped a replayed stdin message");
                             continue;
                         }
                         Parsed::Malformed { reason, .. } => break Err(reason),
@@ -540,6 +552,9 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
         let ty = m.msg_type().to_string();
         let content = match ty.as_str() {
             "kernel_info_request" => kernel_info(),
+            "execute_request" if !m.content["code"].is_string() => {
+                json!({"status": "error", "ename": "BadRequest", "evalue": "execute_request: 'code' must be a string (the cell's text)", "traceback": [], "execution_count": line.load(Ordering::Relaxed)})
+            }
             "execute_request" => {
                 let code = m.content["code"].as_str().unwrap_or("").to_string();
                 let silent = m.content["silent"].as_bool().unwrap_or(false);
@@ -572,18 +587,22 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
                     }
                     let mut keep = VecDeque::new();
                     for raw in backlog.drain(..) {
-                        match wire::parse(&conn, raw.clone()) {
-                            Parsed::Ok(q) if q.msg_type() == "execute_request" => {
-                                status(&iopub_tx, &q.header, "busy");
-                                let r = Message::reply(
-                                    &kernel_session,
-                                    &q.header,
-                                    json!({"status": "aborted", "execution_count": content["execution_count"].clone()}),
-                                );
-                                let _ = shell.send(r.encode(&conn, q.ids.clone())).await;
-                                status(&iopub_tx, &q.header, "idle");
-                            }
-                            _ => keep.push_back(raw),
+                        // Only the execute requests are taken (and their signatures
+                        // recorded) here; the others are parsed when their turn comes.
+                        let execute = matches!(wire::peek(&conn, raw.clone()), Parsed::Ok(q) if q.msg_type() == "execute_request");
+                        if !execute {
+                            keep.push_back(raw);
+                            continue;
+                        }
+                        if let Parsed::Ok(q) = wire::parse(&conn, raw) {
+                            status(&iopub_tx, &q.header, "busy");
+                            let r = Message::reply(
+                                &kernel_session,
+                                &q.header,
+                                json!({"status": "aborted", "execution_count": content["execution_count"].clone()}),
+                            );
+                            let _ = shell.send(r.encode(&conn, q.ids.clone())).await;
+                            status(&iopub_tx, &q.header, "idle");
                         }
                     }
                     backlog = keep;

@@ -28,7 +28,21 @@ pub struct Connection {
     pub hb_port: u16,
     /// Signing key (empty: messages are not signed).
     pub key: Vec<u8>,
+    /// Signatures of the messages already accepted, shared by every channel: a signed
+    /// message sent a second time is a replay and is dropped, as Jupyter's own client
+    /// library does with its digest history.
+    seen: std::sync::Arc<std::sync::Mutex<Seen>>,
 }
+
+/// The most recent accepted signatures (oldest forgotten first past [`SEEN_LIMIT`]).
+#[derive(Debug, Default)]
+struct Seen {
+    set: std::collections::HashSet<Vec<u8>>,
+    order: std::collections::VecDeque<Vec<u8>>,
+}
+
+/// How many signatures are remembered (jupyter_client keeps 2¹⁶ too).
+const SEEN_LIMIT: usize = 1 << 16;
 
 impl Connection {
     /// Reads a connection file's JSON.
@@ -53,6 +67,7 @@ impl Connection {
             control_port: port("control_port")?,
             hb_port: port("hb_port")?,
             key,
+            seen: Default::default(),
         })
     }
 
@@ -66,6 +81,27 @@ impl Connection {
             mac.update(p);
         }
         hex::encode(mac.finalize().into_bytes())
+    }
+
+    /// Records a verified signature; `false` when it was seen before (a replay).
+    fn first_time(&self, sig: &[u8]) -> bool {
+        if self.key.is_empty() {
+            return true;
+        }
+        let mut seen = match self.seen.lock() {
+            Ok(g) => g,
+            Err(e) => e.into_inner(),
+        };
+        if !seen.set.insert(sig.to_vec()) {
+            return false;
+        }
+        seen.order.push_back(sig.to_vec());
+        if seen.order.len() > SEEN_LIMIT
+            && let Some(old) = seen.order.pop_front()
+        {
+            seen.set.remove(&old);
+        }
+        true
     }
 
     /// Checks a hex signature in constant time.
@@ -182,6 +218,8 @@ pub enum Parsed {
     Ok(Message),
     /// Missing or wrong signature: drop it.
     BadSignature,
+    /// A correctly signed message that was already received once: drop it.
+    Replayed,
     /// Signed but not a valid message: reply with an error when the header could be read.
     Malformed {
         /// Routing ids.
@@ -195,6 +233,16 @@ pub enum Parsed {
 
 /// Splits, verifies and parses an incoming multipart message.
 pub fn parse(conn: &Connection, raw: ZmqMessage) -> Parsed {
+    parse_inner(conn, raw, true)
+}
+
+/// Parses and verifies a message without recording its signature (for looking ahead at
+/// queued requests that will be parsed again when their turn comes).
+pub fn peek(conn: &Connection, raw: ZmqMessage) -> Parsed {
+    parse_inner(conn, raw, false)
+}
+
+fn parse_inner(conn: &Connection, raw: ZmqMessage, record: bool) -> Parsed {
     let frames = raw.into_vec();
     let Some(d) = frames.iter().position(|f| f.as_ref() == DELIMITER) else {
         return Parsed::Malformed { ids: frames, header: None, reason: "no <IDS|MSG> delimiter".into() };
@@ -207,6 +255,9 @@ pub fn parse(conn: &Connection, raw: ZmqMessage) -> Parsed {
     let parts: Vec<&[u8]> = rest[1..5].iter().map(|b| b.as_ref()).collect();
     if !conn.verify(rest[0].as_ref(), &parts) {
         return Parsed::BadSignature;
+    }
+    if record && !conn.first_time(rest[0].as_ref()) {
+        return Parsed::Replayed;
     }
     let json = |b: &[u8]| serde_json::from_slice::<Value>(b);
     let header = match json(parts[0]) {
@@ -266,6 +317,23 @@ mod tests {
         let other = conn("other");
         let raw = m.encode(&other, vec![]);
         assert!(matches!(parse(&c, raw), Parsed::BadSignature));
+    }
+
+    #[test]
+    fn a_replayed_signed_message_is_dropped() {
+        // Regression (issue 16): a signed execute request sent twice ran twice.
+        let c = conn("secret");
+        let m = Message::new("s", "execute_request", json!({}), json!({"code": "1 + 1"}));
+        let raw = m.encode(&c, vec![]);
+        assert!(matches!(peek(&c, raw.clone()), Parsed::Ok(_)), "a look ahead does not record");
+        assert!(matches!(parse(&c, raw.clone()), Parsed::Ok(_)));
+        assert!(matches!(parse(&c, raw.clone()), Parsed::Replayed));
+        assert!(c.clone().first_time(b"other"), "a new signature is accepted");
+        assert!(matches!(parse(&c.clone(), raw), Parsed::Replayed), "clones share one history");
+        let unsigned = conn("");
+        let raw = m.encode(&unsigned, vec![]);
+        assert!(matches!(parse(&unsigned, raw.clone()), Parsed::Ok(_)));
+        assert!(matches!(parse(&unsigned, raw), Parsed::Ok(_)), "without a key there is no signature to track");
     }
 
     #[test]
