@@ -10,6 +10,15 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+/// The system allocator with a running count of the bytes held, which the session's
+/// memory limit reads at every script operation (tracking only: it never refuses).
+#[global_allocator]
+static ALLOCATOR: cap::Cap<std::alloc::System> = cap::Cap::new(std::alloc::System, usize::MAX);
+
+/// Stack of the thread that runs every command: deep script data (arrays nested
+/// thousands deep) is dropped and displayed recursively. Reserved, not committed.
+const STACK_BYTES: usize = 512 << 20;
+
 mod api;
 mod catalog;
 mod demo;
@@ -25,9 +34,9 @@ mod session;
 struct Cli {
     #[command(subcommand)]
     command: Option<Command>,
-    /// Operation limit per input in the REPL (stops runaway loops).
-    #[arg(long, value_name = "N", global = true)]
-    max_operations: Option<u64>,
+    /// Limits of the REPL's session (give them before a subcommand's name only for the REPL).
+    #[command(flatten)]
+    limits: session::LimitArgs,
 }
 
 #[derive(Subcommand)]
@@ -58,6 +67,10 @@ struct KernelArgs {
     /// Connection file written by the Jupyter client.
     #[arg(long, value_name = "FILE")]
     connection_file: Option<PathBuf>,
+    /// Limits of the kernel's session (add them to the kernelspec's argv, or set the
+    /// environment variables in its env).
+    #[command(flatten)]
+    limits: session::LimitArgs,
 }
 
 #[derive(Subcommand)]
@@ -93,6 +106,16 @@ impl SpecTarget {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    match std::thread::Builder::new().name("stagna".into()).stack_size(STACK_BYTES).spawn(move || command(cli)) {
+        Ok(t) => t.join().unwrap_or(ExitCode::FAILURE),
+        Err(e) => {
+            eprintln!("error: cannot start: {e}");
+            ExitCode::FAILURE
+        }
+    }
+}
+
+fn command(cli: Cli) -> ExitCode {
     let result = match cli.command {
         Some(Command::Demo { data_dir }) => demo::run(data_dir.as_deref()),
         Some(Command::Layout(args)) => layout_cmd::run(&args),
@@ -105,31 +128,29 @@ fn main() -> ExitCode {
             Ok(code) => return ExitCode::from(code as u8),
             Err(e) => Err(e),
         },
-        Some(Command::Kernel(k)) => match (k.action, k.connection_file) {
-            (Some(KernelAction::Install(t)), _) => jupyter::install::install(&t.target()).map(|d| {
+        Some(Command::Kernel(k)) => match (k.action, k.connection_file, k.limits.limits()) {
+            (_, _, Err(e)) => Err(e.into()),
+            (Some(KernelAction::Install(t)), ..) => jupyter::install::install(&t.target()).map(|d| {
                 println!("installed the stagna kernelspec in {}", d.display());
             }),
-            (Some(KernelAction::Uninstall(t)), _) => jupyter::install::uninstall(&t.target()).map(|d| {
+            (Some(KernelAction::Uninstall(t)), ..) => jupyter::install::uninstall(&t.target()).map(|d| {
                 println!("removed {}", d.display());
             }),
-            (None, Some(f)) => match jupyter::run(&f) {
+            (None, Some(f), Ok(limits)) => match jupyter::run(&f, limits) {
                 Ok(0) => Ok(()),
                 Ok(code) => return ExitCode::from(code as u8),
                 Err(e) => Err(e),
             },
-            (None, None) => Err("stagna kernel: give --connection-file FILE (Jupyter does), or `install`".into()),
+            (None, None, _) => Err("stagna kernel: give --connection-file FILE (Jupyter does), or `install`".into()),
         },
         Some(Command::Reference) => {
             print!("{}", demo::reference_markdown(&session::Session::new()));
             Ok(())
         }
-        None => {
-            let limits = session::Limits {
-                operations: cli.max_operations.unwrap_or(session::Limits::default().operations),
-                ..Default::default()
-            };
-            return ExitCode::from(repl::run(session::Session::with_limits(limits)) as u8);
-        }
+        None => match cli.limits.limits() {
+            Ok(limits) => return ExitCode::from(repl::run(session::Session::with_limits(limits)) as u8),
+            Err(e) => Err(e.into()),
+        },
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -17,7 +17,7 @@ use rayon::prelude::*;
 use rhai::Dynamic;
 
 use crate::api::Q;
-use crate::session::{Limits, Session};
+use crate::session::{LimitArgs, Limits, Session};
 
 /// Arguments of `stagna run`.
 #[derive(clap::Args, Debug)]
@@ -32,9 +32,9 @@ pub struct RunArgs {
     /// Output folder for relative output paths.
     #[arg(long, short = 'o', value_name = "DIR", default_value = "stagna-out")]
     pub out: PathBuf,
-    /// Operation limit per run (stops runaway loops).
-    #[arg(long, value_name = "N", default_value_t = Limits::default().operations)]
-    pub max_operations: u64,
+    /// Limits of each file's session.
+    #[command(flatten)]
+    pub limits: LimitArgs,
     /// Parallel jobs (default: one per core).
     #[arg(long, short = 'j', value_name = "N")]
     pub jobs: Option<usize>,
@@ -68,8 +68,14 @@ struct RunResult {
     error: Option<String>,
 }
 
-fn run_one(args: &RunArgs, script: &str, file: Option<&Path>, out_dir: &Path, protected: &[PathBuf]) -> RunResult {
-    let limits = Limits { operations: args.max_operations, ..Limits::default() };
+fn run_one(
+    args: &RunArgs,
+    limits: Limits,
+    script: &str,
+    file: Option<&Path>,
+    out_dir: &Path,
+    protected: &[PathBuf],
+) -> RunResult {
     let mut session = Session::with_limits(limits);
     let printed = Arc::new(Mutex::new(Vec::new()));
     let sink = printed.clone();
@@ -171,6 +177,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
             return Err(format!("--set {kv}: write NAME=VALUE").into());
         }
     }
+    let limits = args.limits.limits()?;
     for f in &args.files {
         if !f.is_file() {
             return Err(format!("{}: no such input file", f.display()).into());
@@ -182,7 +189,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         .map_err(|e| format!("{}: cannot create the output folder: {e}", args.out.display()))?;
 
     if args.files.is_empty() {
-        let r = run_one(args, &script, None, &args.out, &protected);
+        let r = run_one(args, limits, &script, None, &args.out, &protected);
         for l in &r.printed {
             println!("{l}");
         }
@@ -208,14 +215,15 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     } else {
         None
     };
-    let pool = rayon::ThreadPoolBuilder::new().num_threads(args.jobs.unwrap_or(0)).build()?;
+    // Big stacks as for the main thread (deep script data is dropped recursively).
+    let pool = rayon::ThreadPoolBuilder::new().num_threads(args.jobs.unwrap_or(0)).stack_size(256 << 20).build()?;
     let results: Vec<RunResult> = pool.install(|| {
         args.files
             .par_iter()
             .zip(dirs.par_iter())
             .map(|(f, dir)| {
                 let r = match std::fs::create_dir_all(dir) {
-                    Ok(()) => run_one(args, &script, Some(f), dir, &protected),
+                    Ok(()) => run_one(args, limits, &script, Some(f), dir, &protected),
                     Err(e) => RunResult {
                         printed: vec![],
                         error: Some(format!("{}: cannot create folder: {e}", dir.display())),

@@ -13,30 +13,106 @@ use rhai::{AST, Dynamic, Engine, EvalAltResult, ParseError, Position, Scope};
 use crate::api::{self, Prefs, SharedPrefs};
 use crate::catalog::{Catalog, Kind, Registrar};
 
-/// Limits that stop a runaway script.
+/// Limits that stop a runaway script, each checked in constant time per operation.
+///
+/// The script engine's own size limits walk a whole array or map after every change
+/// (pushing 400 000 values took minutes), so they are off: the session limits the
+/// memory the whole process holds (checked at every operation against the allocator's
+/// running count), the length of script arrays where they grow, and the operations per
+/// input. Host functions check their own inputs before they allocate.
 #[derive(Debug, Clone, Copy)]
 pub struct Limits {
     /// Most operations per input (0 = none).
     pub operations: u64,
-    /// Longest array.
+    /// Most bytes the process may hold while a script runs (0 = none).
+    pub memory: usize,
+    /// Longest script array (push, append, insert, pad, and host functions that return
+    /// arrays; `+` and `+=` are bounded by the memory limit).
     pub array_size: usize,
-    /// Longest string, bytes.
-    pub string_size: usize,
-    /// Largest map.
-    pub map_size: usize,
     /// Deepest call nesting.
     pub call_levels: usize,
 }
 
 impl Default for Limits {
     fn default() -> Self {
-        Self {
-            operations: 2_000_000_000,
-            array_size: 10_000_000,
-            string_size: 64 << 20,
-            map_size: 1_000_000,
-            call_levels: 64,
+        Self { operations: 2_000_000_000, memory: default_memory_limit(), array_size: 500_000_000, call_levels: 64 }
+    }
+}
+
+/// Three quarters of the machine's memory (from `/proc/meminfo`), else 8 GiB.
+pub fn default_memory_limit() -> usize {
+    let total = std::fs::read_to_string("/proc/meminfo").ok().and_then(|m| {
+        m.lines()
+            .find(|l| l.starts_with("MemTotal:"))
+            .and_then(|l| l.split_whitespace().nth(1))
+            .and_then(|kb| kb.parse::<usize>().ok())
+            .map(|kb| kb * 1024)
+    });
+    total.map_or(8 << 30, |t| t / 4 * 3)
+}
+
+/// Bytes the process holds now (the allocator's running count).
+pub fn memory_in_use() -> usize {
+    crate::ALLOCATOR.allocated()
+}
+
+/// Reads a size such as `4GiB`, `500MB`, `2G` or a plain number of bytes.
+pub fn parse_size(s: &str) -> Result<usize, String> {
+    let t = s.trim();
+    let split = t.find(|c: char| !(c.is_ascii_digit() || c == '.')).unwrap_or(t.len());
+    let (num, unit) = t.split_at(split);
+    let v: f64 = num.parse().map_err(|_| format!("'{s}': expected a size such as 4GiB, 500MB or 2G"))?;
+    let k = match unit.trim().to_ascii_lowercase().as_str() {
+        "" | "b" => 1.0,
+        "k" | "kb" => 1e3,
+        "kib" => 1024.0,
+        "m" | "mb" => 1e6,
+        "mib" => 1024.0 * 1024.0,
+        "g" | "gb" => 1e9,
+        "gib" => 1024.0 * 1024.0 * 1024.0,
+        "t" | "tb" => 1e12,
+        "tib" => 1024f64.powi(4),
+        u => return Err(format!("'{s}': unknown size unit '{u}' (use B, kB, MB, GB, KiB, MiB, GiB)")),
+    };
+    Ok((v * k) as usize)
+}
+
+/// The limits a front end can set: command-line options, else the environment
+/// (`STAGNA_MAX_OPERATIONS`, `STAGNA_MAX_MEMORY`, `STAGNA_MAX_ARRAY`, for the kernel
+/// whose command line Jupyter writes), else the defaults.
+#[derive(clap::Args, Debug, Clone, Default)]
+pub struct LimitArgs {
+    /// Operation limit per input, stops runaway loops (0: none) [env: STAGNA_MAX_OPERATIONS]
+    #[arg(long, value_name = "N")]
+    pub max_operations: Option<u64>,
+    /// Memory the session may hold, e.g. 4GiB (default: three quarters of the machine's memory; 0: none) [env: STAGNA_MAX_MEMORY]
+    #[arg(long, value_name = "SIZE")]
+    pub max_memory: Option<String>,
+    /// Longest array a script may build (default 500000000) [env: STAGNA_MAX_ARRAY]
+    #[arg(long, value_name = "N")]
+    pub max_array: Option<usize>,
+}
+
+impl LimitArgs {
+    /// The limits, with the options' and the environment's values checked.
+    pub fn limits(&self) -> Result<Limits, String> {
+        let env = |k: &str| std::env::var(k).ok().filter(|v| !v.trim().is_empty());
+        let mut l = Limits::default();
+        if let Some(n) = self.max_operations {
+            l.operations = n;
+        } else if let Some(v) = env("STAGNA_MAX_OPERATIONS") {
+            l.operations =
+                v.trim().parse().map_err(|_| format!("STAGNA_MAX_OPERATIONS='{v}': expected a whole number"))?;
         }
+        if let Some(m) = self.max_memory.clone().or_else(|| env("STAGNA_MAX_MEMORY")) {
+            l.memory = parse_size(&m).map_err(|e| format!("memory limit {e}"))?;
+        }
+        if let Some(n) = self.max_array {
+            l.array_size = n;
+        } else if let Some(v) = env("STAGNA_MAX_ARRAY") {
+            l.array_size = v.trim().parse().map_err(|_| format!("STAGNA_MAX_ARRAY='{v}': expected a whole number"))?;
+        }
+        Ok(l)
     }
 }
 
@@ -137,6 +213,7 @@ pub struct Session {
     interrupt: Arc<AtomicBool>,
     sink: Arc<RwLock<Sink>>,
     input: Arc<RwLock<Option<InputHook>>>,
+    limits: Limits,
 }
 
 fn stdout_sink() -> Sink {
@@ -190,12 +267,20 @@ impl Session {
     pub fn with_limits(limits: Limits) -> Self {
         let mut engine = Engine::new();
         engine.set_max_operations(limits.operations);
-        engine.set_max_array_size(limits.array_size);
-        engine.set_max_string_size(limits.string_size);
-        engine.set_max_map_size(limits.map_size);
+        // The engine's own size limits re-measure a whole array or map after every change
+        // (quadratic growth): off, see `Limits`.
+        engine.set_max_array_size(0);
+        engine.set_max_string_size(0);
+        engine.set_max_map_size(0);
         engine.set_max_call_levels(limits.call_levels);
+        register_array_limits(&mut engine, limits.array_size);
         engine.set_max_expr_depths(128, 64);
-        let prefs: SharedPrefs = Arc::new(RwLock::new(Prefs::default()));
+        let interrupt = Arc::new(AtomicBool::new(false));
+        let prefs: SharedPrefs = Arc::new(RwLock::new(Prefs {
+            interrupt: interrupt.clone(),
+            max_array: limits.array_size,
+            ..Prefs::default()
+        }));
         let mut catalog = Catalog::default();
         {
             let mut r = Registrar::new(&mut engine, &mut catalog);
@@ -203,10 +288,17 @@ impl Session {
             register_help(&mut r);
         }
         let catalog = Arc::new(catalog);
-        let interrupt = Arc::new(AtomicBool::new(false));
         let flag = interrupt.clone();
-        engine
-            .on_progress(move |_| if flag.load(Ordering::Relaxed) { Some(Dynamic::from("interrupted")) } else { None });
+        let memory = limits.memory;
+        engine.on_progress(move |_| {
+            if flag.load(Ordering::Relaxed) {
+                Some(Dynamic::from("interrupted"))
+            } else if memory > 0 && memory_in_use() > memory {
+                Some(Dynamic::from(MEMORY_TOKEN))
+            } else {
+                None
+            }
+        });
         let sink: Arc<RwLock<Sink>> = Arc::new(RwLock::new(stdout_sink()));
         let s1 = sink.clone();
         engine.on_print(move |s| send(&s1, Event::Stdout(s.to_string())));
@@ -243,7 +335,7 @@ impl Session {
         });
         let help_catalog = catalog.clone();
         engine.register_fn("help", move |name: &str| -> String { help_text(&help_catalog, name) });
-        Session { engine, scope: Scope::new(), functions: AST::empty(), catalog, prefs, interrupt, sink, input }
+        Session { engine, scope: Scope::new(), functions: AST::empty(), catalog, prefs, interrupt, sink, input, limits }
     }
 
     /// Where `print` and `display` go (as text); `eprint` still goes to standard error.
@@ -303,6 +395,7 @@ impl Session {
         let engine = &self.engine;
         let scope = &mut self.scope;
         let result = catch_unwind(AssertUnwindSafe(|| engine.eval_ast_with_scope::<Dynamic>(scope, &runnable)));
+        forget_shadowed(&mut self.scope);
         let value = match result {
             Ok(Ok(v)) => v,
             Ok(Err(e)) => return Err(self.runtime_error(&e)),
@@ -377,6 +470,17 @@ impl Session {
                     ("StagnaError".to_string(), msg, hint)
                 }
             }
+            EvalAltResult::ErrorTerminated(t, _) if t.to_string() == MEMORY_TOKEN => (
+                "LimitExceeded".into(),
+                format!(
+                    "the session holds {} of memory, past its limit of {}",
+                    show_bytes(memory_in_use()),
+                    show_bytes(self.limits.memory)
+                ),
+                Some(
+                    "free large variables (a re-run `let` replaces the old value), build big data as table columns, or raise --max-memory / STAGNA_MAX_MEMORY".into(),
+                ),
+            ),
             EvalAltResult::ErrorTerminated(_, _) => (
                 "Interrupted".into(),
                 "interrupted".into(),
@@ -533,6 +637,96 @@ fn char_boundary(s: &str, pos: usize) -> usize {
 /// where the word that ends `s` starts, whatever the width of the separator.
 fn after_last(s: &str, sep: impl Fn(char) -> bool) -> usize {
     s.char_indices().rev().find(|(_, c)| sep(*c)).map_or(0, |(i, c)| i + c.len_utf8())
+}
+
+/// Drops the variables that a later `let` of the same name has shadowed: the engine
+/// keeps every `let` as a new slot, so re-running a cell with `let t = read_csv(...)`
+/// kept every earlier table alive. Only the newest value of each name stays; nothing
+/// a script can still reach is lost (inputs are evaluated one at a time).
+fn forget_shadowed(scope: &mut Scope<'static>) {
+    let n = scope.len();
+    let shadowed = {
+        let mut seen = std::collections::HashSet::with_capacity(n);
+        scope.iter_raw().filter(|(name, _, _)| !seen.insert(*name)).count()
+    };
+    if shadowed == 0 {
+        return;
+    }
+    let old = std::mem::take(scope);
+    let mut entries: Vec<(String, bool, Dynamic)> = Vec::with_capacity(n);
+    let mut last: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
+    for (name, value, _) in old {
+        let constant = value.is_read_only();
+        match last.get(&name) {
+            Some(&i) => entries[i] = (name, constant, value),
+            None => {
+                last.insert(name.clone(), entries.len());
+                entries.push((name, constant, value));
+            }
+        }
+    }
+    for (name, constant, value) in entries {
+        if constant {
+            scope.push_constant_dynamic(name, value);
+        } else {
+            scope.push_dynamic(name, value);
+        }
+    }
+}
+
+/// The progress hook's token for a memory-limit stop.
+const MEMORY_TOKEN: &str = "stagna: memory limit";
+
+/// Bytes as MiB or GiB with three significant figures.
+pub fn show_bytes(b: usize) -> String {
+    let b = b as f64;
+    if b >= (1u64 << 30) as f64 {
+        format!("{:.3} GiB", b / (1u64 << 30) as f64)
+    } else {
+        format!("{:.1} MiB", b / (1u64 << 20) as f64)
+    }
+}
+
+/// Array growth with a length check in constant time. These shadow the engine's own
+/// array functions of the same names (functions registered on the engine are found
+/// before its packages), so that the length limit holds without re-measuring. The
+/// `+` and `+=` operators on arrays are the engine's built-ins (fast operators) and are
+/// bounded by the memory limit only.
+fn register_array_limits(engine: &mut Engine, max: usize) {
+    use rhai::Array;
+    fn over(max: usize, n: usize, what: &str) -> Result<(), Box<EvalAltResult>> {
+        if n > max {
+            return Err(api::rt(format!(
+                "{what}: an array of {n} elements is past the session's limit of {max} (--max-array); build big data as table columns"
+            )));
+        }
+        Ok(())
+    }
+    engine.register_fn("push", move |a: &mut Array, v: Dynamic| -> Result<(), Box<EvalAltResult>> {
+        over(max, a.len() + 1, "push")?;
+        a.push(v);
+        Ok(())
+    });
+    engine.register_fn("append", move |a: &mut Array, b: Array| -> Result<(), Box<EvalAltResult>> {
+        over(max, a.len() + b.len(), "append")?;
+        a.extend(b);
+        Ok(())
+    });
+    engine.register_fn("insert", move |a: &mut Array, i: i64, v: Dynamic| -> Result<(), Box<EvalAltResult>> {
+        over(max, a.len() + 1, "insert")?;
+        let n = a.len() as i64;
+        let at = if i < 0 { (n + i).max(0) } else { i.min(n) } as usize;
+        a.insert(at, v);
+        Ok(())
+    });
+    engine.register_fn("pad", move |a: &mut Array, n: i64, v: Dynamic| -> Result<(), Box<EvalAltResult>> {
+        let n = usize::try_from(n).unwrap_or(0);
+        over(max, n, "pad")?;
+        if n > a.len() {
+            a.resize(n, v);
+        }
+        Ok(())
+    });
 }
 
 /// The script language's keywords (for completion and highlighting).
@@ -743,6 +937,9 @@ mod tests {
             if matches!(name, "to_string" | "to_debug") || name.starts_with("index$") {
                 continue; // display hooks and the table indexer
             }
+            if matches!(name, "push" | "append" | "insert" | "pad") {
+                continue; // the language's own array functions, shadowed only for the length limit
+            }
             match s.catalog().lookup(name).first() {
                 Some(e) if !e.summary.is_empty() && !e.example.is_empty() && !e.source.is_empty() => {}
                 _ => missing.push(sig),
@@ -837,6 +1034,90 @@ mod tests {
         let e = err(&mut s, "let x = 0; loop { x += 1; }");
         t.join().unwrap();
         assert_eq!(e.kind, "Interrupted");
+    }
+
+    #[test]
+    fn limits_hold_in_constant_time_per_operation() {
+        // Regressions (issue 16): push was quadratic (400 k pushes took 143 s), a map grew
+        // past its limit, .values() over 10 M rows failed in a way try/catch could not
+        // catch, a layout of 10⁸ points allocated gigabytes.
+        let mut s = Session::new();
+        let t = std::time::Instant::now();
+        assert_eq!(eval(&mut s, "let a = []; for i in 0..400000 { a.push(i); } a.len()"), "400000");
+        // Generous for a debug build on a busy 2-core machine; the old cost was minutes.
+        assert!(t.elapsed().as_secs_f64() < 20.0, "400 k pushes took {:?}", t.elapsed());
+        let mut small = Session::with_limits(Limits { array_size: 1000, ..Limits::default() });
+        let e = err(&mut small, "let a = []; for i in 0..2000 { a.push(i); }");
+        assert!(e.message.contains("limit of 1000") && e.message.contains("--max-array"), "{e:?}");
+        assert!(err(&mut small, "let a = []; a.pad(5000, 0);").message.contains("limit of 1000"));
+        // Over the limit, .values() is an ordinary error that try/catch catches.
+        let csv = std::env::temp_dir().join(format!("stagna-values-{}.csv", std::process::id()));
+        std::fs::write(&csv, format!("v\n{}", "1.5\n".repeat(1500))).unwrap();
+        let src = format!(
+            "let t = read_csv(\"{}\"); let r = \"not caught\"; try {{ t[\"v\"].values(); }} catch (e) {{ r = e; }} r",
+            csv.display()
+        );
+        let caught = eval(&mut small, &src);
+        assert!(caught.contains("1500 rows") && caught.contains("--max-array"), "{caught}");
+        std::fs::remove_file(&csv).unwrap();
+        // A memory limit stops a map (or anything else) grown in a loop, whatever its kind.
+        let mut tight = Session::with_limits(Limits { memory: memory_in_use() + (64 << 20), ..Limits::default() });
+        let e = err(&mut tight, "let m = #{}; let i = 0; loop { m[`k${i}`] = \"a value of some length\"; i += 1; }");
+        assert!(e.kind == "LimitExceeded" && e.message.contains("past its limit"), "{e:?}");
+        assert!(e.hint.as_deref().is_some_and(|h| h.contains("--max-memory")), "{e:?}");
+        // Bounded domain inputs are checked before allocating.
+        let e = err(&mut s, "traverse_layout(round_duct(1.m), #{points: 100000000})");
+        assert!(e.message.contains("points per diameter") && e.message.contains("at most 200"), "{e:?}");
+        let e = err(&mut s, "traverse_layout(rect_duct(1.m, 0.5.m), #{columns: 0})");
+        assert!(e.message.contains("columns") && e.message.contains("got 0"), "{e:?}");
+    }
+
+    #[test]
+    fn deep_data_and_shadowed_values_are_safe() {
+        // Regressions (issue 16): arrays nested 5 000 deep overflowed the stack when dropped
+        // or shown (the front ends run sessions on threads with big stacks; tests get a
+        // thread of the same size here), and re-running `let x = ...` kept every old value.
+        let t = std::thread::Builder::new()
+            .stack_size(512 << 20)
+            .spawn(|| {
+                let mut s = Session::new();
+                let v = eval(&mut s, "let a = []; for i in 0..5000 { a = [a]; } a.len()");
+                assert_eq!(v, "1");
+                let shown = s.eval("a").unwrap().value.unwrap().text;
+                assert!(shown.starts_with("[[[[") && shown.len() >= 10_000);
+                eval(&mut s, "a = ();");
+                let before = memory_in_use();
+                for _ in 0..10 {
+                    eval(&mut s, "let x = table_from(#{v: [0.5]}); let big = []; big.pad(200000, 1.5);");
+                }
+                let grown = memory_in_use().saturating_sub(before);
+                let names: Vec<String> = s.scope.iter().map(|(n, _, _)| n.to_string()).collect();
+                assert_eq!(names.iter().filter(|n| *n == "big").count(), 1, "{names:?}");
+                // One 200 000-element array is ~3.2 MB of values; ten kept would be 32 MB.
+                assert!(grown < 16 << 20, "ten re-runs grew memory by {grown} bytes");
+            })
+            .unwrap();
+        t.join().unwrap();
+    }
+
+    #[test]
+    fn an_interrupt_stops_a_long_monte_carlo_run() {
+        // Regression (issue 16): an interrupt waited for a 5·10⁷-trial run (~10 s).
+        let mut s = Session::new();
+        eval(
+            &mut s,
+            "let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});",
+        );
+        let flag = s.interrupt_flag();
+        let t = std::thread::spawn(move || {
+            std::thread::sleep(std::time::Duration::from_millis(300));
+            flag.store(true, Ordering::Relaxed);
+        });
+        let started = std::time::Instant::now();
+        let e = err(&mut s, "b.monte_carlo(50000000)");
+        t.join().unwrap();
+        assert_eq!(e.kind, "Interrupted", "{e:?}");
+        assert!(started.elapsed().as_secs_f64() < 5.0, "took {:?}", started.elapsed());
     }
 
     #[test]

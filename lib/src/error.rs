@@ -118,6 +118,12 @@ pub enum Error {
         /// What went wrong and what to do.
         message: String,
     },
+    /// A long computation stopped on request (an interrupt from the user).
+    #[error("{context}: interrupted")]
+    Interrupted {
+        /// What was stopped.
+        context: &'static str,
+    },
     /// Inputs that are individually valid but do not fit together.
     #[error("{context}: {message}")]
     Inconsistent {

@@ -294,3 +294,26 @@ def test_inspect_and_complete_beside_multi_byte_characters(kernel):
     assert "IAPWS" in kc.get_shell_msg(timeout=TIMEOUT)["content"]["data"]["text/plain"]
     content, outputs = run(kc, "1 + 1")
     assert content["status"] == "ok" and "2" in text_of(outputs)
+
+
+def test_limits_reach_the_kernel_and_deep_values_display():
+    """Regressions (issue 16): --max-operations and the other limits had no effect on
+    the kernel; displaying an array nested 2 000 deep killed the kernel."""
+    env = dict(os.environ, STAGNA_MAX_OPERATIONS="200000", STAGNA_MAX_ARRAY="1000")
+    km = KernelManager(kernel_name="stagna")
+    km.start_kernel(env=env)
+    kc = km.client()
+    kc.start_channels()
+    try:
+        kc.wait_for_ready(timeout=TIMEOUT)
+        content, outputs = run(kc, "let x = 0; loop { x += 1; }")
+        assert content["status"] == "error" and "operation limit" in content["evalue"], content
+        content, _ = run(kc, "let a = []; a.pad(5000, 0);")
+        assert content["status"] == "error" and "limit of 1000" in content["evalue"], content
+        content, outputs = run(kc, "let d = []; for i in 0..2000 { d = [d]; } d")
+        assert content["status"] == "ok" and text_of(outputs).startswith("[[[[")
+        content, outputs = run(kc, "1 + 1")
+        assert "2" in text_of(outputs)
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=True)

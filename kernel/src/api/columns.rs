@@ -177,7 +177,16 @@ fn conversions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         {
             let p = prefs.clone();
             move |c: &mut Col| -> Res<Array> {
-                let v = match c.out_unit(super::prefs(&p).system) {
+                let prefs = super::prefs(&p);
+                if c.si.len() > prefs.max_array {
+                    return Err(rt(format!(
+                        "column '{}'.values(): {} rows is past the session's array limit of {} (--max-array); work on the column itself, or take .head(n) of the table first",
+                        c.name,
+                        c.si.len(),
+                        prefs.max_array
+                    )));
+                }
+                let v = match c.out_unit(prefs.system) {
                     Some(u) => lib(c.values_in(&u))?,
                     None => c.si.to_vec(),
                 };

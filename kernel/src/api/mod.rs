@@ -46,7 +46,11 @@ pub fn rt(msg: impl Display) -> Box<EvalAltResult> {
 
 /// Maps a library result into a script result.
 pub fn lib<T>(r: stagna::Result<T>) -> Res<T> {
-    r.map_err(rt)
+    r.map_err(|e| match e {
+        // The session reports this as an interrupt (KeyboardInterrupt in notebooks).
+        stagna::Error::Interrupted { .. } => rt("interrupted"),
+        e => rt(e),
+    })
 }
 
 /// The unit system for display.
@@ -70,11 +74,22 @@ pub struct Prefs {
     pub protected: Vec<std::path::PathBuf>,
     /// Folder the bundled demo tables are read from instead of the embedded copies.
     pub data_dir: Option<std::path::PathBuf>,
+    /// The session's interrupt flag, for long host functions to poll.
+    pub interrupt: Arc<std::sync::atomic::AtomicBool>,
+    /// Longest array a host function may return (the session's array limit).
+    pub max_array: usize,
 }
 
 impl Default for Prefs {
     fn default() -> Self {
-        Self { system: UnitSystem::Si, output_dir: None, protected: Vec::new(), data_dir: None }
+        Self {
+            system: UnitSystem::Si,
+            output_dir: None,
+            protected: Vec::new(),
+            data_dir: None,
+            interrupt: Arc::default(),
+            max_array: usize::MAX,
+        }
     }
 }
 

@@ -38,11 +38,11 @@ fn dps_of(d: &Dynamic) -> Res<Vec<f64>> {
 }
 
 /// Registers budgets.
-pub fn register(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
+pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Budget>("Budget");
     r.group("Uncertainty");
     budgets(r);
-    budget_members(r);
+    budget_members(r, prefs);
 }
 
 /// Budgets of point velocities and traverses.
@@ -117,7 +117,8 @@ fn budgets(r: &mut Registrar<'_>) {
 }
 
 /// What a budget gives: table, chart, Monte Carlo.
-fn budget_members(r: &mut Registrar<'_>) {
+fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    let pp = prefs.clone();
     r.method(
         "Budget",
         "table",
@@ -156,11 +157,12 @@ fn budget_members(r: &mut Registrar<'_>) {
             .param("trials", "number of trials, e.g. 200000 (at least 10⁴)")
             .example("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});\nprint(b.monte_carlo(20000));")
             .source("JCGM 101:2008 §5–8"),
-        |b: &mut Budget, n: i64| -> Res<Map> {
+        move |b: &mut Budget, n: i64| -> Res<Map> {
             if !(10_000..=50_000_000).contains(&n) {
                 return Err(rt("monte_carlo: trials from 10 000 to 50 000 000"));
             }
-            let mc = lib(monte_carlo(&b.model.model, &b.model.inputs, &Correlations::none(), &McOptions { trials: n as usize, coverage: b.g.coverage, ..Default::default() }))?;
+            let cancel = Some(super::prefs(&pp).interrupt);
+            let mc = lib(monte_carlo(&b.model.model, &b.model.inputs, &Correlations::none(), &McOptions { trials: n as usize, coverage: b.g.coverage, cancel, ..Default::default() }))?;
             let v = validate(&b.g, &mc, 2);
             let mut m = Map::new();
             m.insert("trials".into(), Dynamic::from(mc.trials as i64));

@@ -359,11 +359,14 @@ async fn accept(
 }
 
 /// Runs the kernel until shutdown; returns the exit status.
-pub fn run(connection_file: &std::path::Path) -> Result<i32, Box<dyn std::error::Error>> {
+pub fn run(
+    connection_file: &std::path::Path,
+    limits: crate::session::Limits,
+) -> Result<i32, Box<dyn std::error::Error>> {
     let text = std::fs::read_to_string(connection_file).map_err(|e| format!("{}: {e}", connection_file.display()))?;
     let conn = Arc::new(Connection::parse(&text)?);
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
-    rt.block_on(serve(conn))
+    rt.block_on(serve(conn, limits))
 }
 
 async fn bind<S: Socket>(s: &mut S, conn: &Connection, port: u16) -> Result<(), Box<dyn std::error::Error>> {
@@ -371,7 +374,7 @@ async fn bind<S: Socket>(s: &mut S, conn: &Connection, port: u16) -> Result<(), 
     Ok(())
 }
 
-async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>> {
+async fn serve(conn: Arc<Connection>, limits: crate::session::Limits) -> Result<i32, Box<dyn std::error::Error>> {
     let mut shell = RouterSocket::new();
     let mut control = RouterSocket::new();
     let mut stdin = RouterSocket::new();
@@ -387,7 +390,7 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
     let iopub = publisher::Publisher::bind(&conn.ip, conn.iopub_port).await?;
     bind(&mut hb, &conn, conn.hb_port).await?;
 
-    let session = Session::new();
+    let session = Session::with_limits(limits);
     let interrupt = session.interrupt_flag();
     let (iopub_tx, mut iopub_rx) = tokio::sync::mpsc::unbounded_channel::<Out>();
     let (ask_tx, mut ask_rx) = tokio::sync::mpsc::unbounded_channel::<InputAsk>();
@@ -395,11 +398,16 @@ async fn serve(conn: Arc<Connection>) -> Result<i32, Box<dyn std::error::Error>>
     let kernel_session = wire::new_id();
     {
         let tx = iopub_tx.clone();
-        std::thread::Builder::new().name("stagna-eval".into()).spawn(move || {
-            if catch_unwind(AssertUnwindSafe(|| evaluation_thread(session, job_rx, tx, ask_tx))).is_err() {
-                evaluation_thread_gone();
-            }
-        })?;
+        std::thread::Builder::new()
+            .name("stagna-eval".into())
+            // Deep script data (arrays nested thousands deep) is displayed and dropped
+            // recursively: a big stack, reserved rather than committed.
+            .stack_size(512 << 20)
+            .spawn(move || {
+                if catch_unwind(AssertUnwindSafe(|| evaluation_thread(session, job_rx, tx, ask_tx))).is_err() {
+                    evaluation_thread_gone();
+                }
+            })?;
     }
 
     // iopub: one publisher task keeps the order of busy, outputs and idle.

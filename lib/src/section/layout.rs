@@ -29,6 +29,11 @@ use crate::error::{Error, Result, Warning, finite};
 use crate::section::conduit::{Conduit, Section};
 use crate::units::quantity::{Length, format_number};
 
+/// Most points on one traverse line (or lines across a rectangle), checked before any
+/// allocation: far beyond what the published rules tabulate, and a bound on what a
+/// mistyped option can ask for (common practice, no source).
+pub const MAX_POINTS_PER_LINE: usize = 200;
+
 /// A point-placement rule.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum LayoutRule {
@@ -189,6 +194,15 @@ impl TraverseLayout {
             });
         };
         finite("traverse layout", "port length", port_length.si())?;
+        if per_diameter > MAX_POINTS_PER_LINE {
+            return Err(Error::OutOfRange {
+                context: "traverse layout",
+                param: "points per diameter",
+                value: per_diameter as f64,
+                unit: "",
+                allowed: format!("at most {MAX_POINTS_PER_LINE}"),
+            });
+        }
         if per_diameter < 2 || !per_diameter.is_multiple_of(2) {
             return Err(Error::Inconsistent {
                 context: "traverse layout",
@@ -294,6 +308,17 @@ impl TraverseLayout {
                 }),
             }
         };
+        for (param, n) in [("columns (traverse lines across the width)", columns), ("rows (points per line)", rows)] {
+            if n == 0 || n > MAX_POINTS_PER_LINE {
+                return Err(Error::OutOfRange {
+                    context: "traverse layout",
+                    param,
+                    value: n as f64,
+                    unit: "",
+                    allowed: format!("from 1 to {MAX_POINTS_PER_LINE}"),
+                });
+            }
+        }
         let xs = fractions(columns)?;
         let ys = fractions(rows)?;
         let mut points = Vec::new();

@@ -17,6 +17,8 @@ use rand::rngs::SmallRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution as _, StandardNormal};
 use rayon::prelude::*;
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
 
 use crate::error::{Error, Result};
 use crate::uncertainty::{Correlations, Distribution, GumResult, Input, Model, cholesky};
@@ -24,7 +26,7 @@ use crate::uncertainty::{Correlations, Distribution, GumResult, Input, Model, ch
 const CHUNK: usize = 65_536;
 
 /// Options of a Monte Carlo run.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone)]
 pub struct McOptions {
     /// Number of trials M.
     pub trials: usize,
@@ -32,13 +34,20 @@ pub struct McOptions {
     pub seed: u64,
     /// Coverage probability p.
     pub coverage: f64,
+    /// Set from another thread to stop the run; it is polled between chunks of trials
+    /// and the run ends with [`Error::Interrupted`].
+    pub cancel: Option<Arc<AtomicBool>>,
 }
 
 impl Default for McOptions {
     fn default() -> Self {
-        Self { trials: 1_000_000, seed: 20_261_202, coverage: 0.95 }
+        Self { trials: 1_000_000, seed: 20_261_202, coverage: 0.95, cancel: None }
     }
 }
+
+/// Most trials one run may ask for: 8 bytes each are held and sorted (0.8 GB at the
+/// bound), far past the 10⁶ that JCGM 101 §7.2.2 suggests for a 95 % interval.
+pub const MAX_TRIALS: usize = 100_000_000;
 
 /// Result of a Monte Carlo run.
 #[derive(Debug, Clone, PartialEq)]
@@ -138,7 +147,17 @@ pub fn sample_model<M: Model>(
     correlations: &Correlations,
     trials: usize,
     seed: u64,
+    cancel: Option<&AtomicBool>,
 ) -> Result<Vec<f64>> {
+    if trials > MAX_TRIALS {
+        return Err(Error::OutOfRange {
+            context: "Monte Carlo",
+            param: "number of trials",
+            value: trials as f64,
+            unit: "",
+            allowed: format!("at most {MAX_TRIALS}"),
+        });
+    }
     if trials == 0 {
         return Err(Error::OutOfRange {
             context: "Monte Carlo",
@@ -153,7 +172,11 @@ pub fn sample_model<M: Model>(
     }
     let sampler = Sampler::new(inputs, correlations)?;
     let mut out = vec![0.0; trials];
+    let stopped = || cancel.is_some_and(|c| c.load(Ordering::Relaxed));
     out.par_chunks_mut(CHUNK).enumerate().for_each(|(c, chunk)| {
+        if stopped() {
+            return;
+        }
         let mut rng = SmallRng::seed_from_u64(splitmix(seed ^ splitmix(c as u64)));
         let mut x = vec![0.0; inputs.len()];
         let mut z = vec![0.0; sampler.correlated.len()];
@@ -162,6 +185,9 @@ pub fn sample_model<M: Model>(
             *y = model.eval(&x);
         }
     });
+    if stopped() {
+        return Err(Error::Interrupted { context: "Monte Carlo" });
+    }
     if let Some(i) = out.iter().position(|y| !y.is_finite()) {
         return Err(Error::Inconsistent {
             context: "Monte Carlo",
@@ -225,7 +251,7 @@ pub fn monte_carlo<M: Model>(
     correlations: &Correlations,
     opts: &McOptions,
 ) -> Result<McResult> {
-    summarize(sample_model(model, inputs, correlations, opts.trials, opts.seed)?, opts.coverage)
+    summarize(sample_model(model, inputs, correlations, opts.trials, opts.seed, opts.cancel.as_deref())?, opts.coverage)
 }
 
 /// The numerical tolerance δ of JCGM 101 §7.9.2 for u(y) stated to `ndig` significant digits:
@@ -256,7 +282,7 @@ pub fn monte_carlo_adaptive<M: Model>(
     let mut stats: Vec<[f64; 4]> = Vec::new();
     loop {
         let h = stats.len() as u64;
-        let run = sample_model(model, inputs, correlations, m, splitmix(seed.wrapping_add(h)))?;
+        let run = sample_model(model, inputs, correlations, m, splitmix(seed.wrapping_add(h)), None)?;
         all.extend_from_slice(&run);
         let s = summarize(run, coverage)?;
         stats.push([s.mean, s.u, s.symmetric.0, s.symmetric.1]);
@@ -315,15 +341,30 @@ mod tests {
     }
 
     #[test]
+    fn a_cancelled_run_stops_between_chunks_and_says_so() {
+        // Regression (issue 16): an interrupt waited for a 5·10⁷-trial run to finish.
+        let i = pitot_inputs();
+        let flag = Arc::new(AtomicBool::new(true));
+        let opts = McOptions { trials: 50_000_000, cancel: Some(flag), ..Default::default() };
+        let t = std::time::Instant::now();
+        let e = monte_carlo(&PointVelocityModel, &i, &Correlations::none(), &opts).unwrap_err();
+        assert_eq!(e, Error::Interrupted { context: "Monte Carlo" });
+        assert!(t.elapsed().as_secs_f64() < 5.0, "stopped without running the trials");
+        let too_many = McOptions { trials: MAX_TRIALS + 1, ..Default::default() };
+        let e = monte_carlo(&PointVelocityModel, &i, &Correlations::none(), &too_many).unwrap_err();
+        assert!(e.to_string().contains("at most"), "{e}");
+    }
+
+    #[test]
     fn reproducible_and_independent_of_threads() {
         let i = pitot_inputs();
-        let a = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7).unwrap();
-        let b = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7).unwrap();
+        let a = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7, None).unwrap();
+        let b = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7, None).unwrap();
         assert_eq!(a, b);
         let one = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
-        let c = one.install(|| sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7).unwrap());
+        let c = one.install(|| sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7, None).unwrap());
         assert_eq!(a, c);
-        let d = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 8).unwrap();
+        let d = sample_model(&PointVelocityModel, &i, &Correlations::none(), 200_000, 8, None).unwrap();
         assert_ne!(a, d);
     }
 
