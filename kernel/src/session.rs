@@ -467,7 +467,8 @@ impl Session {
                     )
                 } else {
                     let hint = hint_for(&msg);
-                    ("StagnaError".to_string(), msg, hint)
+                    // A message quoting a huge value (a 50 MB field) is cut in the middle.
+                    ("StagnaError".to_string(), stagna::error::shorten(&msg, 2000), hint)
                 }
             }
             EvalAltResult::ErrorTerminated(t, _) if t.to_string() == MEMORY_TOKEN => (
@@ -1070,6 +1071,32 @@ mod tests {
         assert!(e.message.contains("points per diameter") && e.message.contains("at most 200"), "{e:?}");
         let e = err(&mut s, "traverse_layout(rect_duct(1.m, 0.5.m), #{columns: 0})");
         assert!(e.message.contains("columns") && e.message.contains("got 0"), "{e:?}");
+    }
+
+    #[test]
+    fn text_constants_and_csv_layouts() {
+        // Regressions (issue 16): lit("T1") was taken as a column name; decimal-comma
+        // files had no way in; a long quoted value is cut in error messages.
+        let mut s = Session::new();
+        let v = eval(&mut s, "table_from(#{a: [1.0]}).with_column(\"site\", lit(\"T1\")).distinct(\"site\")");
+        assert_eq!(v, "[\"T1\"]");
+        let p = std::env::temp_dir().join(format!("stagna-eu-{}.csv", std::process::id()));
+        std::fs::write(&p, "point;h\nA1;12,5\nA2;14,0\n").unwrap();
+        let v = eval(
+            &mut s,
+            &format!(
+                "read_csv(\"{}\", #{{separator: \";\", decimal_comma: true}}).unit(\"h\", \"mm\")[\"h\"].mean()",
+                p.display()
+            ),
+        );
+        assert!(v.starts_with("0.01325 m") || v.starts_with("13.25 mm"), "{v}");
+        let e = err(&mut s, &format!("read_csv(\"{}\", #{{separator: \",\", decimal_comma: true}})", p.display()));
+        assert!(e.message.contains("separator: \";\""), "{e:?}");
+        let e = err(&mut s, &format!("read_csv(\"{}\")", p.display()));
+        assert!(e.message.contains("line 1") && e.message.contains("semicolons"), "{e:?}");
+        std::fs::remove_file(&p).unwrap();
+        let e = err(&mut s, &format!("throw \"{}\"", "z".repeat(100_000)));
+        assert!(e.message.len() < 3_000, "{}", e.message.len());
     }
 
     #[test]

@@ -194,3 +194,14 @@ impl fmt::Display for Warning {
         write!(f, "warning ({}): {}", self.kind, self.message)
     }
 }
+
+/// Cuts a long message in the middle, saying how much was left out.
+pub fn shorten(message: &str, max: usize) -> String {
+    if message.chars().count() <= max {
+        return message.to_string();
+    }
+    let head: String = message.chars().take(max * 2 / 3).collect();
+    let tail: String = message.chars().rev().take(max / 3).collect::<Vec<_>>().into_iter().rev().collect();
+    let left = message.chars().count() - head.chars().count() - tail.chars().count();
+    format!("{head} … ({left} characters left out) … {tail}")
+}

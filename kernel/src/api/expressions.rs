@@ -71,10 +71,15 @@ fn expressions(r: &mut Registrar<'_>) {
     );
     r.func(
         "lit",
-        &Doc::new("lit(value) -> Expr", "A constant as an expression.")
-            .example("print(table_from(#{a: [1.0]}).with_column(\"k\", lit(2.5)));")
+        &Doc::new("lit(value) -> Expr", "A constant as an expression: a number, or a text constant (never a column name; write col(\"name\") for a column).")
+            .example("print(table_from(#{a: [1.0]}).with_column(\"k\", lit(2.5)).with_column(\"site\", lit(\"T1\")));")
             .source("polars expressions"),
-        |d: Dynamic| -> Res<Ex> { Ok(Ex(expr_of(&d, "lit")?)) },
+        |d: Dynamic| -> Res<Ex> {
+            if let Ok(s) = d.clone().into_immutable_string() {
+                return Ok(Ex(lit(s.to_string())));
+            }
+            Ok(Ex(expr_of(&d, "lit")?))
+        },
     );
     let e = &mut *r.engine;
     expr_binops!(e,

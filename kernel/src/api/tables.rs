@@ -220,6 +220,31 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func("read_csv", &read_doc("CSV", "read_csv"), |p: &str| -> Res<Tbl> {
         Ok(Tbl::new(lib(stagna::io::table::read_csv(Path::new(p)))?))
     });
+    r.func(
+        "read_csv",
+        &Doc::new("read_csv(path, options) -> Table", "Reads a CSV file laid out otherwise: options separator (one character, e.g. \";\" or \"\\t\") and decimal_comma (true where numbers are written 12,5).")
+            .example("table_from(#{h: [12.5, 14.0]}).write(\"readings.csv\");\nlet t = read_csv(\"readings.csv\", #{separator: \",\", decimal_comma: false});\nprint(t.height);")
+            .source("polars CSV reader"),
+        |p: &str, o: Map| -> Res<Tbl> {
+            check_keys(&o, &["separator", "decimal_comma"], "read_csv")?;
+            let mut layout = stagna::io::table::CsvLayout::default();
+            if let Some(d) = field(&o, "separator") {
+                let t = text(d, "separator")?;
+                let t = if t == "\\t" { "\t".to_string() } else { t };
+                match t.as_bytes() {
+                    [b] if b.is_ascii() && *b != b'"' => layout.separator = *b,
+                    _ => return Err(rt(format!("read_csv: separator must be one ASCII character such as \";\" or \"\\t\", got \"{t}\""))),
+                }
+            }
+            if let Some(d) = field(&o, "decimal_comma") {
+                layout.decimal_comma = d.as_bool().map_err(|_| rt("read_csv: decimal_comma must be true or false"))?;
+            }
+            if layout.decimal_comma && layout.separator == b',' {
+                return Err(rt("read_csv: with decimal commas the fields cannot also be separated by commas; give separator: \";\""));
+            }
+            Ok(Tbl::new(lib(stagna::io::table::read_csv_with(Path::new(p), layout))?))
+        },
+    );
     r.func("read_parquet", &read_doc("Parquet", "read_parquet"), |p: &str| -> Res<Tbl> {
         Ok(Tbl::new(lib(stagna::io::table::read_parquet(Path::new(p)))?))
     });

@@ -12,7 +12,7 @@ use polars::prelude::*;
 use polars_io::prelude::{CsvReadOptions, CsvWriter, ParquetReader, ParquetWriter};
 use polars_io::{SerReader, SerWriter};
 
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, shorten};
 
 fn file_err(path: &Path, message: impl Into<String>) -> Error {
     Error::File { path: path.display().to_string(), message: message.into() }
@@ -27,21 +27,163 @@ fn check_readable(path: &Path) -> Result<()> {
     }
 }
 
+/// How a CSV file is laid out.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct CsvLayout {
+    /// Field separator (`,` by default; `;` where the decimal mark is a comma).
+    pub separator: u8,
+    /// Numbers are written with a decimal comma (`12,5`).
+    pub decimal_comma: bool,
+}
+
+impl Default for CsvLayout {
+    fn default() -> Self {
+        Self { separator: b',', decimal_comma: false }
+    }
+}
+
+/// Longest piece of a parser's message quoted in an error (a 50 MB field is not
+/// repeated in full).
+const MAX_QUOTED: usize = 300;
+
 /// Reads a CSV file with a header row; column types are inferred from the first rows;
 /// lines starting with `#` are comments.
 pub fn read_csv(path: &Path) -> Result<DataFrame> {
+    read_csv_with(path, CsvLayout::default())
+}
+
+/// Reads a CSV file laid out as `layout` says. The header must name every column once;
+/// a file with a header and no data rows, rows with more or fewer fields than the
+/// header, or text that is not UTF-8 are refused with the line to look at.
+pub fn read_csv_with(path: &Path, layout: CsvLayout) -> Result<DataFrame> {
     check_readable(path)?;
+    let (header_line, header) = csv_header(path, layout)?;
     let df = CsvReadOptions::default()
         .with_has_header(true)
         .with_infer_schema_length(Some(10_000))
-        .map_parse_options(|o| o.with_comment_prefix(Some("#")))
+        .map_parse_options(|o| {
+            o.with_comment_prefix(Some("#")).with_separator(layout.separator).with_decimal_comma(layout.decimal_comma)
+        })
         .try_into_reader_with_file_path(Some(path.to_path_buf()))
         .and_then(|r| r.finish())
-        .map_err(|e| file_err(path, format!("not a readable CSV table: {e}")))?;
+        .map_err(|e| {
+            let why = csv_problem(path, layout, header.len(), header_line)
+                .unwrap_or_else(|| format!("not a readable CSV table: {}", shorten(&e.to_string(), MAX_QUOTED)));
+            file_err(path, why)
+        })?;
     if df.width() == 0 {
         return Err(file_err(path, "no columns"));
     }
+    if df.height() == 0 {
+        return Err(file_err(
+            path,
+            format!(
+                "no data rows: the header (line {header_line}) names {} column(s) and nothing follows",
+                header.len()
+            ),
+        ));
+    }
     Ok(df)
+}
+
+/// The header: its line number (from 1) and its names, refusing a repeated name, and a
+/// one-column header that holds another likely separator.
+fn csv_header(path: &Path, layout: CsvLayout) -> Result<(usize, Vec<String>)> {
+    use std::io::{BufRead, BufReader};
+    let file = File::open(path).map_err(|e| file_err(path, format!("cannot open: {e}")))?;
+    let mut reader = BufReader::new(file);
+    let mut buf = Vec::new();
+    let mut line_no = 0usize;
+    loop {
+        buf.clear();
+        let n = reader.read_until(b'\n', &mut buf).map_err(|e| file_err(path, format!("cannot read: {e}")))?;
+        if n == 0 {
+            return Err(file_err(path, "no header row (the file holds only comments or blank lines)"));
+        }
+        line_no += 1;
+        let text = std::str::from_utf8(&buf).map_err(|_| {
+            file_err(
+                path,
+                format!("line {line_no} is not UTF-8 text; save the file as UTF-8 (CSV UTF-8 in spreadsheets)"),
+            )
+        })?;
+        let text = text.trim_start_matches('\u{feff}').trim_end_matches(['\n', '\r']);
+        if text.trim().is_empty() || text.starts_with('#') {
+            continue;
+        }
+        let sep = layout.separator as char;
+        let names: Vec<String> = text.split(sep).map(|n| n.trim().trim_matches('"').to_string()).collect();
+        if names.len() == 1 {
+            for (other, name) in [(';', "semicolons"), ('\t', "tabs"), (',', "commas"), ('|', "bars")] {
+                if other != sep && text.contains(other) {
+                    let hint = if other == ';' {
+                        "; files from decimal-comma locales often are: read_csv(path, #{separator: \";\", decimal_comma: true})"
+                    } else {
+                        ""
+                    };
+                    return Err(file_err(
+                        path,
+                        format!(
+                            "line {line_no}: the header is one column but is separated by {name}, not '{sep}'; give the separator{hint}"
+                        ),
+                    ));
+                }
+            }
+        }
+        let mut seen = std::collections::HashSet::new();
+        if let Some(dup) = names.iter().find(|n| !seen.insert(n.as_str())) {
+            return Err(file_err(
+                path,
+                format!(
+                    "line {line_no}: the header names column '{}' more than once; give each column its own name",
+                    shorten(dup, 80)
+                ),
+            ));
+        }
+        return Ok((line_no, names));
+    }
+}
+
+/// After a parser failure: the first line whose field count differs from the header's,
+/// or that is not UTF-8, with a hint about separators and decimal commas.
+fn csv_problem(path: &Path, layout: CsvLayout, fields: usize, header_line: usize) -> Option<String> {
+    use std::io::{BufRead, BufReader};
+    let reader = BufReader::new(File::open(path).ok()?);
+    let sep = layout.separator as char;
+    for (i, line) in reader.split(b'\n').enumerate().skip(header_line) {
+        let line_no = i + 1;
+        let bytes = line.ok()?;
+        let Ok(text) = std::str::from_utf8(&bytes) else {
+            return Some(format!(
+                "line {line_no} is not UTF-8 text; save the file as UTF-8 (CSV UTF-8 in spreadsheets)"
+            ));
+        };
+        let text = text.trim_end_matches('\r');
+        if text.trim().is_empty() || text.starts_with('#') {
+            continue;
+        }
+        let mut n = 1;
+        let mut quoted = false;
+        for c in text.chars() {
+            match c {
+                '"' => quoted = !quoted,
+                c if c == sep && !quoted => n += 1,
+                _ => {}
+            }
+        }
+        if n != fields {
+            let hint = if sep == ',' && n > fields {
+                "; if the numbers are written with decimal commas (12,5), save the file with ';' between fields and read it with #{separator: \";\", decimal_comma: true}"
+            } else {
+                ""
+            };
+            return Some(format!(
+                "line {line_no} has {n} field(s) where the header has {fields}: {}{hint}",
+                shorten(text, 120)
+            ));
+        }
+    }
+    None
 }
 
 /// Reads a Parquet file.
@@ -112,6 +254,12 @@ pub fn read_spreadsheet(path: &Path, sheet: Option<&str>) -> Result<DataFrame> {
 /// Reads a table by the file's extension: `.csv`/`.txt`, `.parquet`/`.pq`, or a workbook
 /// (`.xlsx`, `.xlsm`, `.xls`, `.ods`, first sheet).
 pub fn read_table(path: &Path) -> Result<DataFrame> {
+    if path.is_dir() {
+        return Err(file_err(
+            path,
+            "is a folder, not a table; give one file (csv, parquet, xlsx, xls, ods), or run a script over every file with `stagna run SCRIPT FOLDER/*.csv`",
+        ));
+    }
     match extension(path).as_str() {
         "csv" | "txt" => read_csv(path),
         "parquet" | "pq" => read_parquet(path),
@@ -285,6 +433,41 @@ mod tests {
             }
         });
         assert_eq!(float_column(&read_table(&p).unwrap(), "a").unwrap(), vec![1.0, 2.0]);
+    }
+
+    #[test]
+    fn malformed_csv_files_are_refused_with_the_line_to_fix() {
+        // Regressions (issue 16): a repeated header name was read as h_duplicated_0, a
+        // header-only file said "holds str values", ragged rows, wrong separators,
+        // decimal commas and invalid UTF-8 gave parser messages without a line, a folder
+        // was an "unknown table format '.'", and a huge field was quoted twice in full.
+        let case = |name: &str, text: &[u8]| {
+            let p = tmp(name);
+            std::fs::write(&p, text).unwrap();
+            read_csv(&p).unwrap_err().to_string()
+        };
+        let e = case("dup.csv", b"point,h,h\nA1,1,2\n");
+        assert!(e.contains("line 1") && e.contains("'h' more than once"), "{e}");
+        let e = case("header-only.csv", b"# site: Example Works\npoint,h\n");
+        assert!(e.contains("no data rows") && e.contains("line 2"), "{e}");
+        let e = case("ragged.csv", b"point,h\nA1,1\nA2,2,9\nA3,3\n");
+        assert!(e.contains("line 3 has 3 field(s) where the header has 2"), "{e}");
+        let e = case("semicolons.csv", b"point;h\nA1;12,5\n");
+        assert!(e.contains("separated by semicolons") && e.contains("decimal_comma: true"), "{e}");
+        let e = case("decimal-commas.csv", b"point,h\nA1,12,5\n");
+        assert!(e.contains("line 2") && e.contains("decimal commas"), "{e}");
+        let e = case("latin1.csv", b"point,h\nA1,1\nA\xe92,2\n");
+        assert!(e.contains("line 3 is not UTF-8"), "{e}");
+        let e = read_table(&std::env::temp_dir()).unwrap_err().to_string();
+        assert!(e.contains("is a folder"), "{e}");
+        let huge = format!("point,h\nA1,{}\nA2,1,2\n", "9".repeat(1_000_000));
+        let e = case("huge.csv", huge.as_bytes());
+        assert!(e.len() < 2_000, "the message quotes at most a few hundred characters: {} bytes", e.len());
+        // The same file laid out with semicolons and decimal commas reads.
+        let p = tmp("eu.csv");
+        std::fs::write(&p, "point;h\nA1;12,5\nA2;14,0\n").unwrap();
+        let df = read_csv_with(&p, CsvLayout { separator: b';', decimal_comma: true }).unwrap();
+        assert_eq!(float_column(&df, "h").unwrap(), vec![12.5, 14.0]);
     }
 
     #[test]
