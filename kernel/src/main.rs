@@ -71,6 +71,10 @@ struct KernelArgs {
     /// environment variables in its env).
     #[command(flatten)]
     limits: session::LimitArgs,
+    /// Also allow notebooks to write into this folder (repeatable); by default they write
+    /// only inside the folder the kernel starts in (the notebook's). Reading is not restricted.
+    #[arg(long, value_name = "DIR")]
+    allow_write: Vec<PathBuf>,
 }
 
 #[derive(Subcommand)]
@@ -136,7 +140,7 @@ fn command(cli: Cli) -> ExitCode {
             (Some(KernelAction::Uninstall(t)), ..) => jupyter::install::uninstall(&t.target()).map(|d| {
                 println!("removed {}", d.display());
             }),
-            (None, Some(f), Ok(limits)) => match jupyter::run(&f, limits) {
+            (None, Some(f), Ok(limits)) => match jupyter::run(&f, limits, k.allow_write) {
                 Ok(0) => Ok(()),
                 Ok(code) => return ExitCode::from(code as u8),
                 Err(e) => Err(e),

@@ -5,7 +5,8 @@
 //! to the output folder (a subfolder per input file when there are several, unique per
 //! input: its path relative to the inputs' common folder); temporaries that an
 //! interrupted earlier run left in the output folder are removed first; input
-//! files and the script are never overwritten; every write goes through a temporary
+//! files and the script are never overwritten; scripts write only inside the output
+//! folder (and folders given with `--allow-write`); every write goes through a temporary
 //! file and a rename. The first failing file's message ends the run with status 1
 //! after the others finish.
 
@@ -35,6 +36,10 @@ pub struct RunArgs {
     /// Limits of each file's session.
     #[command(flatten)]
     pub limits: LimitArgs,
+    /// Also allow the scripts to write into this folder (repeatable); by default they
+    /// write only inside the output folder. Reading is not restricted.
+    #[arg(long, value_name = "DIR")]
+    pub allow_write: Vec<PathBuf>,
     /// Parallel jobs (default: one per core).
     #[arg(long, short = 'j', value_name = "N")]
     pub jobs: Option<usize>,
@@ -92,6 +97,7 @@ fn run_one(
         };
         p.output_dir = Some(out_dir.to_path_buf());
         p.protected = protected.to_vec();
+        p.write_roots = Some(std::iter::once(args.out.clone()).chain(args.allow_write.iter().cloned()).collect());
     }
     session.set_var("output_dir", Dynamic::from(out_dir.display().to_string()));
     if let Some(f) = file {

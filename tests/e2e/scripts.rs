@@ -223,3 +223,38 @@ fn batch_outputs_are_unique_per_input_and_every_written_file_is_checked() {
     assert!(String::from_utf8_lossy(&o.stderr).contains("refusing to overwrite an input file"));
     assert_eq!(std::fs::read_to_string(&victim).expect("read"), "column,unit\nkeep,me\n");
 }
+
+#[test]
+fn batch_scripts_write_only_inside_the_output_folder_unless_allowed() {
+    // Issue 16 (sandbox): batch runs confine writes to the output folder; reads stay open.
+    let dir = tempdir("confine");
+    let out = dir.join("out");
+    let elsewhere = dir.join("elsewhere");
+    std::fs::create_dir_all(&elsewhere).expect("dir");
+    let script = dir.join("w.rhai");
+    for target in [elsewhere.join("x.csv").display().to_string(), "../escape.csv".to_string()] {
+        std::fs::write(&script, format!("table_from(#{{a: [1.0]}}).write(\"{target}\");")).expect("script");
+        let o = stagna(&["run", script.to_str().unwrap_or_default(), "-o", out.to_str().unwrap_or_default()]);
+        let se = String::from_utf8_lossy(&o.stderr);
+        assert!(!o.status.success() && se.contains("outside the folders this session may write"), "{target}: {se}");
+        assert!(se.contains("--allow-write"), "{se}");
+    }
+    assert!(!elsewhere.join("x.csv").exists() && !dir.join("escape.csv").exists());
+    // Reading anywhere is fine; writing where --allow-write says is fine.
+    let data = root().join("demo-data/hollin-brook-main.csv");
+    std::fs::write(
+        &script,
+        format!("let t = read_table(\"{}\"); t.write(\"{}\");", data.display(), elsewhere.join("x.csv").display()),
+    )
+    .expect("script");
+    let o = stagna(&[
+        "run",
+        script.to_str().unwrap_or_default(),
+        "-o",
+        out.to_str().unwrap_or_default(),
+        "--allow-write",
+        elsewhere.to_str().unwrap_or_default(),
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(elsewhere.join("x.csv").is_file());
+}

@@ -317,3 +317,24 @@ def test_limits_reach_the_kernel_and_deep_values_display():
     finally:
         kc.stop_channels()
         km.shutdown_kernel(now=True)
+
+
+def test_notebooks_write_inside_their_folder_unless_allowed(tmp_path):
+    """Issue 16 (sandbox): the kernel confines writes to the folder it starts in."""
+    work = tmp_path / "work"
+    work.mkdir()
+    outside = tmp_path / "outside.csv"
+    km = KernelManager(kernel_name="stagna")
+    km.start_kernel(cwd=str(work))
+    kc = km.client()
+    kc.start_channels()
+    try:
+        kc.wait_for_ready(timeout=TIMEOUT)
+        content, _ = run(kc, f'table_from(#{{a: [1.0]}}).write("{outside}")')
+        assert content["status"] == "error" and "--allow-write" in content["evalue"], content
+        assert not outside.exists()
+        content, _ = run(kc, 'table_from(#{a: [1.0]}).write("inside.csv")')
+        assert content["status"] == "ok" and (work / "inside.csv").is_file()
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=True)

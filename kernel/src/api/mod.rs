@@ -78,6 +78,10 @@ pub struct Prefs {
     pub interrupt: Arc<std::sync::atomic::AtomicBool>,
     /// Longest array a host function may return (the session's array limit).
     pub max_array: usize,
+    /// Folders the session may write into (with their subfolders); `None` writes
+    /// anywhere the user may (the REPL). Batch runs allow their output folder and the
+    /// kernel its working folder, plus each `--allow-write DIR`.
+    pub write_roots: Option<Vec<std::path::PathBuf>>,
 }
 
 impl Default for Prefs {
@@ -89,6 +93,7 @@ impl Default for Prefs {
             data_dir: None,
             interrupt: Arc::default(),
             max_array: usize::MAX,
+            write_roots: None,
         }
     }
 }

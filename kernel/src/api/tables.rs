@@ -124,9 +124,57 @@ pub fn out_path(p: &SharedPrefs, path: &str) -> Res<PathBuf> {
     writable(&prefs, target)
 }
 
+/// An absolute path with `.` and `..` resolved and symbolic links followed as far as
+/// the path exists (so that neither `../` nor a link leads out of an allowed folder).
+fn resolve(p: &Path) -> PathBuf {
+    let abs = if p.is_absolute() {
+        p.to_path_buf()
+    } else {
+        std::env::current_dir().map(|d| d.join(p)).unwrap_or_else(|_| p.to_path_buf())
+    };
+    let mut out = PathBuf::new();
+    for c in abs.components() {
+        match c {
+            std::path::Component::ParentDir => {
+                out.pop();
+            }
+            std::path::Component::CurDir => {}
+            other => out.push(other),
+        }
+    }
+    // Follow links in the longest part that exists; keep the rest as written.
+    let mut existing = out.clone();
+    let mut rest = Vec::new();
+    while !existing.exists() {
+        match existing.file_name() {
+            Some(n) => rest.push(n.to_os_string()),
+            None => break,
+        }
+        if !existing.pop() {
+            break;
+        }
+    }
+    let mut base = std::fs::canonicalize(&existing).unwrap_or(existing);
+    for n in rest.into_iter().rev() {
+        base.push(n);
+    }
+    base
+}
+
 /// Checks a file the session is about to write (already placed in the output folder):
 /// creates its folder and refuses a protected (input) file.
 pub fn writable(prefs: &Prefs, target: PathBuf) -> Res<PathBuf> {
+    if let Some(roots) = &prefs.write_roots {
+        let resolved = resolve(&target);
+        if !roots.iter().any(|r| resolved.starts_with(resolve(r))) {
+            let allowed: Vec<String> = roots.iter().map(|r| resolve(r).display().to_string()).collect();
+            return Err(rt(format!(
+                "{}: outside the folders this session may write ({}); write there, or allow the folder with --allow-write DIR",
+                target.display(),
+                allowed.join(", ")
+            )));
+        }
+    }
     if let Some(parent) = target.parent()
         && !parent.as_os_str().is_empty()
     {

@@ -362,11 +362,12 @@ async fn accept(
 pub fn run(
     connection_file: &std::path::Path,
     limits: crate::session::Limits,
+    allow_write: Vec<std::path::PathBuf>,
 ) -> Result<i32, Box<dyn std::error::Error>> {
     let text = std::fs::read_to_string(connection_file).map_err(|e| format!("{}: {e}", connection_file.display()))?;
     let conn = Arc::new(Connection::parse(&text)?);
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
-    rt.block_on(serve(conn, limits))
+    rt.block_on(serve(conn, limits, allow_write))
 }
 
 async fn bind<S: Socket>(s: &mut S, conn: &Connection, port: u16) -> Result<(), Box<dyn std::error::Error>> {
@@ -374,7 +375,11 @@ async fn bind<S: Socket>(s: &mut S, conn: &Connection, port: u16) -> Result<(), 
     Ok(())
 }
 
-async fn serve(conn: Arc<Connection>, limits: crate::session::Limits) -> Result<i32, Box<dyn std::error::Error>> {
+async fn serve(
+    conn: Arc<Connection>,
+    limits: crate::session::Limits,
+    allow_write: Vec<std::path::PathBuf>,
+) -> Result<i32, Box<dyn std::error::Error>> {
     let mut shell = RouterSocket::new();
     let mut control = RouterSocket::new();
     let mut stdin = RouterSocket::new();
@@ -391,6 +396,17 @@ async fn serve(conn: Arc<Connection>, limits: crate::session::Limits) -> Result<
     bind(&mut hb, &conn, conn.hb_port).await?;
 
     let session = Session::with_limits(limits);
+    {
+        // Notebooks write inside the folder the kernel starts in (Jupyter starts it in the
+        // notebook's folder) and the folders allowed on its command line.
+        let cwd = std::env::current_dir()?;
+        let prefs = session.prefs();
+        let mut p = match prefs.write() {
+            Ok(g) => g,
+            Err(e) => e.into_inner(),
+        };
+        p.write_roots = Some(std::iter::once(cwd).chain(allow_write).collect());
+    }
     let interrupt = session.interrupt_flag();
     let (iopub_tx, mut iopub_rx) = tokio::sync::mpsc::unbounded_channel::<Out>();
     let (ask_tx, mut ask_rx) = tokio::sync::mpsc::unbounded_channel::<InputAsk>();
