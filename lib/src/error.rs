@@ -22,7 +22,7 @@ pub enum Error {
         value: f64,
     },
     /// A finite number outside the range the parameter allows.
-    #[error("{context}: {param} must be {allowed}, got {value} {unit}")]
+    #[error("{context}: {param} must be {allowed}, got {}", with_unit(*value, unit))]
     OutOfRange {
         /// Object or function that refused the value.
         context: &'static str,
@@ -37,7 +37,7 @@ pub enum Error {
     },
     /// A model asked for outside the range where it is defined (not merely
     /// less accurate: that is a [`Warning`]).
-    #[error("{model}: {param} = {value} {unit} is outside the range where it is defined ({range}){hint}")]
+    #[error("{model}: {param} = {} is outside the range where it is defined ({range}){hint}", with_unit(*value, unit))]
     OutsideModel {
         /// The formulation, e.g. "IAPWS-IF97 region 1".
         model: &'static str,
@@ -204,4 +204,10 @@ pub fn shorten(message: &str, max: usize) -> String {
     let tail: String = message.chars().rev().take(max / 3).collect::<Vec<_>>().into_iter().rev().collect();
     let left = message.chars().count() - head.chars().count() - tail.chars().count();
     format!("{head} … ({left} characters left out) … {tail}")
+}
+
+/// A value as printed in messages: six significant digits at most, then its unit.
+fn with_unit(value: f64, unit: &str) -> String {
+    let v = crate::units::quantity::format_number(value);
+    if unit.is_empty() { v } else { format!("{v} {unit}") }
 }

@@ -1,5 +1,6 @@
 //! End-to-end tests: drive the built `stagna` binary as a user would.
 
+mod bad_inputs;
 mod demo;
 mod layout;
 mod repl;

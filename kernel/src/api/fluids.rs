@@ -137,9 +137,16 @@ fn gas_constructors(r: &mut Registrar<'_>) {
             if !(g > 1.0 && g < 2.0) {
                 return Err(rt(format!("ideal_gas: gamma must be in (1, 2), got {g}")));
             }
+            let mm = si_of(&m, D::MOLAR_MASS, "molar mass")?;
+            if mm.is_nan() || mm <= 0.0 {
+                return Err(rt(format!(
+                    "ideal_gas: molar mass must be greater than 0, got {}",
+                    Q::si(mm, D::MOLAR_MASS).show(UnitSystem::Si)
+                )));
+            }
             Ok(Fluid::IdealGas {
                 name: name.to_string(),
-                molar_mass: MolarMass::from_si(si_of(&m, D::MOLAR_MASS, "molar mass")?),
+                molar_mass: MolarMass::from_si(mm),
                 isentropic_exponent: g,
                 viscosity: None,
             })

@@ -54,7 +54,16 @@ pub const DEMO_TABLES: &[(&str, &str, &str)] = &[
 ];
 
 pub(super) fn perr(e: polars::error::PolarsError) -> Box<rhai::EvalAltResult> {
-    rt(e.to_string())
+    // polars appends its query plan to a missing-column message; the first line says it.
+    let text = e.to_string();
+    let text = text
+        .split("\n\nResolved plan")
+        .next()
+        .unwrap_or(&text)
+        .split("Resolved plan until failure")
+        .next()
+        .unwrap_or(&text);
+    rt(stagna::error::shorten(text.trim(), 600))
 }
 
 impl Tbl {
@@ -332,6 +341,9 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .example("let t = table_from(#{point: [\"A1\", \"A2\"], h: [12.5, 14.0]}).unit(\"h\", \"mm\");\nprint(t);")
             .source("common practice, no source"),
         |m: Map| -> Res<Tbl> {
+            if m.is_empty() {
+                return Err(rt("table_from: no columns; give a map of column names to equal-length arrays, e.g. #{h: [12.5, 14.0]}"));
+            }
             let mut cols = Vec::new();
             for (k, v) in &m {
                 let a: Array = v.clone().try_cast().ok_or_else(|| rt(format!("table_from: '{k}' must be an array")))?;
@@ -489,7 +501,12 @@ fn queries(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("t.head(n) -> Table", "The first n rows.")
             .example("print(demo_table(\"larkfield-ahu2-supply\").head(3));")
             .source("common practice, no source"),
-        |t: &mut Tbl, n: i64| t.with_frame(t.df.head(Some(n.max(0) as usize))),
+        |t: &mut Tbl, n: i64| -> Res<Tbl> {
+            if n < 0 {
+                return Err(rt(format!("head: the number of rows must be 0 or more, got {n}")));
+            }
+            Ok(t.with_frame(t.df.head(Some(n as usize))))
+        },
     );
 }
 

@@ -520,7 +520,7 @@ mod tests {
         let e = Manometer::new(ManometerKind::Well { area_ratio: -0.1 }, GaugeLiquid::Mercury, g).unwrap_err();
         assert_eq!(
             e.to_string(),
-            "manometer: area ratio a/A must be in [0, 1) (tube bore area over reservoir area), got -0.1 "
+            "manometer: area ratio a/A must be in [0, 1) (tube bore area over reservoir area), got -0.1"
         );
         let e = Manometer::new(ManometerKind::Inclined { angle_deg: 0.0, area_ratio: 0.0 }, GaugeLiquid::Mercury, g)
             .unwrap_err();

@@ -98,6 +98,21 @@ impl Conduit {
                 allowed: "0 or more".into(),
             });
         }
+        // An absolute roughness as large as the hydraulic radius leaves no bore: a
+        // unit slip (2 m for 2 mm), refused rather than fed to Colebrook.
+        let limit = self.hydraulic_diameter().si() / 4.0;
+        if eps.si() >= limit {
+            return Err(Error::OutOfRange {
+                context: "conduit",
+                param: "roughness",
+                value: eps.si(),
+                unit: "m",
+                allowed: format!(
+                    "below a quarter of the hydraulic diameter ({} m)",
+                    crate::units::quantity::format_number(limit)
+                ),
+            });
+        }
         self.roughness = eps;
         Ok(self)
     }

@@ -217,7 +217,7 @@ mod tests {
         assert_eq!(t.warnings.len(), 1);
         assert!(friction_factor(-5.0, 0.0, FrictionModel::Colebrook).is_err());
         let e = friction_factor(1e5, 0.2, FrictionModel::Colebrook).unwrap_err().to_string();
-        assert_eq!(e, "friction factor: relative roughness ε/D must be in [0, 0.1), got 0.2 ");
+        assert_eq!(e, "friction factor: relative roughness ε/D must be in [0, 0.1), got 0.2");
     }
 
     proptest::proptest! {

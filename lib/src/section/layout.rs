@@ -194,6 +194,15 @@ impl TraverseLayout {
             });
         };
         finite("traverse layout", "port length", port_length.si())?;
+        if port_length.si() < 0.0 {
+            return Err(Error::OutOfRange {
+                context: "traverse layout",
+                param: "port length (wall thickness plus nozzle, added to insertion depths)",
+                value: port_length.si() * 1e3,
+                unit: "mm",
+                allowed: "0 or more".into(),
+            });
+        }
         if per_diameter > MAX_POINTS_PER_LINE {
             return Err(Error::OutOfRange {
                 context: "traverse layout",
@@ -282,6 +291,15 @@ impl TraverseLayout {
             });
         };
         finite("traverse layout", "port length", port_length.si())?;
+        if port_length.si() < 0.0 {
+            return Err(Error::OutOfRange {
+                context: "traverse layout",
+                param: "port length (wall thickness plus nozzle, added to insertion depths)",
+                value: port_length.si() * 1e3,
+                unit: "mm",
+                allowed: "0 or more".into(),
+            });
+        }
         let fractions = |n: usize| -> Result<Vec<f64>> {
             match rule {
                 LayoutRule::EqualArea => {
