@@ -1099,6 +1099,124 @@ mod tests {
         assert!(e.message.len() < 3_000, "{}", e.message.len());
     }
 
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig {
+            cases: std::env::var("STAGNA_FUZZ_CASES").ok().and_then(|v| v.parse().ok()).unwrap_or(2_000),
+            failure_persistence: None,
+            ..Default::default()
+        })]
+
+        /// Fuzz target: every documented function and method called with arguments
+        /// drawn from quantities, numbers, text, arrays, maps and domain objects. Each
+        /// call returns a value or a script error; none may panic in a host function
+        /// (which the session would report as an InternalError).
+        #[test]
+        fn fuzz_script_calls(f in 0usize..10_000, m in 0usize..10_000, args in proptest::collection::vec(0usize..ARGS.len(), 0..4), recv in 0usize..ARGS.len()) {
+            FUZZ.with(|cell| {
+                let mut guard = cell.borrow_mut();
+                let (s, funcs, methods) = guard.get_or_insert_with(|| {
+                    let s = Session::with_limits(Limits { operations: 200_000, array_size: 100_000, ..Limits::default() });
+                    let skip = |n: &str| matches!(n, "write" | "save" | "input" | "monte_carlo" | "help");
+                    let funcs: Vec<String> = s.catalog().entries().filter(|e| e.kind == Kind::Function && !skip(&e.name)).map(|e| e.name.clone()).collect();
+                    let methods: Vec<String> = s.catalog().entries().filter(|e| matches!(e.kind, Kind::Method | Kind::Property) && !skip(&e.name)).map(|e| e.name.clone()).collect();
+                    (s, funcs, methods)
+                });
+                let list: Vec<&str> = args.iter().map(|&i| ARGS[i]).collect();
+                let call = format!("{}({})", funcs[f % funcs.len()], list.join(", "));
+                let method = format!("({}).{}({})", ARGS[recv], methods[m % methods.len()], list.join(", "));
+                let prop = format!("({}).{}", ARGS[recv], methods[m % methods.len()]);
+                for src in [call, method, prop] {
+                    if let Err(e) = s.eval(&src) {
+                        assert_ne!(e.kind, "InternalError", "{src}: {}", e.message);
+                    }
+                }
+            });
+        }
+    }
+
+    /// The fuzz target's session with the function and method names it calls.
+    type FuzzState = Option<(Session, Vec<String>, Vec<String>)>;
+
+    thread_local! {
+        static FUZZ: std::cell::RefCell<FuzzState> = const { std::cell::RefCell::new(None) };
+    }
+
+    /// Arguments for the script-call fuzz target.
+    const ARGS: &[&str] = &[
+        "0",
+        "-1",
+        "2.5",
+        "1e308",
+        "-1e-308",
+        "\"\"",
+        "\"x\"",
+        "\"equal-area\"",
+        "true",
+        "()",
+        "[]",
+        "[1.0, 2.0]",
+        "[100.Pa, -5.Pa]",
+        "#{}",
+        "#{points: 4}",
+        "#{columns: 3, rows: 3}",
+        "20.degC",
+        "-300.degC",
+        "5.delta_K",
+        "5.mm",
+        "-5.mm",
+        "0.m",
+        "1.m",
+        "100.Pa",
+        "0.Pa",
+        "1.2.kg_m3",
+        "2.m_s",
+        "28.g_mol",
+        "45.percent",
+        "water()",
+        "dry_air()",
+        "humid_air(0.5)",
+        "mercury()",
+        "gauge_water()",
+        "u_tube(mercury())",
+        "pitot_static(0.99)",
+        "s_type(0.84)",
+        "round_duct(1.m)",
+        "rect_duct(1.m, 0.5.m)",
+        "power_law(7)",
+        "water().state(101.kPa, 20.degC)",
+        "table_from(#{a: [1.0, 2.0]})",
+        "table_from(#{a: [1.0, 2.0]}).unit(\"a\", \"mm\")[\"a\"]",
+        "col(\"a\")",
+        "traverse_layout(round_duct(1.m), #{points: 4})",
+    ];
+
+    #[test]
+    fn a_ten_thousand_cell_soak_holds_flat_memory() {
+        // Regression (issue 16): 2 000 ordinary cells grew the kernel by ~1.4 MiB per
+        // 1 000; re-running `let` kept every earlier value.
+        let mut s = Session::new();
+        let cells = [
+            "let t = table_from(#{h: [12.5, 14.0, 13.2]}).unit(\"h\", \"mm\");",
+            "let v = pitot_static(0.99).velocity(120.Pa, 1.2.kg_m3);",
+            "let m = t[\"h\"].mean();",
+            "let x = 6 * 7;",
+            "fn twice(a) { a * 2 }",
+            "let y = twice(x);",
+            "let w = water().state(350.kPa, 11.degC);",
+            "v.velocity",
+        ];
+        let mut run = |n: usize| {
+            for i in 0..n {
+                let _ = s.eval(cells[i % cells.len()]);
+            }
+        };
+        run(1_000);
+        let before = memory_in_use();
+        run(9_000);
+        let grown = memory_in_use() as i64 - before as i64;
+        assert!(grown < (512 << 10), "9 000 cells after a warm-up grew memory by {grown} bytes");
+    }
+
     #[test]
     fn deep_data_and_shadowed_values_are_safe() {
         // Regressions (issue 16): arrays nested 5 000 deep overflowed the stack when dropped

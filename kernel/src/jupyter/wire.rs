@@ -319,6 +319,31 @@ mod tests {
         assert!(matches!(parse(&c, raw), Parsed::BadSignature));
     }
 
+    fn fuzz_cases() -> u32 {
+        std::env::var("STAGNA_FUZZ_CASES").ok().and_then(|v| v.parse().ok()).unwrap_or(2_000)
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig { cases: fuzz_cases(), failure_persistence: None, ..Default::default() })]
+
+        /// Fuzz target: any frames, signed with the right key or not, decode to a
+        /// message, a refusal or a malformed-request reply; never a panic.
+        #[test]
+        fn fuzz_message_decoding(
+            frames in proptest::collection::vec(proptest::collection::vec(proptest::prelude::any::<u8>(), 0..64), 0..9),
+            json in proptest::collection::vec("[{}\\[\\]\":,a-z0-9 ]{0,40}", 4),
+            sign in proptest::prelude::any::<bool>(),
+        ) {
+            let c = conn("k");
+            let _ = parse(&c, ZmqMessage::try_from(frames.iter().cloned().map(Bytes::from).collect::<Vec<_>>()).unwrap_or_else(|_| ZmqMessage::from(Bytes::new())));
+            let parts: Vec<&[u8]> = json.iter().map(|s| s.as_bytes()).collect();
+            let sig = if sign { c.sign(&parts) } else { "00".into() };
+            let mut f = vec![Bytes::from_static(b"id"), Bytes::from_static(DELIMITER), Bytes::from(sig)];
+            f.extend(json.iter().map(|s| Bytes::from(s.clone())));
+            let _ = parse(&c, ZmqMessage::try_from(f).unwrap());
+        }
+    }
+
     #[test]
     fn a_replayed_signed_message_is_dropped() {
         // Regression (issue 16): a signed execute request sent twice ran twice.
