@@ -34,7 +34,7 @@ mod session;
 struct Cli {
     #[command(subcommand)]
     command: Option<Command>,
-    /// Limits of the REPL's session (give them before a subcommand's name only for the REPL).
+    /// Limits of the REPL's session (`stagna run` and `stagna kernel` take their own).
     #[command(flatten)]
     limits: session::LimitArgs,
 }
@@ -120,6 +120,14 @@ fn main() -> ExitCode {
 }
 
 fn command(cli: Cli) -> ExitCode {
+    let top_limits =
+        cli.limits.max_operations.is_some() || cli.limits.max_memory.is_some() || cli.limits.max_array.is_some();
+    if top_limits && cli.command.is_some() {
+        eprintln!(
+            "error: --max-operations, --max-memory and --max-array before a subcommand set the REPL's limits; give them after `run` or `kernel`"
+        );
+        return ExitCode::FAILURE;
+    }
     let result = match cli.command {
         Some(Command::Demo { data_dir }) => demo::run(data_dir.as_deref()),
         Some(Command::Layout(args)) => layout_cmd::run(&args),

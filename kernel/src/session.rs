@@ -1218,6 +1218,34 @@ mod tests {
     }
 
     #[test]
+    fn units_travel_with_csv_and_parquet_files() {
+        // Issue 15: units written with a table come back when it is read (Parquet
+        // key-value metadata, CSV sidecar); a different declaration wins with a warning.
+        let mut s = Session::new();
+        let dir = std::env::temp_dir().join(format!("stagna-units-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        for ext in ["csv", "parquet"] {
+            let p = dir.join(format!("readings.{ext}"));
+            eval(
+                &mut s,
+                &format!(
+                    "table_from(#{{h: [12.5, 14.0], t: [20.0, 21.0]}}).units(#{{h: \"mm\", t: \"degC\"}}).write(\"{}\");",
+                    p.display()
+                ),
+            );
+            let v = eval(&mut s, &format!("let back = read_table(\"{}\"); back[\"h\"].to(\"mm\").mean()", p.display()));
+            assert!(v.starts_with("13.25 mm"), "{ext}: {v}");
+            assert!(eval(&mut s, "back[\"t\"].mean()").starts_with("20.5 °C"), "{ext}");
+            // An explicit declaration still wins.
+            let v = eval(&mut s, "back.unit(\"h\", \"in\")[\"h\"].to(\"in\").mean()");
+            assert!(v.starts_with("13.25 in"), "{ext}: {v}");
+        }
+        assert!(dir.join("readings.csv.units.csv").is_file());
+        assert!(!dir.join("readings.parquet.units.csv").exists(), "Parquet keeps its units inside");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
     fn deep_data_and_shadowed_values_are_safe() {
         // Regressions (issue 16): arrays nested 5 000 deep overflowed the stack when dropped
         // or shown (the front ends run sessions on threads with big stacks; tests get a

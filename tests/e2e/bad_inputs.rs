@@ -368,6 +368,7 @@ fn bad_command_lines_are_refused_naming_the_option() {
         (&["run", s, "/nonexistent/input.csv"], &["/nonexistent/input.csv", "no such input file"]),
         (&["run", s, "--max-operations", "many"], &["invalid value 'many'"]),
         (&["kernel"], &["--connection-file"]),
+        (&["--max-memory", "1GiB", "run", s], &["give them after `run` or `kernel`"]),
         (
             &["kernel", "--connection-file", bad_conn.to_str().unwrap_or_default()],
             &["'shell_port' must be a port number"],

@@ -338,3 +338,15 @@ def test_notebooks_write_inside_their_folder_unless_allowed(tmp_path):
     finally:
         kc.stop_channels()
         km.shutdown_kernel(now=True)
+
+
+def test_history_search_follows_glob_semantics(kernel):
+    """Regression (issue 15): the pattern `6 *` did not find the input `6 * 7`."""
+    km, kc = kernel
+    run(kc, "6 * 7")
+    msg_id = kc.history(hist_access_type="search", pattern="6 *", output=False, raw=True)
+    reply = kc.get_shell_msg(timeout=TIMEOUT)
+    while reply["parent_header"].get("msg_id") != msg_id:
+        reply = kc.get_shell_msg(timeout=TIMEOUT)
+    inputs = [h[2] for h in reply["content"]["history"]]
+    assert "6 * 7" in inputs, inputs

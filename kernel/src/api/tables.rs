@@ -5,7 +5,7 @@ use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
 use polars::prelude::{DataFrame, Expr, IntoLazy, JoinArgs, JoinType, NamedFrom, Series, SortMultipleOptions, col};
-use rhai::{Array, Dynamic, Map};
+use rhai::{Array, Dynamic, Map, NativeCallContext};
 use stagna::units::dimension::Dimension as D;
 use stagna::*;
 
@@ -118,6 +118,30 @@ impl Tbl {
     pub fn unit_of(&self, name: &str) -> Option<&str> {
         self.units.get(name).map(String::as_str)
     }
+}
+
+/// A table read from `path` with the units stored with it (Parquet metadata or CSV
+/// sidecar), kept only for numeric columns present and units the parser reads.
+fn with_stored_units(df: DataFrame, path: &Path) -> Res<Tbl> {
+    let stored = lib(stagna::io::table::read_units(path))?;
+    let mut units = BTreeMap::new();
+    for (c, u) in stored {
+        if numeric_column(&df, &c).is_ok() && Unit::parse(&u).is_ok() {
+            units.insert(c, u);
+        }
+    }
+    Ok(Tbl { df, units })
+}
+
+/// Says on the error stream that a declaration replaced a different unit (one stored
+/// with the file, or declared earlier); the new declaration wins.
+fn warn_unit_change(ctx: &NativeCallContext, column: &str, old: &str, new: &str) -> Res<()> {
+    let msg = format!(
+        "warning: column '{column}': unit {} replaces {} (stored with the file or declared before); the new declaration wins",
+        pretty_unit(new),
+        pretty_unit(old)
+    );
+    ctx.call_native_fn::<()>("eprint", (rhai::ImmutableString::from(msg),))
 }
 
 /// Where an output file goes: relative paths into the session's output folder; never
@@ -265,7 +289,7 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let read_doc = |fmt: &str, fname: &str| {
         Doc::new(
             &format!("{fname}(path) -> Table"),
-            &format!("Reads a {fmt} file into a table (column types inferred). Declare units with .unit()."),
+            &format!("Reads a {fmt} file into a table (column types inferred). Units written by Stagna come back with it (Parquet metadata, or the CSV's .units.csv sidecar); declare others with .unit()."),
         )
         .param("path", "file path, relative to the working directory")
         .example(&{
@@ -275,7 +299,7 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         .source("polars readers (Apache Parquet, RFC 4180 CSV)")
     };
     r.func("read_csv", &read_doc("CSV", "read_csv"), |p: &str| -> Res<Tbl> {
-        Ok(Tbl::new(lib(stagna::io::table::read_csv(Path::new(p)))?))
+        with_stored_units(lib(stagna::io::table::read_csv(Path::new(p)))?, Path::new(p))
     });
     r.func(
         "read_csv",
@@ -299,11 +323,11 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             if layout.decimal_comma && layout.separator == b',' {
                 return Err(rt("read_csv: with decimal commas the fields cannot also be separated by commas; give separator: \";\""));
             }
-            Ok(Tbl::new(lib(stagna::io::table::read_csv_with(Path::new(p), layout))?))
+            with_stored_units(lib(stagna::io::table::read_csv_with(Path::new(p), layout))?, Path::new(p))
         },
     );
     r.func("read_parquet", &read_doc("Parquet", "read_parquet"), |p: &str| -> Res<Tbl> {
-        Ok(Tbl::new(lib(stagna::io::table::read_parquet(Path::new(p)))?))
+        with_stored_units(lib(stagna::io::table::read_parquet(Path::new(p)))?, Path::new(p))
     });
     r.func(
         "read_excel",
@@ -324,7 +348,7 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         )
         .example("table_from(#{h: [12.5]}).write(\"site.parquet\");\nlet t = read_table(\"site.parquet\");  // in a batch run: read_table(input)\nprint(t.columns);")
         .source("polars readers; calamine"),
-        |p: &str| -> Res<Tbl> { Ok(Tbl::new(lib(stagna::io::table::read_table(Path::new(p)))?)) },
+        |p: &str| -> Res<Tbl> { with_stored_units(lib(stagna::io::table::read_table(Path::new(p)))?, Path::new(p)) },
     );
     let pp = prefs.clone();
     r.func(
@@ -371,11 +395,13 @@ fn members(r: &mut Registrar<'_>) {
             .param("unit", "any unit the parser reads: \"mm\", \"degC\", \"hPa\", \"inH2O@60F\"")
             .example("let t = table_from(#{h: [12.5]}).unit(\"h\", \"mm\");\nprint(t[\"h\"].to(\"in\"));")
             .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
-        |t: &mut Tbl, c: &str, u: &str| -> Res<Tbl> {
+        |ctx: NativeCallContext, t: &mut Tbl, c: &str, u: &str| -> Res<Tbl> {
             numeric_column(&t.df, c)?;
             lib(Unit::parse(u))?;
             let mut out = t.clone();
-            out.units.insert(c.to_string(), u.to_string());
+            if let Some(old) = out.units.insert(c.to_string(), u.to_string()).filter(|o| o != u) {
+                warn_unit_change(&ctx, c, &old, u)?;
+            }
             Ok(out)
         },
     );
@@ -385,13 +411,15 @@ fn members(r: &mut Registrar<'_>) {
         &Doc::new("t.units(map) -> Table", "Declares several column units at once.")
             .example("let t = demo_table(\"hollin-brook-main\").units(#{hg_deflection_mm: \"mm\", water_temp_c: \"degC\"});\nprint(t[\"water_temp_c\"].mean());")
             .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
-        |t: &mut Tbl, m: Map| -> Res<Tbl> {
+        |ctx: NativeCallContext, t: &mut Tbl, m: Map| -> Res<Tbl> {
             let mut out = t.clone();
             for (c, u) in &m {
                 numeric_column(&t.df, c)?;
                 let u = text(u, c)?;
                 lib(Unit::parse(&u))?;
-                out.units.insert(c.to_string(), u);
+                if let Some(old) = out.units.insert(c.to_string(), u.clone()).filter(|o| *o != u) {
+                    warn_unit_change(&ctx, c, &old, &u)?;
+                }
             }
             Ok(out)
         },
@@ -559,11 +587,14 @@ fn writing(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.method(
         "Table",
         "write",
-        &Doc::new("t.write(path)", "Writes the table as CSV or Parquet (by extension) through a temporary file and a rename; in a batch run relative paths go to the output folder, and input files are never overwritten. Units go into a `<path>.units.csv` beside CSV output.")
+        &Doc::new("t.write(path)", "Writes the table as CSV or Parquet (by extension) through a temporary file and a rename; in a batch run relative paths go to the output folder, and input files are never overwritten. Units go into the Parquet file's metadata, or a `<path>.units.csv` beside CSV output, and come back when the file is read.")
             .example("table_from(#{a: [1.0]}).write(\"example-out.csv\");")
             .source("polars writers"),
         move |t: &mut Tbl, path: &str| -> Res<()> {
             let target = out_path(&pp, path)?;
+            if matches!(target.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref(), Some("parquet" | "pq")) {
+                return lib(stagna::io::table::write_parquet_with_units(&t.df, &target, &t.units));
+            }
             lib(stagna::io::table::write_table(&t.df, &target))?;
             if !t.units.is_empty() {
                 let units = DataFrame::new_infer_height(vec![

@@ -303,13 +303,15 @@ fn glob(pat: &str, s: &str) -> bool {
     let (p, t): (Vec<char>, Vec<char>) = (pat.chars().collect(), s.chars().collect());
     let (mut i, mut j, mut star, mut mark) = (0, 0, None, 0);
     while j < t.len() {
-        if i < p.len() && (p[i] == '?' || p[i] == t[j]) {
-            i += 1;
-            j += 1;
-        } else if i < p.len() && p[i] == '*' {
+        // `*` is always the wildcard, also where the text holds a literal `*` (issue 15:
+        // the pattern `6 *` must find `6 * 7`, as SQLite's GLOB does in IPython's history).
+        if i < p.len() && p[i] == '*' {
             star = Some(i);
             mark = j;
             i += 1;
+        } else if i < p.len() && (p[i] == '?' || p[i] == t[j]) {
+            i += 1;
+            j += 1;
         } else if let Some(st) = star {
             i = st + 1;
             mark += 1;
@@ -686,6 +688,9 @@ mod tests {
         assert!(glob("*duct*", "let d = round_duct(600.mm)"));
         assert!(glob("le?", "let"));
         assert!(!glob("x*", "let"));
+        // Regression (issue 15): a `*` in the pattern beside a `*` in the input.
+        assert!(glob("6 *", "6 * 7"));
+        assert!(glob("* * 7", "6 * 7") && !glob("6 * 8", "6 * 7"));
         let s = "ρ = 1.2; ρ.";
         assert_eq!(cp_at(s, byte_at(s, 10)), 10);
     }

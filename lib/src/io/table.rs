@@ -5,6 +5,7 @@
 //! to a temporary file in the same folder and are renamed into place, so a failed write
 //! never leaves a half-written file under the final name.
 
+use std::collections::BTreeMap;
 use std::fs::File;
 use std::path::{Path, PathBuf};
 
@@ -347,8 +348,68 @@ pub fn write_csv(df: &DataFrame, path: &Path) -> Result<()> {
 
 /// Writes a Parquet file (zstd compression).
 pub fn write_parquet(df: &DataFrame, path: &Path) -> Result<()> {
+    write_parquet_with_units(df, path, &BTreeMap::new())
+}
+
+/// Key of a column's unit in a Parquet file's key-value metadata: `stagna.unit:<column>`.
+pub const UNIT_KEY_PREFIX: &str = "stagna.unit:";
+
+/// Writes a Parquet file with each column's unit in the file's key-value metadata
+/// (`stagna.unit:<column>` = unit), so that the units travel with the data.
+pub fn write_parquet_with_units(df: &DataFrame, path: &Path, units: &BTreeMap<String, String>) -> Result<()> {
     let mut df = df.clone();
-    write_atomically(path, |f| ParquetWriter::new(f).finish(&mut df).map(|_| ()).map_err(io_err))
+    let kv: Vec<(String, String)> = units.iter().map(|(c, u)| (format!("{UNIT_KEY_PREFIX}{c}"), u.clone())).collect();
+    let meta = (!kv.is_empty()).then(|| polars_io::parquet::write::KeyValueMetadata::from_static(kv));
+    write_atomically(path, |f| {
+        ParquetWriter::new(f).with_key_value_metadata(meta).finish(&mut df).map(|_| ()).map_err(io_err)
+    })
+}
+
+/// The units sidecar of a CSV file: `<path>.units.csv` with columns `column,unit`.
+pub fn units_sidecar(path: &Path) -> PathBuf {
+    let mut p = path.as_os_str().to_owned();
+    p.push(".units.csv");
+    PathBuf::from(p)
+}
+
+/// The units stored with a table file: a Parquet file's key-value metadata, or a CSV
+/// file's sidecar (`<path>.units.csv`) when there is one. Empty when none are stored.
+pub fn read_units(path: &Path) -> Result<BTreeMap<String, String>> {
+    let mut out = BTreeMap::new();
+    match extension(path).as_str() {
+        "parquet" | "pq" => {
+            let file = File::open(path).map_err(|e| file_err(path, format!("cannot open: {e}")))?;
+            let mut reader = ParquetReader::new(file);
+            let meta =
+                reader.get_metadata().map_err(|e| file_err(path, format!("not a readable Parquet file: {e}")))?;
+            for kv in meta.key_value_metadata().iter().flatten() {
+                if let (Some(col), Some(unit)) = (kv.key.strip_prefix(UNIT_KEY_PREFIX), kv.value.as_ref()) {
+                    out.insert(col.to_string(), unit.clone());
+                }
+            }
+        }
+        "csv" | "txt" => {
+            let side = units_sidecar(path);
+            if side.is_file() {
+                let df = read_csv(&side)?;
+                let (c, u) = (df.column("column"), df.column("unit"));
+                let (Ok(c), Ok(u)) = (c, u) else {
+                    return Err(file_err(&side, "a units sidecar has the columns 'column' and 'unit'"));
+                };
+                let (c, u) = (
+                    c.str().map_err(|e| file_err(&side, e.to_string()))?,
+                    u.str().map_err(|e| file_err(&side, e.to_string()))?,
+                );
+                for (c, u) in c.iter().zip(u.iter()) {
+                    if let (Some(c), Some(u)) = (c, u) {
+                        out.insert(c.to_string(), u.to_string());
+                    }
+                }
+            }
+        }
+        _ => {}
+    }
+    Ok(out)
 }
 
 /// Writes by extension: `.csv` or `.parquet`.

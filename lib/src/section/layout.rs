@@ -29,6 +29,21 @@ use crate::error::{Error, Result, Warning, finite};
 use crate::section::conduit::{Conduit, Section};
 use crate::units::quantity::{Length, format_number};
 
+/// A port length must be finite and not negative (it is added to insertion depths).
+fn check_port(port_length: Length) -> Result<()> {
+    finite("traverse layout", "port length", port_length.si())?;
+    if port_length.si() < 0.0 {
+        return Err(Error::OutOfRange {
+            context: "traverse layout",
+            param: "port length (wall thickness plus nozzle, added to insertion depths)",
+            value: port_length.si() * 1e3,
+            unit: "mm",
+            allowed: "0 or more".into(),
+        });
+    }
+    Ok(())
+}
+
 /// Most points on one traverse line (or lines across a rectangle), checked before any
 /// allocation: far beyond what the published rules tabulate, and a bound on what a
 /// mistyped option can ask for (common practice, no source).
@@ -193,16 +208,7 @@ impl TraverseLayout {
                 message: "a circular layout on a rectangular section; use TraverseLayout::rectangular".into(),
             });
         };
-        finite("traverse layout", "port length", port_length.si())?;
-        if port_length.si() < 0.0 {
-            return Err(Error::OutOfRange {
-                context: "traverse layout",
-                param: "port length (wall thickness plus nozzle, added to insertion depths)",
-                value: port_length.si() * 1e3,
-                unit: "mm",
-                allowed: "0 or more".into(),
-            });
-        }
+        check_port(port_length)?;
         if per_diameter > MAX_POINTS_PER_LINE {
             return Err(Error::OutOfRange {
                 context: "traverse layout",
@@ -290,16 +296,7 @@ impl TraverseLayout {
                 message: "a rectangular layout on a circular section; use TraverseLayout::circular".into(),
             });
         };
-        finite("traverse layout", "port length", port_length.si())?;
-        if port_length.si() < 0.0 {
-            return Err(Error::OutOfRange {
-                context: "traverse layout",
-                param: "port length (wall thickness plus nozzle, added to insertion depths)",
-                value: port_length.si() * 1e3,
-                unit: "mm",
-                allowed: "0 or more".into(),
-            });
-        }
+        check_port(port_length)?;
         let fractions = |n: usize| -> Result<Vec<f64>> {
             match rule {
                 LayoutRule::EqualArea => {
