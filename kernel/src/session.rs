@@ -1224,7 +1224,7 @@ mod tests {
         let mut s = Session::new();
         let dir = std::env::temp_dir().join(format!("stagna-units-{}", std::process::id()));
         std::fs::create_dir_all(&dir).unwrap();
-        for ext in ["csv", "parquet"] {
+        for ext in ["csv", "parquet", "xlsx"] {
             let p = dir.join(format!("readings.{ext}"));
             eval(
                 &mut s,

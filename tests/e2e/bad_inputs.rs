@@ -178,7 +178,10 @@ const CASES: &[(&str, &[&str])] = &[
     (r##"table_from(#{a: [1.0]}).sort("zz", false)"##, &[r##"unable to find column "zz""##]),
     (r##"table_from(#{a: [1.0]}).head(-1)"##, &[r##"head"##, r##"0 or more"##, r##"-1"##]),
     (r##"table_from(#{a: [1.0]}).group_by("zz").agg([col("a").mean()])"##, &[r##"unable to find column "zz""##]),
-    (r##"table_from(#{a: [1.0]}).write("out.xyz")"##, &[r##"cannot write '.xyz' tables"##, r##"csv or parquet"##]),
+    (
+        r##"table_from(#{a: [1.0]}).write("out.xyz")"##,
+        &[r##"cannot write '.xyz' tables"##, r##"csv, parquet or xlsx"##],
+    ),
     (
         r##"table_from(#{a: [1.0]}).write("/tmp/stagna-catalogue-escape.csv")"##,
         &[r##"outside the folders this session may write"##, r##"--allow-write"##],

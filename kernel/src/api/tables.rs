@@ -122,8 +122,25 @@ impl Tbl {
 
 /// A table read from `path` with the units stored with it (Parquet metadata or CSV
 /// sidecar), kept only for numeric columns present and units the parser reads.
-fn with_stored_units(df: DataFrame, path: &Path) -> Res<Tbl> {
-    let stored = lib(stagna::io::table::read_units(path))?;
+fn with_stored_units(mut df: DataFrame, path: &Path) -> Res<Tbl> {
+    let mut stored = lib(stagna::io::table::read_units(path))?;
+    // Workbooks carry units in their headers, `name [unit]` (as Stagna writes them).
+    if matches!(
+        path.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref(),
+        Some("xlsx" | "xlsm" | "xls" | "ods")
+    ) {
+        let names: Vec<String> = df.get_column_names().iter().map(|s| s.to_string()).collect();
+        for old in names {
+            if let Some((name, unit)) = stagna::io::table::split_unit_header(&old)
+                && Unit::parse(unit).is_ok()
+                && df.column(name).is_err()
+            {
+                let (name, unit) = (name.to_string(), unit.to_string());
+                df.rename(&old, name.as_str().into()).map_err(perr)?;
+                stored.insert(name, unit);
+            }
+        }
+    }
     let mut units = BTreeMap::new();
     for (c, u) in stored {
         if numeric_column(&df, &c).is_ok() && Unit::parse(&u).is_ok() {
@@ -335,10 +352,10 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .param("sheet", "sheet name")
             .example("let t = read_excel(\"site-readings.xlsx\", \"traverse 1\");\nprint(t.unit(\"deflection_mm\", \"mm\")[\"deflection_mm\"]);")
             .source("calamine workbook reader (Office Open XML, ECMA-376; OpenDocument)"),
-        |p: &str| -> Res<Tbl> { Ok(Tbl::new(lib(stagna::io::table::read_spreadsheet(Path::new(p), None))?)) },
+        |p: &str| -> Res<Tbl> { with_stored_units(lib(stagna::io::table::read_spreadsheet(Path::new(p), None))?, Path::new(p)) },
     );
     r.func("read_excel", &Doc::new("read_excel(path, sheet) -> Table", ""), |p: &str, s: &str| -> Res<Tbl> {
-        Ok(Tbl::new(lib(stagna::io::table::read_spreadsheet(Path::new(p), Some(s)))?))
+        with_stored_units(lib(stagna::io::table::read_spreadsheet(Path::new(p), Some(s)))?, Path::new(p))
     });
     r.func(
         "read_table",
@@ -587,13 +604,15 @@ fn writing(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.method(
         "Table",
         "write",
-        &Doc::new("t.write(path)", "Writes the table as CSV or Parquet (by extension) through a temporary file and a rename; in a batch run relative paths go to the output folder, and input files are never overwritten. Units go into the Parquet file's metadata, or a `<path>.units.csv` beside CSV output, and come back when the file is read.")
+        &Doc::new("t.write(path)", "Writes the table as CSV, Parquet or an Excel workbook (by extension: .csv, .parquet, .xlsx) through a temporary file and a rename; in a batch run relative paths go to the output folder, and input files are never overwritten. Units go into the Parquet file's metadata, the workbook's header row (`name [unit]`), or a `<path>.units.csv` beside CSV output, and come back when the file is read.")
             .example("table_from(#{a: [1.0]}).write(\"example-out.csv\");")
             .source("polars writers"),
         move |t: &mut Tbl, path: &str| -> Res<()> {
             let target = out_path(&pp, path)?;
-            if matches!(target.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref(), Some("parquet" | "pq")) {
-                return lib(stagna::io::table::write_parquet_with_units(&t.df, &target, &t.units));
+            match target.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
+                Some("parquet" | "pq") => return lib(stagna::io::table::write_parquet_with_units(&t.df, &target, &t.units)),
+                Some("xlsx") => return lib(stagna::io::table::write_xlsx(&t.df, &target, &t.units)),
+                _ => {}
             }
             lib(stagna::io::table::write_table(&t.df, &target))?;
             if !t.units.is_empty() {

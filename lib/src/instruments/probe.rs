@@ -148,7 +148,7 @@ impl Probe {
     /// use stagna::{Probe, ProbeKind};
     /// assert!(Probe::new(ProbeKind::SType, 0.84).is_ok());
     /// assert_eq!(Probe::new(ProbeKind::PitotStatic, 1.9).unwrap_err().to_string(),
-    ///            "probe: coefficient must be in [0.5, 1.2], got 1.9 ");
+    ///            "probe: coefficient must be in [0.5, 1.2], got 1.9");
     /// ```
     pub fn new(kind: ProbeKind, coefficient: f64) -> Result<Self> {
         crate::error::within("probe", "coefficient", coefficient, "", 0.5, 1.2)?;

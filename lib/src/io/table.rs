@@ -365,6 +365,52 @@ pub fn write_parquet_with_units(df: &DataFrame, path: &Path, units: &BTreeMap<St
     })
 }
 
+/// Writes an Excel workbook (one sheet, "readings") with the units in the header row
+/// (`name [unit]`, the unit as the parser spells it, so that it reads back): numeric
+/// columns as numbers, other columns as text, missing values as empty cells.
+pub fn write_xlsx(df: &DataFrame, path: &Path, units: &BTreeMap<String, String>) -> Result<()> {
+    use rust_xlsxwriter::{Format, Workbook};
+    let xerr = |e: rust_xlsxwriter::XlsxError| file_err(path, format!("cannot write the workbook: {e}"));
+    let mut book = Workbook::new();
+    let sheet = book.add_worksheet();
+    sheet.set_name("readings").map_err(xerr)?;
+    let bold = Format::new().set_bold();
+    for (j, col) in df.columns().iter().enumerate() {
+        let j = u16::try_from(j).map_err(|_| file_err(path, "more than 65 535 columns"))?;
+        let name = col.name().to_string();
+        let header = match units.get(&name) {
+            Some(u) => format!("{name} [{u}]"),
+            None => name.clone(),
+        };
+        sheet.write_string_with_format(0, j, &header, &bold).map_err(xerr)?;
+        if col.dtype().is_primitive_numeric() {
+            let v = col.cast(&DataType::Float64).map_err(|e| file_err(path, e.to_string()))?;
+            for (i, x) in v.f64().map_err(|e| file_err(path, e.to_string()))?.iter().enumerate() {
+                if let Some(x) = x.filter(|x| x.is_finite()) {
+                    sheet.write_number(i as u32 + 1, j, x).map_err(xerr)?;
+                }
+            }
+        } else {
+            let v = col.cast(&DataType::String).map_err(|e| file_err(path, e.to_string()))?;
+            for (i, x) in v.str().map_err(|e| file_err(path, e.to_string()))?.iter().enumerate() {
+                if let Some(x) = x {
+                    sheet.write_string(i as u32 + 1, j, x).map_err(xerr)?;
+                }
+            }
+        }
+    }
+    let bytes = book.save_to_buffer().map_err(xerr)?;
+    write_atomically(path, |f| std::io::Write::write_all(f, &bytes))
+}
+
+/// A header of the form `name [unit]`: the name and the unit text.
+pub fn split_unit_header(header: &str) -> Option<(&str, &str)> {
+    let h = header.trim();
+    let open = h.rfind(" [")?;
+    let unit = h[open + 2..].strip_suffix(']')?;
+    (!unit.is_empty() && open > 0).then(|| (h[..open].trim(), unit.trim()))
+}
+
 /// The units sidecar of a CSV file: `<path>.units.csv` with columns `column,unit`.
 pub fn units_sidecar(path: &Path) -> PathBuf {
     let mut p = path.as_os_str().to_owned();
@@ -417,7 +463,8 @@ pub fn write_table(df: &DataFrame, path: &Path) -> Result<()> {
     match extension(path).as_str() {
         "csv" => write_csv(df, path),
         "parquet" | "pq" => write_parquet(df, path),
-        other => Err(file_err(path, format!("cannot write '.{other}' tables (csv or parquet)"))),
+        "xlsx" => write_xlsx(df, path, &BTreeMap::new()),
+        other => Err(file_err(path, format!("cannot write '.{other}' tables (csv, parquet or xlsx)"))),
     }
 }
 
