@@ -18,7 +18,7 @@ pub enum Kind {
     Method,
     /// A property, `value.name`.
     Property,
-    /// A unit suffix on numbers, `78.mm`.
+    /// A unit suffix on numbers, `64.mm`.
     Unit,
 }
 
@@ -252,7 +252,7 @@ impl<'a> Registrar<'a> {
         self.record(name, None, Kind::Function, doc);
     }
 
-    /// A unit suffix (`78.mm`): documented once per unit.
+    /// A unit suffix (`64.mm`): documented once per unit.
     pub fn unit(&mut self, name: &str, doc: &Doc) {
         self.record(name, None, Kind::Unit, doc);
     }

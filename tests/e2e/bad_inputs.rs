@@ -155,12 +155,12 @@ const CASES: &[(&str, &[&str])] = &[
     (r##"traverse_layout(round_duct(1.m), #{shape: 1})"##, &[r##"unknown option 'shape'"##, r##"options are: rule"##]),
     (r##"epa_min_points(round_duct(1.m), -1.0, 2.0)"##, &[r##"-1.00 d downstream"##, r##"alternative procedure"##]),
     (r##"epa_min_points(round_duct(0.1.m), 8.0, 2.0)"##, &[r##"does not apply below 0.30 m"##, r##"method 1a"##]),
-    (r##"read_csv("/nonexistent/file.csv")"##, &[r##"/nonexistent/file.csv"##, r##"cannot open"##]),
-    (r##"read_parquet("/etc/hostname")"##, &[r##"/etc/hostname"##, r##"not a readable parquet file"##]),
-    (r##"read_excel("/etc/hostname")"##, &[r##"/etc/hostname"##, r##"not a readable workbook"##]),
+    (r##"read_csv("@OUTSIDE@/missing/file.csv")"##, &[r##"missing/file.csv"##, r##"cannot open"##]),
+    (r##"read_parquet(input)"##, &[r##"precious.csv"##, r##"not a readable parquet file"##]),
+    (r##"read_excel(input)"##, &[r##"precious.csv"##, r##"not a readable workbook"##]),
     (r##"read_table("x.json")"##, &[r##"unknown table format '.json'"##, r##"csv, parquet"##]),
-    (r##"read_table("/tmp")"##, &[r##"is a folder"##, r##"stagna run script folder/*.csv"##]),
-    (r##"read_excel("/nonexistent.xlsx", "Sheet9")"##, &[r##"/nonexistent.xlsx"##, r##"cannot open"##]),
+    (r##"read_table("@OUTSIDE@")"##, &[r##"is a folder"##, r##"stagna run script folder/*.csv"##]),
+    (r##"read_excel("@OUTSIDE@/missing.xlsx", "Sheet9")"##, &[r##"missing.xlsx"##, r##"cannot open"##]),
     (r##"table_from(#{a: [1.0, 2.0], b: [1.0]})"##, &[r##"column 'b'"##, r##"does not match"##, r##"column 'a'"##]),
     (r##"table_from(#{})"##, &[r##"no columns"##, r##"#{h: [12.5, 14.0]}"##]),
     (
@@ -183,7 +183,7 @@ const CASES: &[(&str, &[&str])] = &[
         &[r##"cannot write '.xyz' tables"##, r##"csv, parquet or xlsx"##],
     ),
     (
-        r##"table_from(#{a: [1.0]}).write("/tmp/stagna-catalogue-escape.csv")"##,
+        r##"table_from(#{a: [1.0]}).write("@OUTSIDE@/escape.csv")"##,
         &[r##"outside the folders this session may write"##, r##"--allow-write"##],
     ),
     (r##"table_from(#{a: [1.0]}).write("../escape.csv")"##, &[r##"outside the folders this session may write"##]),
@@ -311,7 +311,11 @@ fn every_bad_input_is_refused_naming_what_to_fix_and_nothing_is_lost() {
                     let script = dir.join("case.rhai");
                     let mut failures = Vec::new();
                     for (src, fragments) in chunk.iter() {
-                        std::fs::write(&script, src).expect("script");
+                        // `@OUTSIDE@`: a folder of this worker's that is not its output folder.
+                        let outside = dir.join("outside");
+                        std::fs::create_dir_all(&outside).expect("dir");
+                        std::fs::write(&script, src.replace("@OUTSIDE@", &outside.display().to_string()))
+                            .expect("script");
                         let o = Command::new(env!("CARGO_BIN_EXE_stagna"))
                             .args(["run", script.to_str().unwrap_or_default(), input.to_str().unwrap_or_default()])
                             .args(["-o", out.to_str().unwrap_or_default(), "--max-operations", "1000000"])
@@ -347,10 +351,9 @@ fn every_bad_input_is_refused_naming_what_to_fix_and_nothing_is_lost() {
         handles.into_iter().flat_map(|h| h.join().expect("worker")).collect()
     });
     assert!(failures.is_empty(), "{} of {} cases failed:\n{}", failures.len(), CASES.len(), failures.join("\n"));
-    assert!(
-        !Path::new("/tmp/stagna-catalogue-escape.csv").exists(),
-        "a refused write landed outside the output folder"
-    );
+    let escaped: Vec<PathBuf> =
+        (0..chunks.len()).map(|k| root.join(format!("worker{k}/outside/escape.csv"))).filter(|p| p.exists()).collect();
+    assert!(escaped.is_empty(), "a refused write landed outside the output folder: {escaped:?}");
     let _ = std::fs::remove_dir_all(&root);
 }
 
@@ -361,6 +364,7 @@ fn bad_command_lines_are_refused_naming_the_option() {
     std::fs::write(&script, "print(1);").expect("script");
     let s = script.to_str().unwrap_or_default();
     let missing = dir.join("missing.rhai");
+    let missing_input = dir.join("missing-input.csv");
     let bad_conn = dir.join("conn.json");
     std::fs::write(&bad_conn, "{\"shell_port\": \"x\"}").expect("conn");
     let cases: &[(&[&str], &[&str])] = &[
@@ -368,7 +372,7 @@ fn bad_command_lines_are_refused_naming_the_option() {
         (&["run", s, "--max-memory", "lots"], &["memory limit", "'lots'", "4gib"]),
         (&["run", s, "--max-memory", "4 parsecs"], &["unknown size unit 'parsecs'"]),
         (&["run", missing.to_str().unwrap_or_default()], &["missing.rhai", "cannot read the script"]),
-        (&["run", s, "/nonexistent/input.csv"], &["/nonexistent/input.csv", "no such input file"]),
+        (&["run", s, missing_input.to_str().unwrap_or_default()], &["missing-input.csv", "no such input file"]),
         (&["run", s, "--max-operations", "many"], &["invalid value 'many'"]),
         (&["kernel"], &["--connection-file"]),
         (&["--max-memory", "1GiB", "run", s], &["give them after `run` or `kernel`"]),

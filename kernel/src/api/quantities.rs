@@ -1,4 +1,4 @@
-//! Quantities in scripts: unit suffixes on numbers (`78.mm`, `20.degC`, `1.2.kPa`),
+//! Quantities in scripts: unit suffixes on numbers (`64.mm`, `20.degC`, `1.2.kPa`),
 //! `qty("3 inH2O@60F")`, arithmetic with dimension checks, conversion, comparison and
 //! the session's display units.
 
@@ -230,7 +230,7 @@ fn members(r: &mut Registrar<'_>) {
         "Quantity",
         "value",
         &Doc::new("q.value -> number", "The number shown, in the quantity's display unit (SI if it has none).")
-            .example("print(78.mm.value);")
+            .example("print(64.mm.value);")
             .source("common practice, no source"),
         |q: &mut Q| q.unit.as_deref().and_then(|u| q.q.value_in(u).ok()).unwrap_or(q.q.si),
     );
@@ -238,7 +238,7 @@ fn members(r: &mut Registrar<'_>) {
         "Quantity",
         "unit",
         &Doc::new("q.unit -> string", "The display unit (empty when it follows the session).")
-            .example("print(78.mm.unit);")
+            .example("print(64.mm.unit);")
             .source("common practice, no source"),
         |q: &mut Q| q.unit.as_deref().unwrap_or("").to_string(),
     );

@@ -123,24 +123,7 @@ impl Tbl {
 /// A table read from `path` with the units stored with it (Parquet metadata or CSV
 /// sidecar), kept only for numeric columns present and units the parser reads.
 fn with_stored_units(mut df: DataFrame, path: &Path) -> Res<Tbl> {
-    let mut stored = lib(stagna::io::table::read_units(path))?;
-    // Workbooks carry units in their headers, `name [unit]` (as Stagna writes them).
-    if matches!(
-        path.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref(),
-        Some("xlsx" | "xlsm" | "xls" | "ods")
-    ) {
-        let names: Vec<String> = df.get_column_names().iter().map(|s| s.to_string()).collect();
-        for old in names {
-            if let Some((name, unit)) = stagna::io::table::split_unit_header(&old)
-                && Unit::parse(unit).is_ok()
-                && df.column(name).is_err()
-            {
-                let (name, unit) = (name.to_string(), unit.to_string());
-                df.rename(&old, name.as_str().into()).map_err(perr)?;
-                stored.insert(name, unit);
-            }
-        }
-    }
+    let stored = lib(stagna::io::table::read_units(path, &mut df))?;
     let mut units = BTreeMap::new();
     for (c, u) in stored {
         if numeric_column(&df, &c).is_ok() && Unit::parse(&u).is_ok() {
@@ -609,24 +592,11 @@ fn writing(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .source("polars writers"),
         move |t: &mut Tbl, path: &str| -> Res<()> {
             let target = out_path(&pp, path)?;
-            match target.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
-                Some("parquet" | "pq") => return lib(stagna::io::table::write_parquet_with_units(&t.df, &target, &t.units)),
-                Some("xlsx") => return lib(stagna::io::table::write_xlsx(&t.df, &target, &t.units)),
-                _ => {}
+            if !t.units.is_empty() && target.extension().is_some_and(|e| e.eq_ignore_ascii_case("csv")) {
+                // A CSV's units sidecar is a file the run writes like any other: same checks.
+                writable(&super::prefs(&pp), stagna::io::table::units_sidecar(&target))?;
             }
-            lib(stagna::io::table::write_table(&t.df, &target))?;
-            if !t.units.is_empty() {
-                let units = DataFrame::new_infer_height(vec![
-                    Series::new("column".into(), t.units.keys().cloned().collect::<Vec<_>>()).into(),
-                    Series::new("unit".into(), t.units.values().cloned().collect::<Vec<_>>()).into(),
-                ])
-                .map_err(perr)?;
-                let mut up = target.clone().into_os_string();
-                up.push(".units.csv");
-                // The sidecar is a file the run writes like any other: same checks.
-                let up = writable(&super::prefs(&pp), PathBuf::from(up))?;
-                lib(stagna::io::table::write_csv(&units, &up))?;
-            }
+            lib(stagna::io::table::write_table_with_units(&t.df, &target, &t.units))?;
             Ok(())
         },
     );

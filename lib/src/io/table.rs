@@ -418,11 +418,25 @@ pub fn units_sidecar(path: &Path) -> PathBuf {
     PathBuf::from(p)
 }
 
-/// The units stored with a table file: a Parquet file's key-value metadata, or a CSV
-/// file's sidecar (`<path>.units.csv`) when there is one. Empty when none are stored.
-pub fn read_units(path: &Path) -> Result<BTreeMap<String, String>> {
+/// The units stored with a table read from `path`: a Parquet file's key-value
+/// metadata, a CSV file's sidecar (`<path>.units.csv`) when there is one, or a
+/// workbook's `name [unit]` headers (those columns of `df` are renamed to `name`).
+/// Empty when none are stored; the units are returned as written, unchecked.
+pub fn read_units(path: &Path, df: &mut DataFrame) -> Result<BTreeMap<String, String>> {
     let mut out = BTreeMap::new();
     match extension(path).as_str() {
+        "xlsx" | "xlsm" | "xlsb" | "xls" | "ods" => {
+            let names: Vec<String> = df.get_column_names().iter().map(|s| s.to_string()).collect();
+            for old in names {
+                if let Some((name, unit)) = split_unit_header(&old)
+                    && df.column(name).is_err()
+                {
+                    let (name, unit) = (name.to_string(), unit.to_string());
+                    df.rename(&old, name.as_str().into()).map_err(|e| file_err(path, e.to_string()))?;
+                    out.insert(name, unit);
+                }
+            }
+        }
         "parquet" | "pq" => {
             let file = File::open(path).map_err(|e| file_err(path, format!("cannot open: {e}")))?;
             let mut reader = ParquetReader::new(file);
@@ -460,10 +474,28 @@ pub fn read_units(path: &Path) -> Result<BTreeMap<String, String>> {
 
 /// Writes by extension: `.csv` or `.parquet`.
 pub fn write_table(df: &DataFrame, path: &Path) -> Result<()> {
+    write_table_with_units(df, path, &BTreeMap::new())
+}
+
+/// Writes a table by the file's extension with each column's unit where the format keeps
+/// it: Parquet key-value metadata, the workbook's header row, or for CSV the sidecar
+/// [`units_sidecar`] (written only when there are units). [`read_units`] reads them back.
+pub fn write_table_with_units(df: &DataFrame, path: &Path, units: &BTreeMap<String, String>) -> Result<()> {
     match extension(path).as_str() {
-        "csv" => write_csv(df, path),
-        "parquet" | "pq" => write_parquet(df, path),
-        "xlsx" => write_xlsx(df, path, &BTreeMap::new()),
+        "csv" => {
+            write_csv(df, path)?;
+            if units.is_empty() {
+                return Ok(());
+            }
+            let sidecar = DataFrame::new_infer_height(vec![
+                Column::new("column".into(), units.keys().cloned().collect::<Vec<_>>()),
+                Column::new("unit".into(), units.values().cloned().collect::<Vec<_>>()),
+            ])
+            .map_err(|e| file_err(path, e.to_string()))?;
+            write_csv(&sidecar, &units_sidecar(path))
+        }
+        "parquet" | "pq" => write_parquet_with_units(df, path, units),
+        "xlsx" => write_xlsx(df, path, units),
         other => Err(file_err(path, format!("cannot write '.{other}' tables (csv, parquet or xlsx)"))),
     }
 }
