@@ -245,6 +245,8 @@ pub fn bundle_for(v: &Dynamic, text: String) -> Bundle {
         b.html = Some(table_html(&t));
     } else if let Some(bud) = v.clone().try_cast::<api::uncertainty::Budget>() {
         b.html = Some(budget_html(&bud));
+    } else if let Some(s) = v.clone().try_cast::<api::stack::Sheets>() {
+        b.html = Some(stagna::methods::us_epa::run_sheet::to_html(&s.0));
     } else if let Some(q) = v.clone().try_cast::<api::Q>() {
         b.latex = Some(quantity_latex(&b.text, &q));
     }

@@ -265,6 +265,34 @@ const CASES: &[(&str, &[&str])] = &[
     (r##"undefined_name + 1"##, &[r##"unknown variable 'undefined_name'"##]),
     (r##"let = 5;"##, &[r##"line 1"##]),
     (r##"[1, 2"##, &[r##"line 1"##]),
+    // Stack tests (issue 11): each refusal names the input to fix.
+    (
+        r##"s_type_calibration(0.99, [[12.0, 16.8], [10.0, 14.1]], [[12.0, 16.9], [10.0, 14.0], [15.0, 21.1]], #{probe_id: "SP-07", date: "2026-10-14"})"##,
+        &[r##"side a has 2 reading(s)"##, r##"at least 3 per side"##],
+    ),
+    (
+        r##"s_type_calibration(0.99, [[12.0, 16.8], [10.0, 14.1], [15.0, 21.0]], [[12.0, 16.9], [10.0, 14.0], [15.0, 21.1]], #{probe_id: "SP-07", date: "14/10/2026"})"##,
+        &[r##"yyyy-mm-dd"##],
+    ),
+    (
+        r##"method4_moisture(#{water_initial_ml: 200, water_final_ml: 281, gel_initial_g: 209, gel_final_g: 200, meter_volume: 0.9.m3, meter_factor: 0.998, meter_temperature: 24.degC, barometric: 745.mmHg})"##,
+        &[r##"silica gel weight gain is negative"##],
+    ),
+    (
+        r##"method4_moisture(#{water_initial_ml: 200, water_final_ml: 281, gel_initial_g: 200, gel_final_g: 209, meter_volume: 0.9.m3, meter_factor: 0.0, meter_temperature: 24.degC, barometric: 745.mmHg})"##,
+        &[r##"meter factor y"##, r##"greater than 0"##],
+    ),
+    (r##"gauge_sensitivity([1.mmH2O, -2.mmH2O, 3.mmH2O])"##, &[r##"row 2"##, r##"velocity head must be 0 or more"##]),
+    (r##"cyclonic_check([4, 95, 3])"##, &[r##"row 2"##, r##"yaw angle must be within ±90°"##]),
+    (
+        r##"method2_run(#{dp: [10.mmH2O, 12.mmH2O, 14.mmH2O], stack_temperature: 150.degC, barometric: 760.mmHg, static_pressure: 0.Pa, co2: 12, o2: 6, n2_co: 82, moisture: 1.0, probe: s_type(0.84), diameter: 1.5.m})"##,
+        &[r##"b_ws must be in [0, 1)"##],
+    ),
+    (
+        r##"method2_run(#{dp: [10.mmH2O, 12.mmH2O, 14.mmH2O], stack_temperature: 150.degC, barometric: 760.mmHg, static_pressure: 0.Pa, co2: 12, o2: 6, n2_co: 82, moisture: 0.1, probe: s_type(0.84), diameter: 0.8.m, wall: "other"})"##,
+        &[r##"below 1.0 m"##, r##"method 2h"##],
+    ),
+    (r##"load_calibration("no-such-calibration.toml")"##, &[r##"no-such-calibration.toml"##, r##"cannot read"##]),
 ];
 
 fn tempdir(tag: &str) -> PathBuf {

@@ -70,20 +70,39 @@ fn ventilation_duct_traverse() {
 }
 
 #[test]
-fn stack_traverse_with_s_type_probe() {
+fn stack_test_by_the_methods_equations() {
     let (out, dir) = run_script("stack-s-type", &[]);
-    assert!(out.contains("Campaign: 3 traverse(s) reduced, 0 failed"), "{out}");
-    // The Rust reduction against the US EPA Method 2 equation (Kp = 34.97, T + 273, Ms from the
-    // same gas) on run R1's velocity heads: the two differ only by the method's rounded
-    // constants, well under 0.1 %.
-    let line = out.lines().find(|l| l.starts_with("run R1:")).expect("R1 line");
-    let ours = number_after(line, "mean point velocity");
-    let epa = number_after(line, "Method 2 equation");
-    assert!(((ours - epa) / epa).abs() < 1e-3, "{line}");
-    // Wet molar mass of the gas: M_d = 0.44·9.8 + 0.32·8.6 + 0.28·81.6 = 29.92 (US EPA Method 3),
-    // M_s = M_d(1 − 0.11) + 18·0.11 = 28.61 (Method 2 Eq. 2-6); ours uses exact molar masses.
-    assert!((number_after(&out, "M =") - 28.61).abs() < 0.05, "{out}");
-    assert!(dir.join("stack-runs.csv").is_file() && dir.join("stack-runs.svg").is_file());
+    // Calibration record SP-07 (invented readings): C_p(s) = 0.99·√(Δp_std/Δp_s) per reading
+    // (US EPA Method 2 §10.1, from memory); side means 0.83940 and 0.83722, C_p = 0.83831
+    // (hand calculation, Python 3.11).
+    assert!(out.contains("C_p(A) = 0.8394, C_p(B) = 0.8372, C_p = 0.8383"), "{out}");
+    assert_eq!(out.matches("Stack run R").count(), 3, "{out}");
+    assert!(out.contains("all method checks passed: true"), "{out}");
+    assert!(out.contains("Caution: Stack gas"), "{out}");
+    // Run R2 by hand from the runs table (method symbols and constants from the Method 2,
+    // 3, 4 nomenclature; arithmetic with Python 3.11):
+    //   M_d = 0.440·10.1 + 0.320·8.3 + 0.280·81.6 = 29.948; P_s = 745.8 − 15.1/13.6 = 744.690 mmHg
+    //   k = 0.06236·293/(760·18.0); V_wc = 71.2·0.9982·k = 0.094926; V_wsg = 9.1·k = 0.012154;
+    //   V_m(std) = 0.8547·0.994·(745.8 + 38/13.6)·293/(760·296.1) = 0.828061 → B_ws = 0.114507
+    //   M_s = 29.948·(1 − B_ws) + 18.0·B_ws = 28.5799
+    let r2 = &out[out.find("Stack run R2").expect("R2 sheet")..out.find("Stack run R3").expect("R3 sheet")];
+    assert!((number_after(r2, "M_d ") - 29.95).abs() < 0.006, "{r2}");
+    assert!((number_after(r2, "P_s ") - 744.7).abs() < 0.06, "{r2}");
+    assert!((number_after(r2, "B_ws(meas)") - 0.1145).abs() < 6e-5, "{r2}");
+    assert!((number_after(r2, "M_s ") - 28.58).abs() < 0.006, "{r2}");
+    // Method 2 velocity from the sheet's own intermediates: v_s = 34.97 C_p (√Δp)avg
+    // √(T_s/(P_s M_s)) (check-values.md §4.2); the printed intermediates are rounded.
+    let s = number_after(r2, "(√Δp)avg");
+    let ts = number_after(r2, "T_s(avg)");
+    let v = 34.97 * 0.838_31 * s * (ts / (744.690 * 28.5799)).sqrt();
+    let printed =
+        r2.lines().find(|l| l.trim_start().starts_with("v_s ")).map(|l| number_after(l, "v_s")).unwrap_or(0.0);
+    assert!((printed - v).abs() < 0.01, "v_s {printed} vs {v}");
+    // Method 2H default for a steel stack, 0.9950 (Method 2H §2.2.2, read in the text).
+    assert!((number_after(r2, "v_s,adj") - 0.995 * v).abs() < 0.01, "{r2}");
+    let csv = std::fs::read_to_string(dir.join("stack-run-sheets.csv")).unwrap_or_default();
+    assert!(csv.starts_with("run,group,symbol,quantity,value,unit,verdict,source"), "{csv}");
+    assert!(csv.contains("R3,reported,Q_sd,"), "{csv}");
 }
 
 #[test]

@@ -23,7 +23,8 @@ EXPECT = {
     # Equal-area point 1 on 600 mm: 2.6 % of D = 15.4 mm (US EPA Method 1 Table 1-1); Q = v̄·πD²/4.
     "02-duct-traverse-layout-to-flow.ipynb": [r"A1\s+15\.4", r"mean velocity 13\.23\d* m/s", r"volume flow 1346\d(\.\d+)? m³/h"],
     # M_s ≈ 28.61 g/mol by US EPA Methods 2 and 3; the Rust reduction within 0.1 % of the Method 2 equation.
-    "03-stack-traverse-s-type.ipynb": [r"M = 28\.6\d* kg/kmol", r"3 traverse\(s\) reduced, 0 failed", r"run R1: 13\.29\d* m/s here, 13\.29\d* m/s"],
+    # The run sheets by the methods' equations (Method 4 moisture, checks with numbers).
+    "03-stack-traverse-s-type.ipynb": [r"S-type calibration SP-07 of 2026-09-22", r"Method 4 moisture: ", r"all method checks passed: true", r"Stack run R3"],
     "04-profile-study.ipynb": [r"x02D", r"x30D", r"power law, n = 7"],
     # Shares of the budget add to 100 %; Monte Carlo interval printed.
     "05-traverse-uncertainty-budget.ipynb": [r"U\(95 %\) = ", r"Monte Carlo: u = 0\.03\d+", r"GUM: Q = 3\.74\d* m³/s"],

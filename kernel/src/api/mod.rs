@@ -30,6 +30,7 @@ pub mod probes;
 pub mod profiles;
 pub mod quantities;
 pub mod sections;
+pub mod stack;
 pub mod steps;
 pub mod tables;
 pub mod uncertainty;
@@ -266,4 +267,5 @@ pub fn register_all(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     campaigns::register(r, prefs);
     charts::register(r, prefs);
     uncertainty::register(r, prefs);
+    stack::register(r, prefs);
 }

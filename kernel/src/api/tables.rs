@@ -47,6 +47,16 @@ pub const DEMO_TABLES: &[(&str, &str, &str)] = &[
         include_str!("../../../demo-data/ashby-kiln-stack.csv"),
     ),
     (
+        "nowhere-vale-kiln-points.csv",
+        "stack traverse, S-type probe, three runs with yaw angles (fictional site)",
+        include_str!("../../../demo-data/nowhere-vale-kiln-points.csv"),
+    ),
+    (
+        "nowhere-vale-kiln-runs.csv",
+        "the same stack: per-run barometer, static pressure, gas analysis, moisture train",
+        include_str!("../../../demo-data/nowhere-vale-kiln-runs.csv"),
+    ),
+    (
         "tamworth-rig-profiles.csv",
         "air rig, profiles at 12 stations after a bend",
         include_str!("../../../demo-data/tamworth-rig-profiles.csv"),
@@ -353,7 +363,7 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let pp = prefs.clone();
     r.func(
         "demo_table",
-        &Doc::new("demo_table(name) -> Table", "One of the bundled demo tables (invented scenarios): \"larkfield-ahu2-supply\" (a duct traverse), \"hollin-brook-main\" (a water main), \"ashby-kiln-stack\" (a stack, S-type probe) or \"tamworth-rig-profiles\" (profiles after a bend).")
+        &Doc::new("demo_table(name) -> Table", "One of the bundled demo tables (invented scenarios): \"larkfield-ahu2-supply\" (a duct traverse), \"hollin-brook-main\" (a water main), \"ashby-kiln-stack\" (a stack, S-type probe), \"nowhere-vale-kiln-points\" and \"nowhere-vale-kiln-runs\" (a stack test: points with yaw angles, and one row per run) or \"tamworth-rig-profiles\" (profiles after a bend).")
             .example("let t = demo_table(\"hollin-brook-main\");\nprint(t.height);")
             .source("invented demo data bundled with stagna"),
         move |name: &str| -> Res<Tbl> { Ok(Tbl::new(demo_csv(&pp, name)?)) },

@@ -94,6 +94,11 @@ pub struct Probe {
     pub coefficient: f64,
     /// Head (tip) diameter, for the low-velocity check.
     pub head_diameter: Option<Length>,
+    /// Where the coefficient comes from (a calibration record), when known.
+    pub coefficient_source: Option<String>,
+    /// Warnings every velocity from this probe carries (a calibration that fails its
+    /// checks or is older than the limit set).
+    pub notes: Vec<Warning>,
 }
 
 /// A point velocity and how it was obtained.
@@ -152,7 +157,22 @@ impl Probe {
     /// ```
     pub fn new(kind: ProbeKind, coefficient: f64) -> Result<Self> {
         crate::error::within("probe", "coefficient", coefficient, "", 0.5, 1.2)?;
-        Ok(Self { kind, coefficient, head_diameter: None })
+        Ok(Self { kind, coefficient, head_diameter: None, coefficient_source: None, notes: Vec::new() })
+    }
+
+    /// An S-type probe whose C_p is the mean of a Method 2 calibration record's two
+    /// sides; the record's failed checks and an age beyond `max_age_days` (on the day
+    /// `today_days`, days since 1970-01-01) become warnings on every velocity.
+    pub fn from_calibration(
+        record: &crate::methods::us_epa::calibration::CalibrationRecord,
+        today_days: i64,
+        max_age_days: Option<i64>,
+    ) -> Result<Self> {
+        let c = record.calibration()?;
+        let mut p = Self::new(ProbeKind::SType, c.cp())?;
+        p.coefficient_source = Some(format!("S-type calibration {} of {}", record.probe_id, record.date));
+        p.notes = record.warnings(today_days, max_age_days);
+        Ok(p)
     }
 
     /// The same probe with a head diameter (enables the low-velocity check).
@@ -182,6 +202,7 @@ impl Probe {
         };
         let c = self.coefficient;
         let mut warnings = fluid.warnings.clone();
+        warnings.extend(self.notes.iter().cloned());
         let v = match gamma {
             Some(g) => {
                 crate::error::positive("probe", "static pressure", p, "Pa")?;

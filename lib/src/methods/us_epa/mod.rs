@@ -2,6 +2,11 @@
 //! methods' own rounded constants, for results that must match a method
 //! calculation digit for digit. Inputs carry the method's units in their names.
 //!
+//! Submodules: [`calibration`] (S-type calibration, Method 2 §10.1, and its record
+//! file), [`moisture`] (Method 4), [`site_checks`] (cyclonic flow, gauge sensitivity,
+//! Method 2H default wall factors), [`run_sheet`] (one run by the methods' equations
+//! beside the physics route, with every check), [`check`] (a check with its number).
+//!
 //! # Formula
 //! - Method 3, eq. 3-1: M_d = 0.440 (%CO₂) + 0.320 (%O₂) + 0.280 (%N₂ + %CO)
 //! - Method 2, eq. 2-5: M_s = M_d (1 − B_ws) + 18.0 B_ws
@@ -23,6 +28,12 @@
 //! §12 (dry molecular weight); equation numbers from memory.
 
 use crate::error::{Error, Result, finite, positive, within};
+
+pub mod calibration;
+pub mod check;
+pub mod moisture;
+pub mod run_sheet;
+pub mod site_checks;
 
 /// Method 2 metric pitot constant K_p.
 pub const KP_METRIC: f64 = 34.97;
