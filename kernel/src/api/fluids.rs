@@ -90,13 +90,13 @@ fn gas_constructors(r: &mut Registrar<'_>) {
     );
     r.func(
         "flue_gas",
-        &Doc::new("flue_gas(co2_pct, o2_pct, co_pct, moisture) -> Fluid", "Stack gas as an ideal-gas mixture from a dry-basis analysis (CO₂, O₂, CO in %, N₂ the balance) and the water-vapour mole fraction B_ws.")
+        &Doc::new("flue_gas(co2_pct, o2_pct, co_pct, moisture) -> Fluid", "Stack gas as an ideal-gas mixture from a dry-basis analysis (CO₂, O₂, CO in %, N₂ the balance) and the water-vapour mole fraction B_ws, with CIAAW molar masses: the physics route. US EPA Method 3's rounded coefficients give a dry molecular weight about 0.012 g/mol lower (29.912 against 29.924 for 9.8 % CO₂, 8.6 % O₂); where the method is followed use method3_dry_molar_mass or the run sheets.")
             .param("co2_pct", "CO₂, % by volume, dry basis")
             .param("o2_pct", "O₂, % by volume, dry basis")
             .param("co_pct", "CO, % by volume, dry basis")
             .param("moisture", "water-vapour mole fraction B_ws in [0, 1)")
             .example("let gas = flue_gas(11.2, 7.1, 0.0, 0.12);\nprint(gas.molar_mass);")
-            .source("ideal-gas mixing; molar masses CIAAW 2021; same result as US EPA Method 3 M_d for CO₂/O₂/N₂"),
+            .source("ideal-gas mixing; molar masses CIAAW 2021 (a separate route from US EPA Method 3 eq. 3-1)"),
         |co2: Dynamic, o2: Dynamic, co: Dynamic, bws: Dynamic| -> Res<Fluid> {
             Ok(Fluid::Gas(lib(GasMixture::flue_gas(
                 number(&co2, "CO2 %")?,

@@ -6,9 +6,13 @@
 use rhai::{Array, Dynamic, Map};
 use stagna::methods::us_epa::calibration::{CalibrationPair, CalibrationRecord, STypeCalibration};
 use stagna::methods::us_epa::check::MethodCheck;
+use stagna::methods::us_epa::directional::{
+    self, DirectionalPoint, DirectionalProbe, DirectionalTraverse, PitchCurves,
+};
 use stagna::methods::us_epa::moisture::{self, LeakCheck, MoistureResult, MoistureTrain, StackConditions};
 use stagna::methods::us_epa::run_sheet::{self, Coefficient, GasInput, MoistureInput, Route, RunSheet, StackRun};
 use stagna::methods::us_epa::site_checks::{self, Construction};
+use stagna::methods::us_epa::wall_factor::{self, CalculatedWallFactor, WallSector};
 use stagna::methods::us_epa::{self as epa, MethodUnits};
 use stagna::units::dimension::Dimension as D;
 use stagna::units::quantity::format_number;
@@ -50,6 +54,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     gas_and_moisture(r);
     checks(r);
     runs(r, prefs);
+    directional_probes(r);
 }
 
 fn pairs(a: &Array, side: &str) -> Res<Vec<CalibrationPair>> {
@@ -715,4 +720,310 @@ fn runs_of(t: &Tbl, s: &Map) -> Res<Sheets> {
         sheets.push(lib(run_sheet::run_sheet(&sr)).map_err(|e| rt(format!("run {run}: {e}")))?);
     }
     Ok(Sheets(sheets))
+}
+
+/// A Method 2F or 2G traverse as scripts see it: per-point results, flows, checks.
+#[derive(Debug, Clone)]
+pub struct Directional {
+    /// The traverse.
+    pub t: DirectionalTraverse,
+    /// Absolute stack pressure, mmHg; wet molecular weight; B_ws; area m².
+    pub p_s: f64,
+    /// Wet molecular weight, g/g-mol.
+    pub m_s: f64,
+    /// Moisture.
+    pub bws: f64,
+    /// Section area, m².
+    pub area: f64,
+}
+
+fn directional_text(d: &Directional) -> String {
+    let t = &d.t;
+    let (q_sw, q_sd) = t.flows(d.area, d.p_s, d.bws).unwrap_or((f64::NAN, f64::NAN));
+    let mut s = format!(
+        "{} traverse, {} points: v_a(avg) = {:.2} m/s (P_s {:.1} mmHg, M_s {:.2} g/g-mol, T_s(avg) {:.1} K); Q_sw = {} m³/h, Q_sd = {} dscm/h at 20 °C, 760 mmHg (B_ws {:.4})",
+        t.method,
+        t.axial_velocity.len(),
+        t.mean_axial_velocity,
+        d.p_s,
+        d.m_s,
+        t.ts_avg_k,
+        format_number((q_sw / 10.0).round() * 10.0),
+        format_number((q_sd / 10.0).round() * 10.0),
+        d.bws
+    );
+    for c in &t.checks {
+        s.push_str(&format!("\n  {c}"));
+    }
+    s.push_str("\n  note: velocity equations of Methods 2F/2G as recalled (F2 under the root; cos θ_y, cos θ_p), not yet read in the published text.");
+    s.push_str(&format!("\nCaution: {}", run_sheet::CAUTIONS));
+    s
+}
+
+/// P_s (mmHg), M_s and B_ws from a spec (barometric, static_pressure, co2/o2/n2_co or
+/// dry_molar_mass, moisture as a fraction or a Moisture).
+fn gas_of(s: &Map) -> Res<(f64, f64, f64)> {
+    let need = |k: &str| field(s, k).ok_or_else(|| rt(format!("'{k}' is missing")));
+    let p_s = lib(epa::stack_pressure(
+        pressure(need("barometric")?, "barometric")?.si() / 133.322_387_415,
+        pressure(need("static_pressure")?, "static_pressure")?.si() / 9.806_65,
+    ))?;
+    let md = match field(s, "dry_molar_mass") {
+        Some(m) => si_of(m, D::MOLAR_MASS, "dry_molar_mass")? * 1000.0,
+        None => lib(epa::dry_molecular_weight(
+            number(need("co2")?, "co2")?,
+            number(need("o2")?, "o2")?,
+            number(need("n2_co")?, "n2_co")?,
+        ))?,
+    };
+    let m = need("moisture")?;
+    let bws = match m.clone().try_cast::<MoistureResult>() {
+        Some(r) => r.bws,
+        None => number(m, "moisture")?,
+    };
+    if !(0.0..1.0).contains(&bws) {
+        return Err(rt(format!("moisture B_ws must be in [0, 1), got {}", format_number(bws))));
+    }
+    Ok((p_s, lib(epa::wet_molecular_weight(md, bws))?, bws))
+}
+
+/// Numbers from an array or a column (a column's SI values; angles through `degrees`).
+fn numbers(d: &Dynamic, what: &str) -> Res<Vec<f64>> {
+    if let Some(c) = d.clone().try_cast::<Col>() {
+        return Ok(c.si.to_vec());
+    }
+    let a: Array = d
+        .clone()
+        .try_cast()
+        .ok_or_else(|| rt(format!("{what}: expected an array or a column, got {}", describe(d))))?;
+    a.iter().map(|x| number(x, what)).collect()
+}
+
+fn directional_traverse(probe: DirectionalProbe, t: &Tbl, s: &Map, what: &str) -> Res<Directional> {
+    check_keys(
+        s,
+        &[
+            "columns",
+            "rado",
+            "barometric",
+            "static_pressure",
+            "co2",
+            "o2",
+            "n2_co",
+            "dry_molar_mass",
+            "moisture",
+            "diameter",
+            "area",
+        ],
+        what,
+    )?;
+    let cols: Map = field(s, "columns")
+        .and_then(|c| c.clone().try_cast())
+        .ok_or_else(|| rt(format!("{what}: spec.columns (yaw, dp, pitch_dp, stack_temperature) is missing")))?;
+    check_keys(&cols, &["yaw", "dp", "pitch_dp", "stack_temperature"], &format!("{what} columns"))?;
+    let col = |k: &str| -> Res<Col> {
+        let name = field(&cols, k)
+            .map(|d| text(d, k))
+            .transpose()?
+            .ok_or_else(|| rt(format!("{what}: columns.{k} is missing")))?;
+        t.column(&name)
+    };
+    let yaw = degrees_of_column(&col("yaw")?)?;
+    let dp = heads_mm(&Dynamic::from(col("dp")?), "dp")?;
+    let pitch_dp = match (&probe, field(&cols, "pitch_dp")) {
+        (DirectionalProbe::ThreeD(_), Some(_)) => Some(heads_mm(&Dynamic::from(col("pitch_dp")?), "pitch_dp")?),
+        (DirectionalProbe::ThreeD(_), None) => {
+            return Err(rt(format!("{what}: a 3-D probe needs columns.pitch_dp (P4 − P5)")));
+        }
+        _ => None,
+    };
+    let ts = temps_c(&Dynamic::from(col("stack_temperature")?), "stack_temperature")?;
+    let points: Vec<DirectionalPoint> = (0..dp.len())
+        .map(|i| DirectionalPoint {
+            yaw_reading_deg: yaw[i],
+            dp_mm_h2o: dp[i],
+            pitch_dp_mm_h2o: pitch_dp.as_ref().map(|p| p[i]),
+            ts_c: ts[i],
+        })
+        .collect();
+    let (p_s, m_s, bws) = gas_of(s).map_err(|e| rt(format!("{what}: {e}")))?;
+    let rado = field(s, "rado").map(|d| number(d, "rado")).transpose()?.unwrap_or(0.0);
+    let area = match (field(s, "diameter"), field(s, "area")) {
+        (Some(d), None) => {
+            let d = length(d, "diameter")?.si();
+            std::f64::consts::PI * d * d / 4.0
+        }
+        (None, Some(a)) => si_of(a, D::AREA, "area")?,
+        _ => return Err(rt(format!("{what}: give the stack's diameter or its area, not both"))),
+    };
+    let tr = lib(directional::axial_velocities(&probe, &points, rado, p_s, m_s))?;
+    Ok(Directional { t: tr, p_s, m_s, bws, area })
+}
+
+fn directional_probes(r: &mut Registrar<'_>) {
+    r.engine
+        .register_type_with_name::<PitchCurves>("PitchCurves")
+        .register_type_with_name::<Directional>("DirectionalTraverse")
+        .register_type_with_name::<CalculatedWallFactor>("WallFactor");
+    r.func(
+        "pitch_curves",
+        &Doc::new("pitch_curves(pitch_deg, f1, f2) -> PitchCurves", "A 3-D probe's calibration curves (Method 2F): the pitch ratio F1 and the velocity coefficient F2 at each calibrated pitch angle (degrees, increasing; F1 must rise or fall steadily).")
+            .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03]);\nprint(c);")
+            .source("US EPA Method 2F nomenclature (F1, F2; read in the text)"),
+        |p: Dynamic, f1: Dynamic, f2: Dynamic| -> Res<PitchCurves> {
+            lib(PitchCurves::new(numbers(&p, "pitch_deg")?, numbers(&f1, "f1")?, numbers(&f2, "f2")?))
+        },
+    );
+    r.engine.register_fn("to_string", |c: &mut PitchCurves| {
+        format!(
+            "3-D probe pitch curves: {} angles from {}° to {}°",
+            c.pitch_deg.len(),
+            c.pitch_deg[0],
+            c.pitch_deg[c.pitch_deg.len() - 1]
+        )
+    });
+    let spec_doc = "Keys: columns #{yaw (null reading, deg), dp (velocity head), pitch_dp (P4 − P5, 3-D only), stack_temperature}, rado (rotational offset of the angle device, deg), barometric, static_pressure, co2/o2/n2_co or dry_molar_mass, moisture (B_ws or a Moisture), diameter or area.";
+    r.func(
+        "method2f_traverse",
+        &Doc::new("method2f_traverse(curves, points, spec) -> DirectionalTraverse", &format!("Axial velocities of a traverse with a 3-D probe by US EPA Method 2F: the yaw from nulling (less the device offset), the pitch from the pitch ratio on the probe's curves, F2 at that pitch, v_a per point, their average and the wet and dry flows at 20 °C, 760 mmHg, with the method's checks. {spec_doc}"))
+            .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03]);\nlet t = table_from(#{yaw: [4.0, -3.0, 6.0], dp: [10.0, 12.0, 11.0], pdp: [1.0, -0.5, 0.2], ts: [150.0, 151.0, 150.0]}).units(#{dp: \"mmH2O\", pdp: \"mmH2O\", ts: \"degC\"});\nprint(method2f_traverse(c, t, #{columns: #{yaw: \"yaw\", dp: \"dp\", pitch_dp: \"pdp\", stack_temperature: \"ts\"}, barometric: 760.mmHg, static_pressure: -25.mmH2O, co2: 12, o2: 6, n2_co: 82, moisture: 0.1, diameter: 1.5.m}));")
+            .source("US EPA Method 2F (40 CFR 60 App. A-1): §1.1 and nomenclature read in the text; velocity equation form from memory"),
+        |c: PitchCurves, t: Tbl, s: Map| -> Res<Directional> { directional_traverse(DirectionalProbe::ThreeD(c), &t, &s, "method2f_traverse") },
+    );
+    r.func(
+        "method2g_traverse",
+        &Doc::new("method2g_traverse(coefficient, points, spec) -> DirectionalTraverse", &format!("Near-axial velocities of a traverse with a 2-D probe (or a Type S probe) by US EPA Method 2G: v_a = K_p C_p √(Δp T_s/(P_s M_s)) cos θ_y per point, their average and flows. The coefficient is a number or an S-type calibration. {spec_doc}"))
+            .example("let t = table_from(#{yaw: [4.0, -3.0, 6.0], dp: [10.0, 12.0, 11.0], ts: [150.0, 151.0, 150.0]}).units(#{dp: \"mmH2O\", ts: \"degC\"});\nprint(method2g_traverse(0.84, t, #{columns: #{yaw: \"yaw\", dp: \"dp\", stack_temperature: \"ts\"}, barometric: 760.mmHg, static_pressure: -25.mmH2O, co2: 12, o2: 6, n2_co: 82, moisture: 0.1, diameter: 1.5.m}));")
+            .source("US EPA Method 2G (40 CFR 60 App. A-2): nomenclature read in the text; velocity equation form from memory"),
+        |c: Dynamic, t: Tbl, s: Map| -> Res<Directional> {
+            let cp = match c.clone().try_cast::<Calibration>() {
+                Some(cal) => cal.cal.cp(),
+                None => number(&c, "coefficient")?,
+            };
+            directional_traverse(DirectionalProbe::TwoD { cp }, &t, &s, "method2g_traverse")
+        },
+    );
+    r.engine.register_fn("to_string", |d: &mut Directional| directional_text(d));
+    r.method(
+        "DirectionalTraverse",
+        "table",
+        &Doc::new("traverse.table() -> Table", "The per-point results: yaw (after the offset), pitch and F2 (3-D probes) and the axial velocity.")
+            .example("let t = table_from(#{yaw: [4.0, -3.0], dp: [10.0, 12.0], ts: [150.0, 151.0]}).units(#{dp: \"mmH2O\", ts: \"degC\"});\nprint(method2g_traverse(0.84, t, #{columns: #{yaw: \"yaw\", dp: \"dp\", stack_temperature: \"ts\"}, barometric: 760.mmHg, static_pressure: 0.Pa, co2: 12, o2: 6, n2_co: 82, moisture: 0.1, diameter: 1.5.m}).table());")
+            .source("US EPA Methods 2F/2G"),
+        |d: &mut Directional| -> Res<Tbl> {
+            use polars::prelude::{Column, DataFrame};
+            let mut cols = vec![Column::new("yaw_deg".into(), d.t.yaw_deg.clone())];
+            if !d.t.pitch_deg.is_empty() {
+                cols.push(Column::new("pitch_deg".into(), d.t.pitch_deg.clone()));
+                cols.push(Column::new("f2".into(), d.t.f2.clone()));
+            }
+            cols.push(Column::new("axial_velocity".into(), d.t.axial_velocity.clone()));
+            let df = DataFrame::new_infer_height(cols).map_err(rt)?;
+            let mut t = Tbl::new(df);
+            t.units.insert("yaw_deg".into(), "deg".into());
+            t.units.insert("axial_velocity".into(), "m/s".into());
+            if !d.t.pitch_deg.is_empty() {
+                t.units.insert("pitch_deg".into(), "deg".into());
+            }
+            Ok(t)
+        },
+    );
+    r.property(
+        "DirectionalTraverse",
+        "mean_axial_velocity",
+        &Doc::new("traverse.mean_axial_velocity -> Quantity", "The average axial velocity v_a(avg).")
+            .example("let t = table_from(#{yaw: [4.0, -3.0], dp: [10.0, 12.0], ts: [150.0, 151.0]}).units(#{dp: \"mmH2O\", ts: \"degC\"});\nprint(method2g_traverse(0.84, t, #{columns: #{yaw: \"yaw\", dp: \"dp\", stack_temperature: \"ts\"}, barometric: 760.mmHg, static_pressure: 0.Pa, co2: 12, o2: 6, n2_co: 82, moisture: 0.1, diameter: 1.5.m}).mean_axial_velocity);")
+            .source("US EPA Methods 2F/2G"),
+        |d: &mut Directional| Q::with_unit(d.t.mean_axial_velocity, "m/s").map(Dynamic::from).unwrap_or(Dynamic::UNIT),
+    );
+    r.func(
+        "method2h_calculated_factor",
+        &Doc::new("method2h_calculated_factor(spec) -> WallFactor", "The calculated wall effects adjustment factor of US EPA Method 2H from velocities measured in from the wall. Keys: diameter, points_per_diameter (p ≥ 8), velocities and wall_distances (the Method 1 points: arrays or columns), sectors: [#{index (Method 1 point replaced, from 0), points: [[distance, velocity], ...], v_drem}], distances and velocities as quantities.")
+            .example("let v = []; let y = [];\nfor i in 0..16 { v.push(10.0.m_s); y.push(if i == 0 { 64.mm } else { 500.mm }); }\nlet w = method2h_calculated_factor(#{diameter: 2.m, points_per_diameter: 8, velocities: v, wall_distances: y,\n    sectors: [#{index: 0, points: [[25.mm, 9.0.m_s], [50.mm, 9.6.m_s], [75.mm, 9.8.m_s], [100.mm, 9.9.m_s]], v_drem: 10.0.m_s}]});\nprint(w);")
+            .source("US EPA Method 2H (40 CFR 60 App. A-2): §1.2, §2.2.1 and nomenclature read in the text; equations from memory"),
+        |s: Map| -> Res<CalculatedWallFactor> { wall_factor_of(&s) },
+    );
+    r.engine.register_fn("to_string", |w: &mut CalculatedWallFactor| {
+        let mut s = format!(
+            "Method 2H calculated wall factor: WAF = {:.4} (V_AVG {:.3} m/s over v_avg {:.3} m/s; v_e {})",
+            w.waf,
+            w.v_avg_adjusted,
+            w.v_avg,
+            w.v_e.iter().map(|v| format!("{v:.3}")).collect::<Vec<_>>().join(", ")
+        );
+        for c in &w.checks {
+            s.push_str(&format!("\n  {c}"));
+        }
+        for n in &w.notes {
+            s.push_str(&format!("\n  note: {n}"));
+        }
+        s.push_str("\n  note: equations of Method 2H §12 as recalled (sub-sector means, d_rem halving the rest of the sector), not yet read in the published text.");
+        s
+    });
+    r.property(
+        "WallFactor",
+        "waf",
+        &Doc::new("wall_factor.waf -> f64", "The calculated factor WAF = V_AVG / v_avg.")
+            .example("let v = []; let y = [];\nfor i in 0..16 { v.push(10.0.m_s); y.push(500.mm); }\nprint(method2h_calculated_factor(#{diameter: 2.m, points_per_diameter: 8, velocities: v, wall_distances: y, sectors: [#{index: 0, points: [[25.mm, 9.0.m_s]], v_drem: 10.0.m_s}]}).waf);")
+            .source("US EPA Method 2H"),
+        |w: &mut CalculatedWallFactor| w.waf,
+    );
+}
+
+fn wall_factor_of(s: &Map) -> Res<CalculatedWallFactor> {
+    check_keys(
+        s,
+        &["diameter", "points_per_diameter", "velocities", "wall_distances", "sectors"],
+        "method2h_calculated_factor",
+    )?;
+    let need = |k: &str| field(s, k).ok_or_else(|| rt(format!("method2h_calculated_factor: '{k}' is missing")));
+    let si_list = |d: &Dynamic, dim: D, what: &str| -> Res<Vec<f64>> {
+        if let Some(c) = d.clone().try_cast::<Col>() {
+            if c.dimension != dim {
+                return Err(rt(format!("{what} must be a {} column", dim.name().unwrap_or("quantity"))));
+            }
+            return Ok(c.si.to_vec());
+        }
+        let a: Array = d.clone().try_cast().ok_or_else(|| rt(format!("{what}: expected an array or a column")))?;
+        a.iter().map(|x| si_of(x, dim, what)).collect()
+    };
+    let v = si_list(need("velocities")?, D::VELOCITY, "velocities")?;
+    let y = si_list(need("wall_distances")?, D::LENGTH, "wall_distances")?;
+    let sectors: Array = need("sectors")?.clone().try_cast().ok_or_else(|| rt("sectors: expected an array of maps"))?;
+    let mut out = Vec::new();
+    for (k, sec) in sectors.iter().enumerate() {
+        let m: Map = sec
+            .clone()
+            .try_cast()
+            .ok_or_else(|| rt(format!("sector {}: expected a map #{{index, points, v_drem}}", k + 1)))?;
+        check_keys(&m, &["index", "points", "v_drem"], "sector")?;
+        let index =
+            count(field(&m, "index").ok_or_else(|| rt(format!("sector {}: 'index' is missing", k + 1)))?, "index")?;
+        let pts: Array = field(&m, "points")
+            .and_then(|p| p.clone().try_cast())
+            .ok_or_else(|| rt(format!("sector {}: 'points' must be [[distance, velocity], ...]", k + 1)))?;
+        let points = pts
+            .iter()
+            .map(|p| {
+                let pair: Array = p
+                    .clone()
+                    .try_cast()
+                    .filter(|a: &Array| a.len() == 2)
+                    .ok_or_else(|| rt(format!("sector {}: each point is [distance, velocity]", k + 1)))?;
+                Ok((
+                    si_of(&pair[0], D::LENGTH, "wall point distance")?,
+                    si_of(&pair[1], D::VELOCITY, "wall point velocity")?,
+                ))
+            })
+            .collect::<Res<Vec<_>>>()?;
+        let v_drem = field(&m, "v_drem").map(|d| si_of(d, D::VELOCITY, "v_drem")).transpose()?;
+        out.push(WallSector { method1_index: index, points, v_drem });
+    }
+    lib(wall_factor::calculated_wall_factor(
+        length(need("diameter")?, "diameter")?.si(),
+        count(need("points_per_diameter")?, "points_per_diameter")?,
+        &v,
+        &y,
+        &out,
+    ))
 }

@@ -4,7 +4,8 @@
 //!
 //! Submodules: [`calibration`] (S-type calibration, Method 2 §10.1, and its record
 //! file), [`moisture`] (Method 4), [`site_checks`] (cyclonic flow, gauge sensitivity,
-//! Method 2H default wall factors), [`run_sheet`] (one run by the methods' equations
+//! Method 2H default wall factors), [`directional`] (Methods 2F and 2G: yaw- and
+//! pitch-resolved axial velocities), [`run_sheet`] (one run by the methods' equations
 //! beside the physics route, with every check), [`check`] (a check with its number).
 //!
 //! # Formula
@@ -25,15 +26,21 @@
 //! # References
 //! US EPA, 40 CFR Part 60 Appendix A-1, Method 2 (*Determination of stack gas
 //! velocity and volumetric flow rate (Type S pitot tube)*) §12, and Method 3
-//! §12 (dry molecular weight); equation numbers from memory.
+//! §12 (dry molecular weight). The constants (K_p 34.97 and 85.49, 18.0, 13.6,
+//! 0.440/0.320/0.280, T_std 293 K, P_std 760 mmHg) were read in the methods' published
+//! nomenclature; equation numbers are from memory. Method 3's coefficients give a dry
+//! molecular weight about 0.012 g/mol below a mixture of CIAAW molar masses
+//! ([`crate::GasMixture::flue_gas`]), a separate route.
 
 use crate::error::{Error, Result, finite, positive, within};
 
 pub mod calibration;
 pub mod check;
+pub mod directional;
 pub mod moisture;
 pub mod run_sheet;
 pub mod site_checks;
+pub mod wall_factor;
 
 /// Method 2 metric pitot constant K_p.
 pub const KP_METRIC: f64 = 34.97;
@@ -176,6 +183,20 @@ mod tests {
         let kp = (2.0 * 9.80665 * crate::units::constants::MOLAR_GAS_CONSTANT * 1000.0 / 133.322_387_415).sqrt();
         assert!((kp - 34.9736).abs() < 1e-4);
         assert!((kp - KP_METRIC).abs() < 5e-3);
+    }
+
+    // Two routes to the dry molecular weight: Method 3's rounded coefficients (0.440, 0.320,
+    // 0.280; nomenclature read in the text) and CIAAW 2021 molar masses (44.009, 31.998,
+    // 28.014 g/mol): 29.912 against 29.924 for 9.8 % CO2, 8.6 % O2, 81.6 % N2 (hand
+    // calculation, Python 3.11) — they are kept apart, not called identical.
+    #[test]
+    fn method3_and_ciaaw_routes_differ() {
+        let md = dry_molecular_weight(9.8, 8.6, 81.6).unwrap();
+        assert!((md - 29.912).abs() < 1e-9);
+        let mix = crate::GasMixture::flue_gas(9.8, 8.6, 0.0, 0.0).unwrap();
+        let ciaaw = mix.dry_molar_mass().si() * 1000.0;
+        assert!((ciaaw - 29.924).abs() < 2e-3, "{ciaaw}");
+        assert!((ciaaw - md - 0.012).abs() < 2e-3);
     }
 
     #[test]
