@@ -7,7 +7,7 @@ use rhai::{Array, Dynamic, Map};
 use stagna::methods::us_epa::calibration::{CalibrationPair, CalibrationRecord, STypeCalibration};
 use stagna::methods::us_epa::check::MethodCheck;
 use stagna::methods::us_epa::directional::{
-    self, DirectionalPoint, DirectionalProbe, DirectionalTraverse, PitchCurves,
+    self, DirectionalPoint, DirectionalProbe, DirectionalTraverse, PitchCurves, PitchCurvesRecord,
 };
 use stagna::methods::us_epa::moisture::{self, LeakCheck, MoistureResult, MoistureTrain, StackConditions};
 use stagna::methods::us_epa::run_sheet::{self, Coefficient, GasInput, MoistureInput, Route, RunSheet, StackRun};
@@ -35,6 +35,20 @@ pub struct Calibration {
 #[derive(Debug, Clone)]
 pub struct Sheets(pub Vec<RunSheet>);
 
+/// The text of a record file. A relative path that is not here may be a record this run
+/// wrote into its output folder (where `.save` writes), so that is tried next.
+fn read_record(prefs: &SharedPrefs, path: &str) -> Res<String> {
+    let mut file = std::path::PathBuf::from(path);
+    if file.is_relative()
+        && !file.exists()
+        && let Some(dir) = super::prefs(prefs).output_dir
+        && dir.join(&file).exists()
+    {
+        file = dir.join(&file);
+    }
+    std::fs::read_to_string(&file).map_err(|e| rt(format!("{path}: cannot read: {e}")))
+}
+
 /// Today as days since 1970-01-01 (UTC).
 fn today_days() -> i64 {
     let s = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default().as_secs();
@@ -54,7 +68,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     gas_and_moisture(r);
     checks(r);
     runs(r, prefs);
-    directional_probes(r);
+    directional_probes(r, prefs);
 }
 
 fn pairs(a: &Array, side: &str) -> Res<Vec<CalibrationPair>> {
@@ -179,16 +193,7 @@ fn calibrations(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .example("let cal = s_type_calibration(0.99, [[12.0, 16.8], [10.0, 14.1], [15.0, 21.0]], [[12.0, 16.9], [10.0, 14.0], [15.0, 21.1]], #{probe_id: \"SP-07\", date: \"2026-10-14\"});\ncal.save(\"sp07-load-example.toml\");\nprint(load_calibration(\"sp07-load-example.toml\").cp);")
             .source("Stagna record format stagna-s-type-calibration, version 1"),
         move |path: &str| -> Res<Calibration> {
-            // A relative path that is not here may be a record this run wrote into its output folder.
-            let mut file = std::path::PathBuf::from(path);
-            if file.is_relative()
-                && !file.exists()
-                && let Some(dir) = super::prefs(&pl).output_dir
-                && dir.join(&file).exists()
-            {
-                file = dir.join(&file);
-            }
-            let text = std::fs::read_to_string(&file).map_err(|e| rt(format!("{path}: cannot read: {e}")))?;
+            let text = read_record(&pl, path)?;
             let record = lib(CalibrationRecord::from_toml(&text, path))?;
             let cal = lib(record.calibration())?;
             Ok(Calibration { record, cal })
@@ -860,35 +865,78 @@ fn directional_traverse(probe: DirectionalProbe, t: &Tbl, s: &Map, what: &str) -
     Ok(Directional { t: tr, p_s, m_s, bws, area })
 }
 
-fn directional_probes(r: &mut Registrar<'_>) {
+/// A 3-D probe's calibration curves with their record.
+#[derive(Debug, Clone)]
+pub struct Curves {
+    /// The curves.
+    pub curves: PitchCurves,
+    /// The record (what is saved).
+    pub record: PitchCurvesRecord,
+}
+
+fn directional_probes(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine
-        .register_type_with_name::<PitchCurves>("PitchCurves")
+        .register_type_with_name::<Curves>("PitchCurves")
         .register_type_with_name::<Directional>("DirectionalTraverse")
         .register_type_with_name::<CalculatedWallFactor>("WallFactor");
     r.func(
         "pitch_curves",
-        &Doc::new("pitch_curves(pitch_deg, f1, f2) -> PitchCurves", "A 3-D probe's calibration curves (Method 2F): the pitch ratio F1 and the velocity coefficient F2 at each calibrated pitch angle (degrees, increasing; F1 must rise or fall steadily).")
-            .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03]);\nprint(c);")
-            .source("US EPA Method 2F nomenclature (F1, F2; read in the text)"),
-        |p: Dynamic, f1: Dynamic, f2: Dynamic| -> Res<PitchCurves> {
-            lib(PitchCurves::new(numbers(&p, "pitch_deg")?, numbers(&f1, "f1")?, numbers(&f2, "f2")?))
+        &Doc::new("pitch_curves(pitch_deg, f1, f2, record) -> PitchCurves", "A 3-D probe's calibration curves (Method 2F): the pitch ratio F1 and the velocity coefficient F2 at each calibrated pitch angle (degrees, increasing; F1 must rise or fall steadily). The record map names the probe and date (#{probe_id, date: \"YYYY-MM-DD\", performed_by, note}); save it with .save(path).")
+            .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03], #{probe_id: \"3D-11\", date: \"2026-08-30\"});\nprint(c);")
+            .source("US EPA Method 2F nomenclature (F1, F2; read in the text); Stagna record format stagna-3d-probe-calibration, version 1"),
+        |p: Dynamic, f1: Dynamic, f2: Dynamic, info: Map| -> Res<Curves> {
+            check_keys(&info, &["probe_id", "date", "performed_by", "note"], "pitch_curves record")?;
+            let curves = lib(PitchCurves::new(numbers(&p, "pitch_deg")?, numbers(&f1, "f1")?, numbers(&f2, "f2")?))?;
+            let get = |k: &str| -> Res<String> { field(&info, k).map(|d| text(d, k)).transpose().map(Option::unwrap_or_default) };
+            let mut record = lib(PitchCurvesRecord::new(&get("probe_id")?, &get("date")?, &curves))?;
+            record.performed_by = get("performed_by")?;
+            record.note = get("note")?;
+            Ok(Curves { curves, record })
         },
     );
-    r.engine.register_fn("to_string", |c: &mut PitchCurves| {
+    r.engine.register_fn("to_string", |c: &mut Curves| {
+        let p = &c.curves.pitch_deg;
         format!(
-            "3-D probe pitch curves: {} angles from {}° to {}°",
-            c.pitch_deg.len(),
-            c.pitch_deg[0],
-            c.pitch_deg[c.pitch_deg.len() - 1]
+            "3-D probe {} calibration of {}: {} pitch angles from {}° to {}°",
+            c.record.probe_id,
+            c.record.date,
+            p.len(),
+            p[0],
+            p[p.len() - 1]
         )
     });
+    let pp = prefs.clone();
+    r.method(
+        "PitchCurves",
+        "save",
+        &Doc::new("curves.save(path)", "Saves the 3-D probe's calibration curves as a TOML record (Stagna's own versioned format, `docs/records.md`) through a temporary file and a rename.")
+            .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03], #{probe_id: \"3D-11\", date: \"2026-08-30\"});\nc.save(\"3d-11-example.toml\");")
+            .source("Stagna record format stagna-3d-probe-calibration, version 1"),
+        move |c: &mut Curves, path: &str| -> Res<()> {
+            let target = out_path(&pp, path)?;
+            let text = lib(c.record.to_toml())?;
+            lib(stagna::io::table::write_atomically(&target, |f| std::io::Write::write_all(f, text.as_bytes())))
+        },
+    );
+    let pl = prefs.clone();
+    r.func(
+        "load_pitch_curves",
+        &Doc::new("load_pitch_curves(path) -> PitchCurves", "Reads a 3-D probe's calibration curves (TOML record); unknown keys, wrong types, a bad date, curves that do not rise or fall steadily, or a record from a newer Stagna are refused with the file, line and key.")
+            .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03], #{probe_id: \"3D-11\", date: \"2026-08-30\"});\nc.save(\"3d-11-load-example.toml\");\nprint(load_pitch_curves(\"3d-11-load-example.toml\"));")
+            .source("Stagna record format stagna-3d-probe-calibration, version 1"),
+        move |path: &str| -> Res<Curves> {
+            let text = read_record(&pl, path)?;
+            let record = lib(PitchCurvesRecord::from_toml(&text, path))?;
+            Ok(Curves { curves: lib(record.curves())?, record })
+        },
+    );
     let spec_doc = "Keys: columns #{yaw (null reading, deg), dp (velocity head), pitch_dp (P4 − P5, 3-D only), stack_temperature}, rado (rotational offset of the angle device, deg), barometric, static_pressure, co2/o2/n2_co or dry_molar_mass, moisture (B_ws or a Moisture), diameter or area.";
     r.func(
         "method2f_traverse",
         &Doc::new("method2f_traverse(curves, points, spec) -> DirectionalTraverse", &format!("Axial velocities of a traverse with a 3-D probe by US EPA Method 2F: the yaw from nulling (less the device offset), the pitch from the pitch ratio on the probe's curves, F2 at that pitch, v_a per point, their average and the wet and dry flows at 20 °C, 760 mmHg, with the method's checks. {spec_doc}"))
-            .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03]);\nlet t = table_from(#{yaw: [4.0, -3.0, 6.0], dp: [10.0, 12.0, 11.0], pdp: [1.0, -0.5, 0.2], ts: [150.0, 151.0, 150.0]}).units(#{dp: \"mmH2O\", pdp: \"mmH2O\", ts: \"degC\"});\nprint(method2f_traverse(c, t, #{columns: #{yaw: \"yaw\", dp: \"dp\", pitch_dp: \"pdp\", stack_temperature: \"ts\"}, barometric: 760.mmHg, static_pressure: -25.mmH2O, co2: 12, o2: 6, n2_co: 82, moisture: 0.1, diameter: 1.5.m}));")
+            .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03], #{probe_id: \"3D-11\", date: \"2026-08-30\"});\nlet t = table_from(#{yaw: [4.0, -3.0, 6.0], dp: [10.0, 12.0, 11.0], pdp: [1.0, -0.5, 0.2], ts: [150.0, 151.0, 150.0]}).units(#{dp: \"mmH2O\", pdp: \"mmH2O\", ts: \"degC\"});\nprint(method2f_traverse(c, t, #{columns: #{yaw: \"yaw\", dp: \"dp\", pitch_dp: \"pdp\", stack_temperature: \"ts\"}, barometric: 760.mmHg, static_pressure: -25.mmH2O, co2: 12, o2: 6, n2_co: 82, moisture: 0.1, diameter: 1.5.m}));")
             .source("US EPA Method 2F (40 CFR 60 App. A-1): §1.1 and nomenclature read in the text; velocity equation form from memory"),
-        |c: PitchCurves, t: Tbl, s: Map| -> Res<Directional> { directional_traverse(DirectionalProbe::ThreeD(c), &t, &s, "method2f_traverse") },
+        |c: Curves, t: Tbl, s: Map| -> Res<Directional> { directional_traverse(DirectionalProbe::ThreeD(c.curves), &t, &s, "method2f_traverse") },
     );
     r.func(
         "method2g_traverse",

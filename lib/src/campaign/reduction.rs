@@ -606,6 +606,16 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             None => 1.0,
         },
     };
+    if spec.flow.wall_factor.is_some() && !matches!(spec.averaging, Averaging::Arithmetic) {
+        return Err(Error::Inconsistent {
+            context: "campaign",
+            message:
+                "a wall adjustment factor (US EPA Method 2H) corrects the arithmetic mean of equal-area points for \
+                      the wall; with an integration that has its own wall zone the wall would be corrected twice. Use \
+                      averaging: \"arithmetic\" with the factor, or the integration without it"
+                    .into(),
+        });
+    }
     if !matches!(spec.averaging, Averaging::Arithmetic) && kernel.pos.is_none() {
         return Err(Error::Inconsistent { context: "campaign", message: "integration needs a position column".into() });
     }
@@ -869,6 +879,17 @@ mod tests {
             e.to_string().contains("missing column 'fluid_temp_c' (fluid temperature); columns present: traverse"),
             "{e}"
         );
+    }
+
+    // US EPA Method 2H corrects the arithmetic equal-area mean; refused on top of a wall-zone integration.
+    #[test]
+    fn wall_factor_with_a_wall_zone_integration_is_refused() {
+        let mut spec = air_spec();
+        spec.averaging = Averaging::Integrate { wall_exponent: 7.0 };
+        spec.flow.wall_factor = Some(crate::section::flow::WallFactor::EpaOtherStacks);
+        let df = frame(vec![1; 4], vec![20.0, 30.0, 31.0, 21.0], vec![18.0; 4], EA4.to_vec());
+        let e = reduce_campaign(&df, &spec).unwrap_err();
+        assert!(e.to_string().contains("corrected twice"), "{e}");
     }
 
     // Reference and dry-basis flows follow crate::section::flow::flow (tested against the EPA worked

@@ -2,8 +2,10 @@
 //!
 //! Reads tables of readings (CSV, Parquet, spreadsheets) and writes them atomically
 //! ([`table`]), draws charts of profiles, trends, budgets and layouts as SVG or PNG
-//! ([`plot`]) and shows the library's main types in Rust notebooks ([`evcxr`]).
+//! ([`plot`]), shows the library's main types in Rust notebooks ([`evcxr`]) and reads
+//! and writes the record files behind coefficients ([`record`]).
 
 pub mod evcxr;
 pub mod plot;
+pub mod record;
 pub mod table;

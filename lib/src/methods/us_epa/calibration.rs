@@ -24,6 +24,7 @@ use serde::{Deserialize, Serialize};
 
 use super::check::{Citation, MethodCheck};
 use crate::error::{Error, Result, Warning, finite, positive, within};
+use crate::io::record::{self, Header};
 
 const CONTEXT: &str = "S-type calibration";
 /// Fewest readings per side that Method 2 §10.1.3 asks for (from memory).
@@ -175,26 +176,7 @@ pub struct CalibrationRecord {
     pub side_b: Vec<CalibrationPair>,
 }
 
-/// A calendar date from `YYYY-MM-DD`, as days since 1970-01-01.
-pub fn days_from_iso_date(s: &str) -> Option<i64> {
-    let mut it = s.trim().splitn(3, '-');
-    let y: i64 = it.next()?.parse().ok()?;
-    let m: i64 = it.next()?.parse().ok()?;
-    let d: i64 = it.next()?.parse().ok()?;
-    let leap = (y % 4 == 0 && y % 100 != 0) || y % 400 == 0;
-    let month_len = [31, if leap { 29 } else { 28 }, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31];
-    if !(1..=12).contains(&m) || d < 1 || d > month_len[(m - 1) as usize] || !(1900..=9999).contains(&y) {
-        return None;
-    }
-    // Days from civil (H. Hinnant's algorithm, public domain).
-    let y = if m <= 2 { y - 1 } else { y };
-    let era = y.div_euclid(400);
-    let yoe = y - era * 400;
-    let mp = (m + 9) % 12;
-    let doy = (153 * mp + 2) / 5 + d - 1;
-    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    Some(era * 146_097 + doe - 719_468)
-}
+pub use crate::io::record::days_from_iso_date;
 
 impl CalibrationRecord {
     /// A record of a calibration, checked (date format, readings, coefficient).
@@ -224,33 +206,11 @@ impl CalibrationRecord {
     }
 
     fn validate(&self) -> Result<()> {
-        if self.format != RECORD_FORMAT {
-            return Err(Error::Inconsistent {
-                context: CONTEXT,
-                message: format!("format is '{}', expected '{RECORD_FORMAT}'", self.format),
-            });
-        }
-        if self.version > RECORD_VERSION {
-            return Err(Error::Inconsistent {
-                context: CONTEXT,
-                message: format!(
-                    "record version {} was written by a newer Stagna (this one reads up to {RECORD_VERSION}); update Stagna",
-                    self.version
-                ),
-            });
-        }
-        if self.version == 0 {
-            return Err(Error::Inconsistent { context: CONTEXT, message: "version must be 1 or more".into() });
-        }
-        if self.probe_id.trim().is_empty() {
-            return Err(Error::Inconsistent { context: CONTEXT, message: "probe_id is empty: name the tube".into() });
-        }
-        if days_from_iso_date(&self.date).is_none() {
-            return Err(Error::Inconsistent {
-                context: CONTEXT,
-                message: format!("date '{}' is not a calendar date written YYYY-MM-DD", self.date),
-            });
-        }
+        Header { format: &self.format, version: self.version, id: &self.probe_id, date: &self.date }.check(
+            CONTEXT,
+            RECORD_FORMAT,
+            RECORD_VERSION,
+        )?;
         if let Some(u) = self.u_cp {
             finite(CONTEXT, "u_cp", u)?;
             within(CONTEXT, "u_cp (standard uncertainty of C_p)", u, "", 0.0, 0.2)?;
@@ -272,20 +232,18 @@ impl CalibrationRecord {
     /// The record as TOML text, with a header comment of the derived figures.
     pub fn to_toml(&self) -> Result<String> {
         let c = self.calibration()?;
-        let body = toml::to_string(self)
-            .map_err(|e| Error::Inconsistent { context: CONTEXT, message: format!("cannot write record: {e}") })?;
         let mut head = format!(
-            "# S-type pitot calibration record (Stagna format {RECORD_FORMAT}, version {RECORD_VERSION}).\n\
-             # Figures below are recomputed from the readings whenever the file is loaded:\n\
-             #   C_p(A) = {:.4}, C_p(B) = {:.4}, C_p = {:.4}\n",
+            "S-type pitot calibration record (Stagna format {RECORD_FORMAT}, version {RECORD_VERSION}).\n\
+             Figures below are recomputed from the readings whenever the file is loaded:\n  \
+             C_p(A) = {:.4}, C_p(B) = {:.4}, C_p = {:.4}\n",
             c.cp_a,
             c.cp_b,
             c.cp()
         );
         for k in &c.checks {
-            head.push_str(&format!("#   {k}\n"));
+            head.push_str(&format!("  {k}\n"));
         }
-        Ok(format!("{head}\n{body}"))
+        record::to_toml(self, &head, CONTEXT)
     }
 
     /// Warnings every result that uses this calibration must carry: failed acceptance
@@ -408,11 +366,6 @@ mod tests {
 
     #[test]
     fn dates_and_age_warnings() {
-        // 2026-12-03 is day 20 790 since 1970-01-01 (Python: date(2026,12,3) - date(1970,1,1)).
-        assert_eq!(days_from_iso_date("2026-12-03"), Some(20_790));
-        assert_eq!(days_from_iso_date("1970-01-01"), Some(0));
-        assert_eq!(days_from_iso_date("2024-02-29"), Some(19_782));
-        assert_eq!(days_from_iso_date("2023-02-29"), None);
         let c = STypeCalibration::new(0.99, vec![pair(12.0, 16.8); 3], vec![pair(12.0, 16.9); 3]).unwrap();
         let r = CalibrationRecord::new("SP-07", "2026-06-01", &c).unwrap();
         let today = days_from_iso_date("2026-12-03").unwrap();

@@ -23,9 +23,12 @@
 //! memory: the form of the velocity equations (F2 under the root), the averaging of
 //! v_a(i), and the 2° limit on R_ADO; printed checks say so.
 
+use serde::{Deserialize, Serialize};
+
 use super::KP_METRIC;
 use super::check::{Citation, MethodCheck};
 use crate::error::{Error, Result, finite, positive, within};
+use crate::io::record::{self, Header};
 
 const CONTEXT: &str = "EPA Method 2F/2G";
 /// 20 ft/s in m/s (Method 2F §1.1; 1 ft = 0.3048 m exactly).
@@ -109,6 +112,98 @@ impl PitchCurves {
     /// F2 at a pitch angle, by linear interpolation within the calibrated angles.
     pub fn f2_at(&self, pitch_deg: f64) -> f64 {
         interpolate(&self.pitch_deg, &self.f2, pitch_deg)
+    }
+}
+
+/// Name written in the `format` key of a 3-D probe calibration record.
+pub const CURVES_FORMAT: &str = "stagna-3d-probe-calibration";
+/// Newest version of that record this build reads and the one it writes.
+pub const CURVES_VERSION: u32 = 1;
+
+/// One calibrated pitch angle of a 3-D probe.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PitchPoint {
+    /// Pitch angle, degrees.
+    pub pitch_deg: f64,
+    /// Pitch ratio F1 at that angle.
+    pub f1: f64,
+    /// Velocity coefficient F2 at that angle.
+    pub f2: f64,
+}
+
+/// A 3-D probe's calibration curves as kept on file (Stagna's own format, `docs/records.md`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PitchCurvesRecord {
+    /// Always [`CURVES_FORMAT`].
+    pub format: String,
+    /// Record version ([`CURVES_VERSION`]).
+    pub version: u32,
+    /// The probe's identifier.
+    pub probe_id: String,
+    /// Calibration date, `YYYY-MM-DD`.
+    pub date: String,
+    /// Who calibrated, where, with what: free text.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub performed_by: String,
+    /// Free-text remarks.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub note: String,
+    /// The calibrated angles, increasing.
+    pub points: Vec<PitchPoint>,
+}
+
+impl PitchCurvesRecord {
+    /// A record of curves, checked.
+    pub fn new(probe_id: &str, date: &str, curves: &PitchCurves) -> Result<Self> {
+        let points = (0..curves.pitch_deg.len())
+            .map(|i| PitchPoint { pitch_deg: curves.pitch_deg[i], f1: curves.f1[i], f2: curves.f2[i] })
+            .collect();
+        let r = Self {
+            format: CURVES_FORMAT.into(),
+            version: CURVES_VERSION,
+            probe_id: probe_id.trim().into(),
+            date: date.trim().into(),
+            performed_by: String::new(),
+            note: String::new(),
+            points,
+        };
+        r.curves()?;
+        Ok(r)
+    }
+
+    /// Checks the header and the curves.
+    pub fn curves(&self) -> Result<PitchCurves> {
+        Header { format: &self.format, version: self.version, id: &self.probe_id, date: &self.date }.check(
+            "3-D probe calibration",
+            CURVES_FORMAT,
+            CURVES_VERSION,
+        )?;
+        PitchCurves::new(
+            self.points.iter().map(|p| p.pitch_deg).collect(),
+            self.points.iter().map(|p| p.f1).collect(),
+            self.points.iter().map(|p| p.f2).collect(),
+        )
+    }
+
+    /// Reads a record from TOML; `origin` (a path) prefixes every message.
+    pub fn from_toml(text: &str, origin: &str) -> Result<Self> {
+        let r: Self = record::from_toml(text, origin)?;
+        r.curves().map_err(|e| Error::File { path: origin.into(), message: e.to_string() })?;
+        Ok(r)
+    }
+
+    /// The record as TOML text.
+    pub fn to_toml(&self) -> Result<String> {
+        self.curves()?;
+        record::to_toml(
+            self,
+            &format!(
+                "3-D probe calibration curves (Stagna format {CURVES_FORMAT}, version {CURVES_VERSION}): F1 and F2 against pitch angle."
+            ),
+            "3-D probe calibration",
+        )
     }
 }
 
@@ -340,6 +435,19 @@ mod tests {
         let t = axial_velocities(&DirectionalProbe::ThreeD(curves()), &[slow], 2.5, 760.0, 29.0).unwrap();
         assert!(t.mean_axial_velocity < MIN_VELOCITY_2F);
         assert!(!t.checks[0].pass && !t.checks[1].pass);
+    }
+
+    #[test]
+    fn curves_record_round_trip_and_errors() {
+        let r = PitchCurvesRecord::new("3D-11", "2026-08-30", &curves()).unwrap();
+        let text = r.to_toml().unwrap();
+        assert_eq!(PitchCurvesRecord::from_toml(&text, "c.toml").unwrap(), r);
+        let e = PitchCurvesRecord::from_toml(&text.replace("f2 = 1.0\n", "f2 = -1.0\n"), "c.toml").unwrap_err();
+        assert!(e.to_string().starts_with("c.toml: ") && e.to_string().contains("F2"), "{e}");
+        let e = PitchCurvesRecord::from_toml(&text.replace("version = 1", "version = 3"), "c.toml").unwrap_err();
+        assert!(e.to_string().contains("newer Stagna"), "{e}");
+        let e = PitchCurvesRecord::from_toml(&text.replace("pitch_deg = 0.0", "pitch = 0.0"), "c.toml").unwrap_err();
+        assert!(e.to_string().contains("line") && e.to_string().contains("pitch"), "{e}");
     }
 
     #[test]
