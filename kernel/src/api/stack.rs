@@ -49,6 +49,12 @@ fn read_record(prefs: &SharedPrefs, path: &str) -> Res<String> {
     std::fs::read_to_string(&file).map_err(|e| rt(format!("{path}: cannot read: {e}")))
 }
 
+/// Writes a record's text into the session's output folder, atomically.
+fn write_record(prefs: &SharedPrefs, path: &str, text: &str) -> Res<()> {
+    let target = out_path(prefs, path)?;
+    lib(stagna::io::table::write_atomically(&target, |f| std::io::Write::write_all(f, text.as_bytes())))
+}
+
 /// Today as days since 1970-01-01 (UTC).
 fn today_days() -> i64 {
     let s = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default().as_secs();
@@ -165,11 +171,7 @@ fn calibrations(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("cal.save(path)", "Saves the calibration record as a TOML file (Stagna's own versioned format, `docs/records.md`) through a temporary file and a rename; the derived figures go in a header comment and are recomputed from the readings whenever the file is loaded.")
             .example("let cal = s_type_calibration(0.99, [[12.0, 16.8], [10.0, 14.1], [15.0, 21.0]], [[12.0, 16.9], [10.0, 14.0], [15.0, 21.1]], #{probe_id: \"SP-07\", date: \"2026-10-14\"});\ncal.save(\"sp07-example.toml\");")
             .source("Stagna record format stagna-s-type-calibration, version 1"),
-        move |c: &mut Calibration, path: &str| -> Res<()> {
-            let target = out_path(&pp, path)?;
-            let text = lib(c.record.to_toml())?;
-            lib(stagna::io::table::write_atomically(&target, |f| std::io::Write::write_all(f, text.as_bytes())))
-        },
+        move |c: &mut Calibration, path: &str| -> Res<()> { write_record(&pp, path, &lib(c.record.to_toml())?) },
     );
     r.func(
         "demo_calibration",
@@ -912,11 +914,7 @@ fn directional_probes(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("curves.save(path)", "Saves the 3-D probe's calibration curves as a TOML record (Stagna's own versioned format, `docs/records.md`) through a temporary file and a rename.")
             .example("let c = pitch_curves([-10, 0, 10], [0.40, 0.0, -0.38], [1.02, 1.00, 1.03], #{probe_id: \"3D-11\", date: \"2026-08-30\"});\nc.save(\"3d-11-example.toml\");")
             .source("Stagna record format stagna-3d-probe-calibration, version 1"),
-        move |c: &mut Curves, path: &str| -> Res<()> {
-            let target = out_path(&pp, path)?;
-            let text = lib(c.record.to_toml())?;
-            lib(stagna::io::table::write_atomically(&target, |f| std::io::Write::write_all(f, text.as_bytes())))
-        },
+        move |c: &mut Curves, path: &str| -> Res<()> { write_record(&pp, path, &lib(c.record.to_toml())?) },
     );
     let pl = prefs.clone();
     r.func(

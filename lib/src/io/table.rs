@@ -500,16 +500,21 @@ pub fn write_table_with_units(df: &DataFrame, path: &Path, units: &BTreeMap<Stri
     }
 }
 
-/// A column of `df` as text (numbers written out; a missing value is an error naming
-/// its row).
-pub fn text_column(df: &DataFrame, name: &str) -> Result<Vec<String>> {
-    let col = df.column(name).map_err(|_| Error::Column {
+/// The column `name` of `df`, or an error listing the columns there are.
+fn find_column<'a>(df: &'a DataFrame, name: &str) -> Result<&'a Column> {
+    df.column(name).map_err(|_| Error::Column {
         column: name.to_string(),
         message: format!(
             "no such column; the table has: {}",
             df.get_column_names().iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
         ),
-    })?;
+    })
+}
+
+/// A column of `df` as text (numbers written out; a missing value is an error naming
+/// its row).
+pub fn text_column(df: &DataFrame, name: &str) -> Result<Vec<String>> {
+    let col = find_column(df, name)?;
     let s =
         col.cast(&DataType::String).map_err(|e| Error::Column { column: name.to_string(), message: e.to_string() })?;
     let ca = s.str().map_err(|e| Error::Column { column: name.to_string(), message: e.to_string() })?;
@@ -526,13 +531,7 @@ pub fn text_column(df: &DataFrame, name: &str) -> Result<Vec<String>> {
 
 /// A float column of `df` as a contiguous vector (integers converted, nulls as NaN).
 pub fn float_column(df: &DataFrame, name: &str) -> Result<Vec<f64>> {
-    let col = df.column(name).map_err(|_| Error::Column {
-        column: name.to_string(),
-        message: format!(
-            "no such column; the table has: {}",
-            df.get_column_names().iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
-        ),
-    })?;
+    let col = find_column(df, name)?;
     if !col.dtype().is_primitive_numeric() {
         return Err(Error::Column {
             column: name.to_string(),
