@@ -55,6 +55,21 @@ fn write_record(prefs: &SharedPrefs, path: &str, text: &str) -> Res<()> {
     lib(stagna::io::table::write_atomically(&target, |f| std::io::Write::write_all(f, text.as_bytes())))
 }
 
+/// The section's area (m²) and, for a circular stack, its diameter (m), from `diameter`
+/// or `area` in a spec.
+fn section_of(s: &Map, what: &str) -> Res<(f64, Option<f64>)> {
+    match (field(s, "diameter"), field(s, "area")) {
+        (Some(d), None) => {
+            let d = length(d, "diameter")?.si();
+            Ok((std::f64::consts::PI * d * d / 4.0, Some(d)))
+        }
+        (None, Some(a)) => Ok((si_of(a, D::AREA, "area")?, None)),
+        _ => {
+            Err(rt(format!("{what}: give the stack's diameter (circular) or its area (other shapes), one of the two")))
+        }
+    }
+}
+
 /// Today as days since 1970-01-01 (UTC).
 fn today_days() -> i64 {
     let s = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default().as_secs();
@@ -585,14 +600,7 @@ fn stack_run(inp: &RunInputs, run: &str, dp: Vec<f64>, ts: Vec<f64>, yaw: Vec<f6
     } else {
         return Err(rt(format!("run {run}: give calibration (an SCalibration) or probe (s_type(C_p))")));
     };
-    let (area, diameter) = match (field(s, "diameter"), field(s, "area")) {
-        (Some(d), None) => {
-            let d = length(d, "diameter")?.si();
-            (std::f64::consts::PI * d * d / 4.0, Some(d))
-        }
-        (None, Some(a)) => (si_of(a, D::AREA, "area")?, None),
-        _ => return Err(rt("give the stack's diameter (circular) or its area (other shapes), not both")),
-    };
+    let (area, diameter) = section_of(s, "method2_run")?;
     let wall = field(s, "wall").map(|w| text(w, "wall").and_then(|w| lib(Construction::parse(&w)))).transpose()?;
     let report = match field(s, "report").map(|d| text(d, "report")).transpose()?.as_deref() {
         None | Some("method") => Route::Method,
@@ -855,14 +863,7 @@ fn directional_traverse(probe: DirectionalProbe, t: &Tbl, s: &Map, what: &str) -
         .collect();
     let (p_s, m_s, bws) = gas_of(s).map_err(|e| rt(format!("{what}: {e}")))?;
     let rado = field(s, "rado").map(|d| number(d, "rado")).transpose()?.unwrap_or(0.0);
-    let area = match (field(s, "diameter"), field(s, "area")) {
-        (Some(d), None) => {
-            let d = length(d, "diameter")?.si();
-            std::f64::consts::PI * d * d / 4.0
-        }
-        (None, Some(a)) => si_of(a, D::AREA, "area")?,
-        _ => return Err(rt(format!("{what}: give the stack's diameter or its area, not both"))),
-    };
+    let area = section_of(s, what)?.0;
     let tr = lib(directional::axial_velocities(&probe, &points, rado, p_s, m_s))?;
     Ok(Directional { t: tr, p_s, m_s, bws, area })
 }
