@@ -556,25 +556,15 @@ pub fn run_sheet(r: &StackRun) -> Result<RunSheet> {
             "US EPA Method 2H",
         ));
     }
-    lines.push(line(
-        "result (method)",
-        "Q_s",
-        "actual wet flow, 3600 v_s A",
-        qs_m,
-        "m³/h",
-        0,
-        "definition (actual conditions)",
-    ));
-    lines.push(line(
-        "result (method)",
-        "Q_sd",
-        "dry flow at 20 °C, 760 mmHg",
-        qsd_m,
-        "dscm/h",
-        0,
-        "US EPA Method 2, eq. 2-10",
-    ));
-    lines.push(line("result (physics)", "Q_s", "actual wet flow", qs_p, "m³/h", 0, "Q = v̄ A"));
+    let (qs_text, qsd_source) = if waf != 1.0 {
+        ("actual wet flow, 3600 WAF v_s A", "US EPA Method 2, eq. 2-10, with v_s,adj (Method 2H)")
+    } else {
+        ("actual wet flow, 3600 v_s A", "US EPA Method 2, eq. 2-10")
+    };
+    lines.push(line("result (method)", "Q_s", qs_text, qs_m, "m³/h", 0, "definition (actual conditions)"));
+    lines.push(line("result (method)", "Q_sd", "dry flow at 20 °C, 760 mmHg", qsd_m, "dscm/h", 0, qsd_source));
+    let qs_p_source = if waf != 1.0 { "Q = WAF v̄ A" } else { "Q = v̄ A" };
+    lines.push(line("result (physics)", "Q_s", "actual wet flow", qs_p, "m³/h", 0, qs_p_source));
     lines.push(line(
         "result (physics)",
         "Q_sd",
