@@ -29,7 +29,7 @@ use std::fmt::Write as _;
 use polars::prelude::*;
 
 use super::calibration::CalibrationRecord;
-use super::check::MethodCheck;
+use super::check::{Citation, MethodCheck};
 use super::moisture::{LeakCheck, MoistureResult, MoistureTrain, StackConditions};
 use super::site_checks::{Averaging, Construction, cyclonic_flow, default_wall_factor, gauge_sensitivity};
 use super::{KP_METRIC, MethodUnits, dry_molecular_weight, mean_sqrt_dp, stack_pressure, wet_molecular_weight};
@@ -596,12 +596,30 @@ pub fn run_sheet(r: &StackRun) -> Result<RunSheet> {
     } else {
         checks.push(cyclonic_flow(&r.yaw_deg)?);
     }
-    if let Some(d) = r.diameter_m
-        && d < 0.30
-    {
-        warnings.push(Warning::new("method-1-size", format!(
-            "the stack is {d:.3} m across: Method 1 does not apply below 0.30 m; Method 1A covers small stacks (Method 1 §1.2, as read in check-values.md §5.1)")));
-    }
+    // Method 1 §1.2: not below 0.30 m across or 0.071 m² (read in the text, check-values.md §5.1).
+    let size_check = match r.diameter_m {
+        Some(d) => MethodCheck {
+            name: "stack diameter for Method 1".into(),
+            value: d,
+            unit: "m",
+            decimals: 2,
+            limit: "≥ 0.30 m, else Method 1A (small stacks)".into(),
+            pass: d >= 0.30,
+            source: "US EPA Method 1 §1.2",
+            citation: Citation::Verified,
+        },
+        None => MethodCheck {
+            name: "stack area for Method 1".into(),
+            value: r.area_m2,
+            unit: "m²",
+            decimals: 3,
+            limit: "≥ 0.071 m², else Method 1A (small ducts)".into(),
+            pass: r.area_m2 >= 0.071,
+            source: "US EPA Method 1 §1.2",
+            citation: Citation::Verified,
+        },
+    };
+    checks.push(size_check);
     // Inputs first, then intermediate values and results (stable within a group).
     let rank = |g: &str| GROUPS.iter().position(|x| *x == g).unwrap_or(GROUPS.len());
     lines.sort_by_key(|l| rank(l.group));
@@ -820,6 +838,20 @@ mod tests {
         assert!(!sh.passed(), "side difference > 0.01 must fail");
         assert!(sh.warnings.iter().any(|w| w.kind == "calibration-age"));
         assert!(sh.warnings.iter().any(|w| w.kind == "calibration-check"));
+    }
+
+    // Method 1 §1.2 (check-values.md §5.1, read in the text): 0.30 m; 0.071 m² for other shapes.
+    #[test]
+    fn method_1_size_limit_on_both_sides() {
+        let mut r = run();
+        r.diameter_m = Some(0.30);
+        r.area_m2 = std::f64::consts::PI * 0.09 / 4.0;
+        assert!(run_sheet(&r).unwrap().checks.iter().any(|c| c.name == "stack diameter for Method 1" && c.pass));
+        r.diameter_m = Some(0.29);
+        assert!(run_sheet(&r).unwrap().checks.iter().any(|c| c.name == "stack diameter for Method 1" && !c.pass));
+        r.diameter_m = None;
+        r.area_m2 = 0.07;
+        assert!(run_sheet(&r).unwrap().checks.iter().any(|c| c.name == "stack area for Method 1" && !c.pass));
     }
 
     #[test]
