@@ -293,6 +293,14 @@ const CASES: &[(&str, &[&str])] = &[
         &[r##"below 1.0 m"##, r##"method 2h"##],
     ),
     (r##"load_calibration("no-such-calibration.toml")"##, &[r##"no-such-calibration.toml"##, r##"cannot read"##]),
+    (
+        r##"let t = table_from(#{tr: ["T1","T1","T1","T1"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0]}).units(#{h: "mm", t: "degC", d: "mm"}); reduce_campaign(t, #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0), columns: #{traverse: "tr", deflection: "h", fluid_temperature: "t", size: "d"}, runs: table_from(#{run: ["T1"], p: [100.0]})})"##,
+        &[r##"needs the traverse column 'tr'"##],
+    ),
+    (
+        r##"let t = table_from(#{tr: ["T1","T1","T1","T1"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0]}).units(#{h: "mm", t: "degC", d: "mm"}); reduce_campaign(t, #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0), columns: #{traverse: "tr", deflection: "h", fluid_temperature: "t", size: "d"}, runs: table_from(#{tr: ["T1"], static_pressure: [100.0], barometric: [101.0]}).units(#{static_pressure: "kPa", barometric: "kPa"})})"##,
+        &[r##"absolute static_pressure, or barometric with static_gauge, not both"##],
+    ),
 ];
 
 fn tempdir(tag: &str) -> PathBuf {

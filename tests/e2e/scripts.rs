@@ -100,6 +100,22 @@ fn stack_test_by_the_methods_equations() {
     assert!((printed - v).abs() < 0.01, "v_s {printed} vs {v}");
     // Method 2H default for a steel stack, 0.9950 (Method 2H §2.2.2, read in the text).
     assert!((number_after(r2, "v_s,adj") - 0.995 * v).abs() < 0.01, "{r2}");
+    // The campaign path with each run's conditions (runs table) against the sheet's physics
+    // route for R2: the same physics by two code paths (the sheet's Q_sd includes the 0.995
+    // wall factor, the campaign does not), within 0.1 %.
+    let row = out.lines().find(|l| l.starts_with("│ R2")).expect("campaign row for R2");
+    let q_campaign = row
+        .split('┆')
+        .nth(3)
+        .and_then(|c| c.trim().trim_end_matches('│').trim().parse::<f64>().ok())
+        .expect("dry flow");
+    let physics = r2
+        .lines()
+        .filter(|l| l.trim_start().starts_with("Q_sd"))
+        .nth(1)
+        .map(|l| number_after(l, "Q_sd"))
+        .expect("physics Q_sd");
+    assert!((q_campaign * 3600.0 / (physics / 0.995) - 1.0).abs() < 1e-3, "{q_campaign} m³/s vs {physics} dscm/h");
     let csv = std::fs::read_to_string(dir.join("stack-run-sheets.csv")).unwrap_or_default();
     assert!(csv.starts_with("run,group,symbol,quantity,value,unit,verdict,source"), "{csv}");
     assert!(csv.contains("R3,reported,Q_sd,"), "{csv}");

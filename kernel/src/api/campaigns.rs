@@ -37,6 +37,8 @@ fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
             "moisture",
             "wall_factor",
             "uncertainty",
+            "runs",
+            "run_columns",
         ],
         "campaign",
     )?;
@@ -71,7 +73,114 @@ fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
     }
     let flow = flow_options(&fo)?;
     let uncertainty = campaign_uncertainty(o)?;
-    Ok(CampaignSpec { columns, fluid, static_pressure, manometer, probe, averaging, min_points, flow, uncertainty })
+    let conditions = match field(o, "runs") {
+        Some(r) => {
+            let runs: Tbl =
+                r.clone().try_cast().ok_or_else(|| rt("campaign: 'runs' must be a table (one row per traverse)"))?;
+            Some(traverse_conditions(&runs, o, &columns.traverse, &fluid, static_pressure, flow.moisture)?)
+        }
+        None if field(o, "run_columns").is_some() => {
+            return Err(rt("campaign: 'run_columns' goes with a 'runs' table"));
+        }
+        None => None,
+    };
+    Ok(CampaignSpec {
+        columns,
+        fluid,
+        static_pressure,
+        manometer,
+        probe,
+        averaging,
+        min_points,
+        flow,
+        uncertainty,
+        conditions,
+    })
+}
+
+/// Per-traverse conditions from a runs table: one row per traverse, keyed by a column of
+/// the same name as the campaign's traverse column. Columns (named as `run_columns` maps
+/// them, else by the key): static_pressure (absolute), or barometric with static_gauge;
+/// co2, o2, co (%, dry; a stack gas of that analysis); moisture (B_ws). What a row does not
+/// give comes from the campaign's constants.
+fn traverse_conditions(
+    runs: &Tbl,
+    o: &Map,
+    key_col: &str,
+    fluid: &Fluid,
+    static_pressure: Pressure,
+    moisture: Option<f64>,
+) -> Res<stagna::campaign::TraverseConditions> {
+    const KEYS: [&str; 7] = ["static_pressure", "barometric", "static_gauge", "co2", "o2", "co", "moisture"];
+    let names: Map = match field(o, "run_columns") {
+        Some(m) => m.clone().try_cast().ok_or_else(|| rt("campaign: 'run_columns' must be a map"))?,
+        None => Map::new(),
+    };
+    check_keys(&names, &KEYS, "campaign run_columns")?;
+    let has = |c: &str| runs.df.get_column_names().iter().any(|n| n.as_str() == c);
+    let col_of = |k: &str| -> Res<Option<Col>> {
+        let name = field(&names, k).map(|d| text(d, k)).transpose()?.unwrap_or_else(|| k.to_string());
+        if has(&name) { runs.column(&name).map(Some) } else { Ok(None) }
+    };
+    let cols: Vec<Option<Col>> = KEYS.iter().map(|k| col_of(k)).collect::<Res<_>>()?;
+    let [sp, bar, gauge, co2, o2, co, bws] =
+        <[Option<Col>; 7]>::try_from(cols).map_err(|_| rt("campaign: runs columns"))?;
+    for (c, dim, what) in [
+        (&sp, D::PRESSURE, "static_pressure"),
+        (&bar, D::PRESSURE, "barometric"),
+        (&gauge, D::PRESSURE, "static_gauge"),
+    ] {
+        if let Some(c) = c
+            && c.dimension != D::PRESSURE
+        {
+            return Err(rt(format!(
+                "campaign runs: column '{}' ({what}) must hold a {} (declare its unit)",
+                c.name,
+                dim.name().unwrap_or("pressure")
+            )));
+        }
+    }
+    if sp.is_some() && (bar.is_some() || gauge.is_some()) {
+        return Err(rt("campaign runs: give the absolute static_pressure, or barometric with static_gauge, not both"));
+    }
+    let keys = lib(stagna::io::table::text_column(&runs.df, key_col))
+        .map_err(|e| rt(format!("campaign runs: the runs table needs the traverse column '{key_col}': {e}")))?;
+    let at = |c: &Option<Col>, i: usize, what: &str| -> Res<Option<f64>> {
+        match c {
+            Some(c) if !c.si[i].is_finite() => {
+                Err(rt(format!("campaign runs: row {} ({}): {what} is missing", i + 1, keys[i])))
+            }
+            Some(c) => Ok(Some(c.si[i])),
+            None => Ok(None),
+        }
+    };
+    let (mut p, mut fl, mut m) = (Vec::new(), Vec::new(), Vec::new());
+    for (i, key) in keys.iter().enumerate() {
+        let pressure =
+            match (at(&sp, i, "static_pressure")?, at(&bar, i, "barometric")?, at(&gauge, i, "static_gauge")?) {
+                (Some(p), ..) => p,
+                (None, Some(b), g) => b + g.unwrap_or(0.0),
+                (None, None, Some(g)) => static_pressure.si() + g,
+                (None, None, None) => static_pressure.si(),
+            };
+        let b = at(&bws, i, "moisture")?.or(moisture);
+        let f = match at(&co2, i, "co2")? {
+            Some(c) => Fluid::Gas(
+                lib(GasMixture::flue_gas(
+                    c,
+                    at(&o2, i, "o2")?.unwrap_or(0.0),
+                    at(&co, i, "co")?.unwrap_or(0.0),
+                    b.unwrap_or(0.0),
+                ))
+                .map_err(|e| rt(format!("campaign runs: row {} ({key}): {e}", i + 1)))?,
+            ),
+            None => fluid.clone(),
+        };
+        p.push(pressure);
+        fl.push(f);
+        m.push(b);
+    }
+    lib(stagna::campaign::TraverseConditions::new(keys, p, fl, m))
 }
 
 /// The `columns` map of a campaign spec: which table column holds what, each checked
@@ -187,7 +296,7 @@ fn reductions(r: &mut Registrar<'_>) {
     r.func(
         "reduce_campaign",
         &Doc::new("reduce_campaign(table, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced.")
-            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{coefficient, density, diameter, dp_rel, dp_abs, coverage, rule}")
+            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{coefficient, density, diameter, dp_rel, dp_abs, coverage, rule}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture) with run_columns (key → column name)")
             .returns("Campaign (.traverses table, .failures)")
             .example("let t = table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})\n    .units(#{h: \"mm\", t: \"degC\", d: \"mm\", y: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),\n    columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\", position: \"y\"}};\nprint(reduce_campaign(t, spec).traverses);")
             .source("velocity-area method, ISO 3966:2008 §9–10; point physics as in Manometer.dp and Probe.velocity"),

@@ -47,7 +47,15 @@ fn constructors(r: &mut Registrar<'_>) {
                 .param("coefficient", "probe coefficient from the calibration certificate")
                 .example(&format!("let p = {name}(0.99);\nprint(p.velocity(120.Pa, 1.2.kg_m3));"))
                 .source(src),
-            move |c: Dynamic| -> Res<Probe> { lib(Probe::new(kind, number(&c, "coefficient")?)) },
+            move |c: Dynamic| -> Res<Probe> {
+                if let Some(cal) = c.clone().try_cast::<super::stack::Calibration>() {
+                    if kind != ProbeKind::SType {
+                        return Err(rt(format!("{name}: an S-type calibration record is for s_type(...)")));
+                    }
+                    return lib(Probe::from_calibration(&cal.record, super::stack::today_days(), None));
+                }
+                lib(Probe::new(kind, number(&c, "coefficient")?))
+            },
         );
     }
     r.method(

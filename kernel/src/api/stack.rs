@@ -71,7 +71,7 @@ fn section_of(s: &Map, what: &str) -> Res<(f64, Option<f64>)> {
 }
 
 /// Today as days since 1970-01-01 (UTC).
-fn today_days() -> i64 {
+pub fn today_days() -> i64 {
     let s = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default().as_secs();
     (s / 86_400) as i64
 }

@@ -63,5 +63,6 @@ pub fn spec(min_points: usize) -> stagna::Result<CampaignSpec> {
         min_points,
         flow: Default::default(),
         uncertainty: None,
+        conditions: None,
     })
 }

@@ -92,6 +92,69 @@ pub struct CampaignSpec {
     pub flow: crate::section::flow::FlowOptions,
     /// Per-traverse flow uncertainty by the GUM, if wanted.
     pub uncertainty: Option<CampaignUncertainty>,
+    /// Conditions that change from traverse to traverse (runs on different days or
+    /// loads): they replace `static_pressure`, `fluid` and `flow.moisture` for the
+    /// traverses they name.
+    pub conditions: Option<TraverseConditions>,
+}
+
+/// The static pressure, fluid and moisture of each traverse, by traverse key.
+#[derive(Debug, Clone)]
+pub struct TraverseConditions {
+    /// Key of each traverse, as text (as the traverse column prints it).
+    pub keys: Vec<String>,
+    /// Absolute static pressure at the section, Pa.
+    pub static_pressure_pa: Vec<f64>,
+    /// Working fluid (e.g. a stack gas of that run's analysis and moisture).
+    pub fluid: Vec<Fluid>,
+    /// Water-vapour fraction B_ws for the dry-basis flow, if any.
+    pub moisture: Vec<Option<f64>>,
+}
+
+impl TraverseConditions {
+    /// Checks lengths, pressures and moistures.
+    pub fn new(
+        keys: Vec<String>,
+        static_pressure_pa: Vec<f64>,
+        fluid: Vec<Fluid>,
+        moisture: Vec<Option<f64>>,
+    ) -> Result<Self> {
+        let n = keys.len();
+        if static_pressure_pa.len() != n || fluid.len() != n || moisture.len() != n {
+            return Err(Error::Inconsistent {
+                context: "traverse conditions",
+                message: "one static pressure, fluid and moisture per traverse key".into(),
+            });
+        }
+        for (i, k) in keys.iter().enumerate() {
+            if keys[..i].contains(k) {
+                return Err(Error::Inconsistent {
+                    context: "traverse conditions",
+                    message: format!("traverse {k} is given twice"),
+                });
+            }
+            crate::error::positive("traverse conditions", "absolute static pressure", static_pressure_pa[i], "Pa")
+                .map_err(|e| Error::Inconsistent {
+                    context: "traverse conditions",
+                    message: format!("traverse {k}: {e}"),
+                })?;
+            if let Some(b) = moisture[i] {
+                crate::error::within("traverse conditions", "moisture fraction B_ws", b, "", 0.0, 1.0).map_err(
+                    |e| Error::Inconsistent { context: "traverse conditions", message: format!("traverse {k}: {e}") },
+                )?;
+            }
+        }
+        Ok(Self { keys, static_pressure_pa, fluid, moisture })
+    }
+}
+
+/// The conditions one traverse is reduced under.
+#[derive(Clone, Copy)]
+struct Cond<'a> {
+    p: f64,
+    fluid: &'a Fluid,
+    gamma: Option<f64>,
+    dry: Option<f64>,
 }
 
 /// Relative standard uncertainties for the per-traverse GUM budget of the flow
@@ -262,6 +325,9 @@ struct TraverseOut {
     vmax: f64,
     reversed: u32,
     t_mean: f64,
+    /// Static pressure (Pa) and dry factor 1 − B_ws the traverse was reduced under.
+    p: f64,
+    dry: Option<f64>,
     /// (u, relative u, k, U, ν_eff) of the flow.
     unc: Option<[f64; 5]>,
 }
@@ -274,8 +340,6 @@ struct RowPhysics<'a> {
     defl: SiColumn<'a>,
     temp: SiColumn<'a>,
     gauge_t: Option<SiColumn<'a>>,
-    p: f64,
-    gamma: Option<f64>,
     two_liquid: bool,
 }
 
@@ -300,15 +364,13 @@ impl<'a> RowPhysics<'a> {
             defl: column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?,
             temp: column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?,
             gauge_t: cols.gauge_temperature.as_ref().map(|(n, u)| column(df, n, u, "gauge temperature")).transpose()?,
-            p: spec.static_pressure.si(),
-            gamma: spec.fluid.isentropic_exponent(),
             two_liquid: matches!(spec.manometer.kind(), crate::instruments::manometer::ManometerKind::TwoLiquid { .. }),
         })
     }
 
     /// (Δp in Pa, fluid density in kg/m³, velocity in m/s, fluid temperature in K) of one row.
     #[inline(always)]
-    fn point(&self, row: usize, m: &mut Memos) -> Result<(f64, f64, f64, f64)> {
+    fn point(&self, row: usize, c: &Cond, m: &mut Memos) -> Result<(f64, f64, f64, f64)> {
         let spec = self.spec;
         let h = self.defl.at(row);
         if !h.is_finite() {
@@ -316,7 +378,7 @@ impl<'a> RowPhysics<'a> {
         }
         let t = self.temp.at(row);
         let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
-        let rho_f = m.rho_f.get(t, |t| spec.fluid.density_si(self.p, t))?;
+        let rho_f = m.rho_f.get(t, |t| c.fluid.density_si(c.p, t))?;
         let rho_m = m.rho_m.get(tg, |t| Ok(spec.manometer.liquid().density(crate::Temperature::kelvin(t))?.si()))?;
         let light = if self.two_liquid {
             Some(m.light.get(tg, |t| Ok(spec.manometer.light_density(crate::Temperature::kelvin(t))?.unwrap_or(0.0)))?)
@@ -324,8 +386,8 @@ impl<'a> RowPhysics<'a> {
             None
         };
         let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f)?;
-        let v = match self.gamma {
-            Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, self.p, g),
+        let v = match c.gamma {
+            Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, c.p, g),
             None => incompressible(spec.probe.coefficient, dp, rho_f),
         };
         Ok((dp, rho_f, v, t))
@@ -365,6 +427,7 @@ impl Kernel<'_> {
         rows: impl Iterator<Item = usize> + Clone,
         first: usize,
         sc: &mut Scratch,
+        cond: &Cond,
     ) -> Result<TraverseOut> {
         let spec = self.phys.spec;
         let d = self.dia.at(first);
@@ -390,6 +453,11 @@ impl Kernel<'_> {
         };
         let (mut n, mut sum_v, mut sum_rho, mut vmax, mut reversed, mut sum_t) = (0u32, 0.0, 0.0, f64::MIN, 0u32, 0.0);
         let (mut ordered, mut last_line, mut last_s) = (true, f64::MIN, f64::MIN);
+        if spec.conditions.is_some() {
+            // The density memos are keyed by temperature alone: another traverse's fluid or
+            // pressure must not answer from them.
+            sc.memos = Memos::new();
+        }
         sc.lines.clear();
         sc.pos.clear();
         sc.v.clear();
@@ -406,7 +474,7 @@ impl Kernel<'_> {
                     message: "the conduit size changes within the traverse".into(),
                 }));
             }
-            let (dp, rho_f, v, t) = self.phys.point(row, &mut sc.memos).map_err(at)?;
+            let (dp, rho_f, v, t) = self.phys.point(row, cond, &mut sc.memos).map_err(at)?;
             if spec.uncertainty.is_some() {
                 sc.dps.push(dp);
             }
@@ -545,6 +613,8 @@ impl Kernel<'_> {
             vmax,
             reversed,
             t_mean: sum_t / f64::from(n),
+            p: cond.p,
+            dry: cond.dry,
             unc,
         })
     }
@@ -647,6 +717,18 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         .map(|b| 1.0 - b);
     let key_series = df.column(&cols.traverse).map_err(table_err)?.as_materialized_series().clone();
     let groups = groups(df, &cols.traverse)?;
+    let base = Cond { p: spec.static_pressure.si(), fluid: &spec.fluid, gamma, dry };
+    if let Some(c) = &spec.conditions
+        && c.fluid.iter().any(|f| f.isentropic_exponent().is_some() != gamma.is_some())
+    {
+        return Err(Error::Inconsistent {
+            context: "campaign",
+            message: "per-traverse fluids must all be gases, or all liquids, like the campaign's fluid".into(),
+        });
+    }
+    // The conditions of the traverse whose first row is `first` (the campaign's own
+    // when no per-traverse conditions are given).
+    let cond_of = |first: usize| -> Result<Cond<'_>> { traverse_cond(spec, &key_series, first, &base) };
 
     // One result per traverse, in group order, computed in parallel chunks.
     let results: Vec<(usize, Result<TraverseOut>)> = match &*groups {
@@ -658,7 +740,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
                     .iter()
                     .map(|&[off, len]| {
                         let (off, len) = (off as usize, len as usize);
-                        (off, kernel.traverse(off..off + len, off, &mut sc))
+                        (off, cond_of(off).and_then(|c| kernel.traverse(off..off + len, off, &mut sc, &c)))
                     })
                     .collect::<Vec<_>>()
             })
@@ -673,7 +755,10 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
                     .iter()
                     .zip(alls)
                     .map(|(&first, rows)| {
-                        (first as usize, kernel.traverse(rows.iter().map(|i| *i as usize), first as usize, &mut sc))
+                        let first = first as usize;
+                        let out = cond_of(first)
+                            .and_then(|c| kernel.traverse(rows.iter().map(|i| *i as usize), first, &mut sc, &c));
+                        (first, out)
                     })
                     .collect::<Vec<_>>()
             })
@@ -693,7 +778,6 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             }),
         }
     }
-    let p = kernel.phys.p;
 
     let idx: Vec<IdxSize> = outs.iter().map(|o| o.first_row as IdxSize).collect();
     let keys = key_series.take_slice(&idx).map_err(table_err)?;
@@ -720,15 +804,37 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         }
     }
     if let Some((t_ref, p_ref)) = reference {
-        let q_ref: Vec<f64> = outs.iter().map(|o| o.q * (p / p_ref.si()) * (t_ref.k() / o.t_mean)).collect();
-        if let Some(k) = dry {
-            traverses
-                .with_column(f("dry_reference_flow_m3_s", q_ref.iter().map(|q| q * k).collect()))
-                .map_err(table_err)?;
+        let q_ref: Vec<f64> = outs.iter().map(|o| o.q * (o.p / p_ref.si()) * (t_ref.k() / o.t_mean)).collect();
+        if outs.iter().any(|o| o.dry.is_some()) {
+            let dry_q = q_ref.iter().zip(&outs).map(|(q, o)| o.dry.map_or(f64::NAN, |k| q * k)).collect();
+            traverses.with_column(f("dry_reference_flow_m3_s", dry_q)).map_err(table_err)?;
         }
         traverses.with_column(f("reference_flow_m3_s", q_ref)).map_err(table_err)?;
     }
     Ok(CampaignResult { traverses, failures })
+}
+
+/// The key of the traverse that row `row` belongs to, as text.
+fn key_text(keys: &Series, row: usize) -> String {
+    keys.get(row).map(|v| v.to_string().trim_matches('"').to_string()).unwrap_or_default()
+}
+
+/// The conditions of the traverse holding row `row`.
+fn traverse_cond<'a>(spec: &'a CampaignSpec, keys: &Series, row: usize, base: &Cond<'a>) -> Result<Cond<'a>> {
+    let Some(c) = &spec.conditions else { return Ok(*base) };
+    let key = key_text(keys, row);
+    let Some(i) = c.keys.iter().position(|k| *k == key) else {
+        return Err(Error::Inconsistent {
+            context: "traverse",
+            message: format!("no conditions (static pressure, fluid, moisture) are given for traverse {key}"),
+        });
+    };
+    Ok(Cond {
+        p: c.static_pressure_pa[i],
+        fluid: &c.fluid[i],
+        gamma: c.fluid[i].isentropic_exponent(),
+        dry: c.moisture[i].map(|b| 1.0 - b).or(base.dry),
+    })
 }
 
 /// Per-row Δp, density and velocity as new columns `dp_pa`, `density_kg_m3`,
@@ -738,8 +844,24 @@ pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame
     let n = df.height();
     let (mut dps, mut rhos, mut vs) = (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
     let mut memos = Memos::new();
+    let base =
+        Cond { p: spec.static_pressure.si(), fluid: &spec.fluid, gamma: spec.fluid.isentropic_exponent(), dry: None };
+    let keys = match &spec.conditions {
+        Some(_) => Some(df.column(&spec.columns.traverse).map_err(table_err)?.as_materialized_series().clone()),
+        None => None,
+    };
+    let mut last_key = String::new();
+    let mut cond = base;
     for row in 0..n {
-        let (dp, rho_f, v, _) = phys.point(row, &mut memos).map_err(|e| e.at_row(row))?;
+        if let Some(k) = &keys {
+            let key = key_text(k, row);
+            if key != last_key {
+                cond = traverse_cond(spec, k, row, &base).map_err(|e| e.at_row(row))?;
+                memos = Memos::new();
+                last_key = key;
+            }
+        }
+        let (dp, rho_f, v, _) = phys.point(row, &cond, &mut memos).map_err(|e| e.at_row(row))?;
         dps.push(dp);
         rhos.push(rho_f);
         vs.push(v);
@@ -780,6 +902,7 @@ mod tests {
             min_points: 4,
             flow: Default::default(),
             uncertainty: None,
+            conditions: None,
         }
     }
 
@@ -878,6 +1001,74 @@ mod tests {
         assert!(
             e.to_string().contains("missing column 'fluid_temp_c' (fluid temperature); columns present: traverse"),
             "{e}"
+        );
+    }
+
+    // Per-traverse conditions: each traverse equals a separate reduction under its own
+    // static pressure, fluid and moisture (the single-condition path is tested against the
+    // scalar physics above); a traverse without conditions fails alone, named.
+    #[test]
+    fn per_traverse_conditions_match_separate_reductions() {
+        let gas = |co2: f64, bws: f64| Fluid::Gas(crate::GasMixture::flue_gas(co2, 7.0, 0.0, bws).unwrap());
+        let mut spec = air_spec();
+        spec.fluid = gas(10.0, 0.10);
+        spec.flow = crate::section::flow::FlowOptions {
+            reference: Some(crate::ReferenceCondition::Normal0C),
+            moisture: Some(0.10),
+            wall_factor: None,
+        };
+        let df = frame(
+            vec![1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3],
+            vec![20.0, 30.0, 31.0, 21.0, 22.0, 33.0, 30.0, 20.0, 25.0, 25.0, 25.0, 25.0],
+            vec![150.0; 12],
+            [EA4, EA4, EA4].concat(),
+        );
+        spec.conditions = Some(
+            TraverseConditions::new(
+                vec!["1".into(), "2".into()],
+                vec![99_000.0, 97_500.0],
+                vec![gas(10.0, 0.10), gas(12.0, 0.14)],
+                vec![Some(0.10), Some(0.14)],
+            )
+            .unwrap(),
+        );
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert_eq!(r.failures.len(), 1);
+        assert!(r.failures[0].traverse == "3" && r.failures[0].message.contains("no conditions"), "{:?}", r.failures);
+        let one = |rows: std::ops::Range<usize>, p: f64, f: Fluid, b: f64| {
+            let mut s = air_spec();
+            s.fluid = f;
+            s.static_pressure = Pressure::pa(p);
+            s.flow = crate::section::flow::FlowOptions { moisture: Some(b), ..spec.flow };
+            reduce_campaign(&df.slice(rows.start as i64, rows.len()), &s).unwrap().traverses
+        };
+        for (k, (rows, p, f, b)) in
+            [(0..4, 99_000.0, gas(10.0, 0.10), 0.10), (4..8, 97_500.0, gas(12.0, 0.14), 0.14)].into_iter().enumerate()
+        {
+            let alone = one(rows, p, f, b);
+            for c in ["mean_velocity_m_s", "mean_density_kg_m3", "reference_flow_m3_s", "dry_reference_flow_m3_s"] {
+                let a = r.traverses.column(c).unwrap().f64().unwrap().get(k).unwrap();
+                let b = alone.column(c).unwrap().f64().unwrap().get(0).unwrap();
+                assert!((a - b).abs() <= 1e-12 * b.abs(), "traverse {}: {c} {a} vs {b}", k + 1);
+            }
+        }
+        // The per-point table follows the same conditions.
+        spec.conditions.as_mut().unwrap().keys.push("3".into());
+        spec.conditions.as_mut().unwrap().static_pressure_pa.push(101_000.0);
+        spec.conditions.as_mut().unwrap().fluid.push(gas(10.0, 0.10));
+        spec.conditions.as_mut().unwrap().moisture.push(None);
+        let pts = point_velocities(&df, &spec).unwrap();
+        let rho = pts.column("density_kg_m3").unwrap().f64().unwrap();
+        let alone = gas(12.0, 0.14).density_si(97_500.0, 423.15).unwrap();
+        assert!((rho.get(4).unwrap() - alone).abs() < 1e-12 * alone);
+        assert!(
+            TraverseConditions::new(
+                vec!["1".into(), "1".into()],
+                vec![1e5; 2],
+                vec![gas(10.0, 0.1), gas(10.0, 0.1)],
+                vec![None; 2]
+            )
+            .is_err()
         );
     }
 
