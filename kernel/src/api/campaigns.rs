@@ -322,6 +322,9 @@ fn reductions(r: &mut Registrar<'_>) {
         for f in &c.res.failures {
             s.push_str(&format!("\n  traverse {}: {}", f.traverse, f.message));
         }
+        for w in &c.res.warnings {
+            s.push_str(&format!("\n  warning: {}", w.message));
+        }
         s
     });
     r.property(

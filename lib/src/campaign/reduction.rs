@@ -200,6 +200,9 @@ pub struct CampaignResult {
     pub traverses: DataFrame,
     /// Traverses that failed, with the reason.
     pub failures: Vec<TraverseFailure>,
+    /// Warnings that hold for every traverse (e.g. the probe's calibration record failing
+    /// a check or past its age limit).
+    pub warnings: Vec<crate::error::Warning>,
 }
 
 fn table_err(e: PolarsError) -> Error {
@@ -811,7 +814,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         }
         traverses.with_column(f("reference_flow_m3_s", q_ref)).map_err(table_err)?;
     }
-    Ok(CampaignResult { traverses, failures })
+    Ok(CampaignResult { traverses, failures, warnings: spec.probe.notes.clone() })
 }
 
 /// The key of the traverse that row `row` belongs to, as text.
@@ -1069,6 +1072,24 @@ mod tests {
                 vec![None; 2]
             )
             .is_err()
+        );
+    }
+
+    // A probe from a calibration record that fails its Method 2 checks: the campaign says so.
+    #[test]
+    fn calibration_warnings_reach_the_campaign() {
+        use crate::methods::us_epa::calibration::{CalibrationPair, CalibrationRecord, STypeCalibration};
+        let p = |a, b| CalibrationPair { dp_std: a, dp_s: b };
+        let cal = STypeCalibration::new(0.99, vec![p(12.0, 16.8); 3], vec![p(12.0, 17.3); 3]).unwrap();
+        let rec = CalibrationRecord::new("SP-09", "2026-01-10", &cal).unwrap();
+        let mut spec = air_spec();
+        spec.probe = Probe::from_calibration(&rec, 20_790, None).unwrap();
+        let df = frame(vec![1; 4], vec![20.0, 30.0, 31.0, 21.0], vec![18.0; 4], EA4.to_vec());
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert!(
+            r.warnings.iter().any(|w| w.kind == "calibration-check" && w.message.contains("SP-09")),
+            "{:?}",
+            r.warnings
         );
     }
 
