@@ -125,18 +125,13 @@ fn traverse_conditions(
     let cols: Vec<Option<Col>> = KEYS.iter().map(|k| col_of(k)).collect::<Res<_>>()?;
     let [sp, bar, gauge, co2, o2, co, bws] =
         <[Option<Col>; 7]>::try_from(cols).map_err(|_| rt("campaign: runs columns"))?;
-    for (c, dim, what) in [
-        (&sp, D::PRESSURE, "static_pressure"),
-        (&bar, D::PRESSURE, "barometric"),
-        (&gauge, D::PRESSURE, "static_gauge"),
-    ] {
+    for (c, what) in [(&sp, "static_pressure"), (&bar, "barometric"), (&gauge, "static_gauge")] {
         if let Some(c) = c
             && c.dimension != D::PRESSURE
         {
             return Err(rt(format!(
-                "campaign runs: column '{}' ({what}) must hold a {} (declare its unit)",
-                c.name,
-                dim.name().unwrap_or("pressure")
+                "campaign runs: column '{}' ({what}) must hold a pressure (declare its unit)",
+                c.name
             )));
         }
     }

@@ -70,6 +70,16 @@ fn section_of(s: &Map, what: &str) -> Res<(f64, Option<f64>)> {
     }
 }
 
+/// A pressure argument in the methods' mmHg.
+fn mm_hg(d: &Dynamic, what: &str) -> Res<f64> {
+    Ok(pressure(d, what)?.si() / epa::PA_PER_MM_HG)
+}
+
+/// A pressure argument in the methods' mm H₂O.
+fn mm_h2o(d: &Dynamic, what: &str) -> Res<f64> {
+    Ok(pressure(d, what)?.si() / epa::PA_PER_MM_H2O)
+}
+
 /// Today as days since 1970-01-01 (UTC).
 pub fn today_days() -> i64 {
     let s = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default().as_secs();
@@ -88,7 +98,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     calibrations(r, prefs);
     gas_and_moisture(r);
     checks(r);
-    runs(r, prefs);
+    runs(r);
     directional_probes(r, prefs);
 }
 
@@ -328,7 +338,6 @@ fn moisture_of(m: &Map) -> Res<MoistureResult> {
 fn train_of(m: &Map) -> Res<(MoistureTrain, Option<StackConditions>, Option<LeakCheck>)> {
     check_keys(m, MOISTURE_KEYS, "method4_moisture")?;
     let need = |k: &str| field(m, k).ok_or_else(|| rt(format!("method4_moisture: '{k}' is missing")));
-    let mm_hg = |d: &Dynamic, k: &str| -> Res<f64> { Ok(pressure(d, k)?.si() / 133.322_387_415) };
     let train = MoistureTrain {
         units: MethodUnits::Metric,
         water_initial_ml: number(need("water_initial_ml")?, "water_initial_ml")?,
@@ -339,10 +348,7 @@ fn train_of(m: &Map) -> Res<(MoistureTrain, Option<StackConditions>, Option<Leak
         meter_factor: number(need("meter_factor")?, "meter_factor")?,
         meter_temperature: temperature(need("meter_temperature")?, "meter_temperature")?.k() - 273.15,
         barometric: mm_hg(need("barometric")?, "barometric")?,
-        orifice_dp: field(m, "orifice_dp")
-            .map(|d| pressure(d, "orifice_dp"))
-            .transpose()?
-            .map_or(0.0, |p| p.si() / 9.806_65),
+        orifice_dp: field(m, "orifice_dp").map(|d| mm_h2o(d, "orifice_dp")).transpose()?.unwrap_or(0.0),
     };
     let stack = match (field(m, "stack_temperature"), field(m, "stack_pressure")) {
         (Some(t), Some(p)) => Some(StackConditions {
@@ -402,13 +408,13 @@ fn heads_mm(d: &Dynamic, what: &str) -> Res<Vec<f64>> {
         if c.dimension != D::PRESSURE {
             return Err(rt(format!("{what} must be a pressure column (declare its unit), got {}", describe(d))));
         }
-        return Ok(c.si.iter().map(|p| p / 9.806_65).collect());
+        return Ok(c.si.iter().map(|p| p / epa::PA_PER_MM_H2O).collect());
     }
     let a: Array = d
         .clone()
         .try_cast()
         .ok_or_else(|| rt(format!("{what}: expected pressures (array or column), got {}", describe(d))))?;
-    a.iter().map(|x| Ok(pressure(x, what)?.si() / 9.806_65)).collect()
+    a.iter().map(|x| mm_h2o(x, what)).collect()
 }
 
 /// Temperatures in °C from a quantity, an array or a column.
@@ -480,10 +486,12 @@ impl RunInputs<'_> {
                 if !v.is_finite() {
                     return Err(rt(format!("runs table: column '{name}', row {}: missing value", i + 1)));
                 }
-                return Ok(Some(
-                    if c.dimension == D::NONE { Dynamic::from(v) } else { Dynamic::from(Q::si(v, c.dimension)) }
-                        .with_abs(c.absolute_temperature),
-                ));
+                if c.dimension == D::NONE {
+                    return Ok(Some(Dynamic::from(v)));
+                }
+                let mut q = Q::si(v, c.dimension);
+                q.q.absolute_temperature = c.absolute_temperature;
+                return Ok(Some(Dynamic::from(q)));
             }
         }
         // A map keyed by run name gives each run its own value.
@@ -496,22 +504,6 @@ impl RunInputs<'_> {
         self.get(key)?.ok_or_else(|| {
             rt(format!("run {run}: '{key}' is missing: give it in the spec or as a column of the runs table"))
         })
-    }
-}
-
-trait WithAbs {
-    fn with_abs(self, abs: bool) -> Self;
-}
-
-impl WithAbs for Dynamic {
-    fn with_abs(self, abs: bool) -> Self {
-        match (abs, self.clone().try_cast::<Q>()) {
-            (true, Some(mut q)) => {
-                q.q.absolute_temperature = true;
-                Dynamic::from(q)
-            }
-            _ => self,
-        }
     }
 }
 
@@ -544,7 +536,6 @@ const RUN_KEYS: &[&str] = &[
 /// One run from its inputs; `dp`, `stack_temperature` and `yaw` come as given.
 fn stack_run(inp: &RunInputs, run: &str, dp: Vec<f64>, ts: Vec<f64>, yaw: Vec<f64>) -> Res<StackRun> {
     let s = inp.spec;
-    let mm_hg = |d: &Dynamic, k: &str| -> Res<f64> { Ok(pressure(d, k)?.si() / 133.322_387_415) };
     let gas = match inp.get("dry_molar_mass")? {
         Some(md) => GasInput::DryMolecularWeight {
             md: si_of(&md, D::MOLAR_MASS, "dry_molar_mass")
@@ -612,7 +603,7 @@ fn stack_run(inp: &RunInputs, run: &str, dp: Vec<f64>, ts: Vec<f64>, yaw: Vec<f6
         dp_mm_h2o: dp,
         ts_c: ts,
         p_bar_mm_hg: mm_hg(&inp.need("barometric", run)?, "barometric")?,
-        p_g_mm_h2o: pressure(&inp.need("static_pressure", run)?, "static_pressure")?.si() / 9.806_65,
+        p_g_mm_h2o: mm_h2o(&inp.need("static_pressure", run)?, "static_pressure")?,
         gas,
         moisture,
         coefficient,
@@ -624,7 +615,7 @@ fn stack_run(inp: &RunInputs, run: &str, dp: Vec<f64>, ts: Vec<f64>, yaw: Vec<f6
     })
 }
 
-fn runs(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+fn runs(r: &mut Registrar<'_>) {
     r.func(
         "method2_run",
         &Doc::new("method2_run(spec) -> RunSheet", "Reduces one stack run by US EPA Methods 2, 3 and 4 in the methods' own equations and constants (P_s, M_d, M_s, B_ws, (√Δp)avg, T_s, v_s, Q_s, Q_sd at 20 °C and 760 mmHg) beside the physics route (per-point density and velocity), with every check and its numbers, warnings and the cautions. Keys: run, dp (velocity heads), stack_temperature (one or per point), barometric, static_pressure (gauge), co2/o2/n2_co (%, dry) or dry_molar_mass, moisture (B_ws, a Moisture, or a Method 4 train map), calibration (SCalibration, with max_age_days) or probe (s_type(C_p)), diameter or area, wall (\"brick and mortar\" / \"other\" for a Method 2H default factor), yaw (null angles for the cyclonic check), report (\"method\" or \"physics\").")
@@ -665,15 +656,13 @@ fn runs(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .source("the checks listed on the sheet"),
         |s: &mut Sheets| s.0.iter().all(RunSheet::passed),
     );
-    let p = prefs.clone();
     r.property(
         "RunSheet",
         "reported_flow",
         &Doc::new("sheet.reported_flow -> Quantity | Array", "The reported dry flow at 20 °C and 760 mmHg (101.325 kPa) of the run (an array for several runs), in m³/h.")
             .example("let sheet = method2_run(#{dp: [10.mmH2O, 12.mmH2O, 14.mmH2O], stack_temperature: 150.degC, barometric: 760.mmHg, static_pressure: 0.Pa, co2: 12, o2: 6, n2_co: 82, moisture: 0.10, probe: s_type(0.84), diameter: 1.5.m});\nprint(sheet.reported_flow);")
             .source("US EPA Method 2, eq. 2-10 (number from memory), or the physics route"),
-        move |s: &mut Sheets| -> Dynamic {
-            let _ = &p;
+        |s: &mut Sheets| -> Dynamic {
             let q: Vec<Dynamic> = s
                 .0
                 .iter()
@@ -742,7 +731,7 @@ fn runs_of(t: &Tbl, s: &Map) -> Res<Sheets> {
 pub struct Directional {
     /// The traverse.
     pub t: DirectionalTraverse,
-    /// Absolute stack pressure, mmHg; wet molecular weight; B_ws; area m².
+    /// Absolute stack pressure, mmHg.
     pub p_s: f64,
     /// Wet molecular weight, g/g-mol.
     pub m_s: f64,
@@ -780,8 +769,8 @@ fn directional_text(d: &Directional) -> String {
 fn gas_of(s: &Map) -> Res<(f64, f64, f64)> {
     let need = |k: &str| field(s, k).ok_or_else(|| rt(format!("'{k}' is missing")));
     let p_s = lib(epa::stack_pressure(
-        pressure(need("barometric")?, "barometric")?.si() / 133.322_387_415,
-        pressure(need("static_pressure")?, "static_pressure")?.si() / 9.806_65,
+        mm_hg(need("barometric")?, "barometric")?,
+        mm_h2o(need("static_pressure")?, "static_pressure")?,
     ))?;
     let md = match field(s, "dry_molar_mass") {
         Some(m) => si_of(m, D::MOLAR_MASS, "dry_molar_mass")? * 1000.0,

@@ -731,7 +731,8 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
     }
     // The conditions of the traverse whose first row is `first` (the campaign's own
     // when no per-traverse conditions are given).
-    let cond_of = |first: usize| -> Result<Cond<'_>> { traverse_cond(spec, &key_series, first, &base) };
+    let lookup = CondLookup::new(df, spec, base)?;
+    let cond_of = |first: usize| lookup.at(first);
 
     // One result per traverse, in group order, computed in parallel chunks.
     let results: Vec<(usize, Result<TraverseOut>)> = match &*groups {
@@ -817,27 +818,51 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
     Ok(CampaignResult { traverses, failures, warnings: spec.probe.notes.clone() })
 }
 
-/// The key of the traverse that row `row` belongs to, as text.
-fn key_text(keys: &Series, row: usize) -> String {
-    keys.get(row).map(|v| v.to_string().trim_matches('"').to_string()).unwrap_or_default()
+/// Finds each traverse's conditions: the traverse column as text, and the conditions'
+/// keys indexed once (a campaign can hold hundreds of thousands of traverses).
+struct CondLookup<'a> {
+    base: Cond<'a>,
+    /// The traverse column cast to text, when per-traverse conditions are given.
+    keys: Option<(StringChunked, &'a TraverseConditions, std::collections::HashMap<&'a str, usize>)>,
 }
 
-/// The conditions of the traverse holding row `row`.
-fn traverse_cond<'a>(spec: &'a CampaignSpec, keys: &Series, row: usize, base: &Cond<'a>) -> Result<Cond<'a>> {
-    let Some(c) = &spec.conditions else { return Ok(*base) };
-    let key = key_text(keys, row);
-    let Some(i) = c.keys.iter().position(|k| *k == key) else {
-        return Err(Error::Inconsistent {
-            context: "traverse",
-            message: format!("no conditions (static pressure, fluid, moisture) are given for traverse {key}"),
-        });
-    };
-    Ok(Cond {
-        p: c.static_pressure_pa[i],
-        fluid: &c.fluid[i],
-        gamma: c.fluid[i].isentropic_exponent(),
-        dry: c.moisture[i].map(|b| 1.0 - b).or(base.dry),
-    })
+impl<'a> CondLookup<'a> {
+    fn new(df: &DataFrame, spec: &'a CampaignSpec, base: Cond<'a>) -> Result<Self> {
+        let keys = match &spec.conditions {
+            None => None,
+            Some(c) => {
+                let col =
+                    df.column(&spec.columns.traverse).map_err(table_err)?.cast(&DataType::String).map_err(table_err)?;
+                let text = col.str().map_err(table_err)?.clone();
+                let index = c.keys.iter().enumerate().map(|(i, k)| (k.as_str(), i)).collect();
+                Some((text, c, index))
+            }
+        };
+        Ok(Self { base, keys })
+    }
+
+    /// The key of row `row` as text (None without per-traverse conditions).
+    fn key(&self, row: usize) -> Option<&str> {
+        self.keys.as_ref().map(|(t, ..)| t.get(row).unwrap_or(""))
+    }
+
+    /// The conditions of the traverse holding row `row`.
+    fn at(&self, row: usize) -> Result<Cond<'a>> {
+        let Some((text, c, index)) = &self.keys else { return Ok(self.base) };
+        let key = text.get(row).unwrap_or("");
+        let Some(&i) = index.get(key) else {
+            return Err(Error::Inconsistent {
+                context: "traverse",
+                message: format!("no conditions (static pressure, fluid, moisture) are given for traverse {key}"),
+            });
+        };
+        Ok(Cond {
+            p: c.static_pressure_pa[i],
+            fluid: &c.fluid[i],
+            gamma: c.fluid[i].isentropic_exponent(),
+            dry: c.moisture[i].map(|b| 1.0 - b).or(self.base.dry),
+        })
+    }
 }
 
 /// Per-row Δp, density and velocity as new columns `dp_pa`, `density_kg_m3`,
@@ -849,20 +874,16 @@ pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame
     let mut memos = Memos::new();
     let base =
         Cond { p: spec.static_pressure.si(), fluid: &spec.fluid, gamma: spec.fluid.isentropic_exponent(), dry: None };
-    let keys = match &spec.conditions {
-        Some(_) => Some(df.column(&spec.columns.traverse).map_err(table_err)?.as_materialized_series().clone()),
-        None => None,
-    };
-    let mut last_key = String::new();
+    let lookup = CondLookup::new(df, spec, base)?;
+    let mut last_key: Option<&str> = None;
     let mut cond = base;
     for row in 0..n {
-        if let Some(k) = &keys {
-            let key = key_text(k, row);
-            if key != last_key {
-                cond = traverse_cond(spec, k, row, &base).map_err(|e| e.at_row(row))?;
-                memos = Memos::new();
-                last_key = key;
-            }
+        if let Some(key) = lookup.key(row)
+            && last_key != Some(key)
+        {
+            cond = lookup.at(row).map_err(|e| e.at_row(row))?;
+            memos = Memos::new();
+            last_key = Some(key);
         }
         let (dp, rho_f, v, _) = phys.point(row, &cond, &mut memos).map_err(|e| e.at_row(row))?;
         dps.push(dp);

@@ -350,7 +350,7 @@ pub fn axial_velocities(
         va.push(v);
     }
     let mean = va.iter().sum::<f64>() / n as f64;
-    let (method, cp_check) = match probe {
+    let (method, three_d) = match probe {
         DirectionalProbe::ThreeD(_) => ("US EPA Method 2F", true),
         DirectionalProbe::TwoD { cp } => {
             within(CONTEXT, "probe coefficient", *cp, "", 0.5, 1.2)?;
@@ -367,7 +367,7 @@ pub fn axial_velocities(
         source: "US EPA Methods 2F/2G §8.3",
         citation: Citation::FromMemory,
     }];
-    if cp_check {
+    if three_d {
         checks.push(MethodCheck {
             name: "average axial velocity for Method 2F".into(),
             value: mean,

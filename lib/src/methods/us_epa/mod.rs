@@ -42,6 +42,11 @@ pub mod run_sheet;
 pub mod site_checks;
 pub mod wall_factor;
 
+/// Pascals per conventional millimetre of mercury (NIST SP 811 B.8).
+pub const PA_PER_MM_HG: f64 = 133.322_387_415;
+/// Pascals per conventional millimetre of water, g_n × 1 kg/m² (NIST SP 811 B.8).
+pub const PA_PER_MM_H2O: f64 = 9.806_65;
+
 /// Method 2 metric pitot constant K_p.
 pub const KP_METRIC: f64 = 34.97;
 /// Method 2 English pitot constant K_p.
@@ -180,7 +185,7 @@ mod tests {
     // with exact SI constants, so 34.97 is the method's rounding.
     #[test]
     fn kp_metric_derivation() {
-        let kp = (2.0 * 9.80665 * crate::units::constants::MOLAR_GAS_CONSTANT * 1000.0 / 133.322_387_415).sqrt();
+        let kp = (2.0 * PA_PER_MM_H2O * crate::units::constants::MOLAR_GAS_CONSTANT * 1000.0 / PA_PER_MM_HG).sqrt();
         assert!((kp - 34.9736).abs() < 1e-4);
         assert!((kp - KP_METRIC).abs() < 5e-3);
     }

@@ -28,8 +28,8 @@
 //! the symbolic form is used here, which differs from them in the fourth digit.
 //! Saturation pressure: IAPWS-IF97 region 4.
 
-use super::MethodUnits;
 use super::check::{Citation, MethodCheck};
+use super::{MethodUnits, PA_PER_MM_HG};
 use crate::error::{Error, Result, finite, positive, within};
 use crate::fluids::water::saturation_pressure;
 use crate::units::quantity::Temperature;
@@ -37,8 +37,7 @@ use crate::units::quantity::Temperature;
 const CONTEXT: &str = "EPA Method 4";
 /// Grams per avoirdupois pound (NIST SP 811 B.8, exact).
 const G_PER_LB: f64 = 453.592_37;
-/// Pascals per conventional mmHg and in. Hg (NIST SP 811 B.8).
-const PA_PER_MM_HG: f64 = 133.322_387_415;
+/// Pascals per conventional in. Hg (NIST SP 811 B.8).
 const PA_PER_IN_HG: f64 = 3_386.389;
 
 /// The method's constants in one unit system.

@@ -32,14 +32,14 @@ use super::calibration::CalibrationRecord;
 use super::check::{Citation, MethodCheck};
 use super::moisture::{LeakCheck, MoistureResult, MoistureTrain, StackConditions};
 use super::site_checks::{Averaging, Construction, cyclonic_flow, default_wall_factor, gauge_sensitivity};
-use super::{KP_METRIC, MethodUnits, dry_molecular_weight, mean_sqrt_dp, stack_pressure, wet_molecular_weight};
+use super::{
+    KP_METRIC, MethodUnits, PA_PER_MM_H2O, PA_PER_MM_HG, dry_molecular_weight, mean_sqrt_dp, stack_pressure,
+    wet_molecular_weight,
+};
 use crate::error::{Error, Result, Warning, finite, positive, within};
 use crate::units::constants::MOLAR_GAS_CONSTANT;
 
 const CONTEXT: &str = "stack run";
-/// 1 mm H₂O (conventional) in Pa: g_n × 1 kg/m² (NIST SP 811 B.8).
-const PA_PER_MM_H2O: f64 = 9.806_65;
-const PA_PER_MM_HG: f64 = 133.322_387_415;
 
 /// The cautions printed with every stack result.
 pub const CAUTIONS: &str = "Stack gas may be hot, toxic or oxygen-deficient and sampling ports are at height: \
