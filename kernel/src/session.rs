@@ -1007,6 +1007,25 @@ mod tests {
         let v = eval(&mut s, "pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).velocity");
         assert_eq!(v, "29.9498 ft/s");
         assert_eq!(eval(&mut s, "100.Pa"), "100 Pa", "an explicit unit is kept");
+        // Per-dimension choices over the system, as test-and-balance practice reports air:
+        // 2 m³/s = 4237.76 ft³/min and 5 m/s = 984.252 ft/min (1 ft = 0.3048 m exactly,
+        // NIST SP 811 B.8); 2 m³/s = 7200 m³/h.
+        eval(&mut s, "display_units(\"US\", [\"ft/min\", \"ft3/min\"])");
+        assert_eq!(eval(&mut s, "2.m3_s * 1.m / 1.m"), "4237.76 ft³/min");
+        assert_eq!(eval(&mut s, "10.m / 2.s"), "984.252 ft/min");
+        // 1000 Pa / 248.84 Pa per inH₂O (60 °F) (NIST SP 811 B.8) = 4.01865
+        assert_eq!(
+            eval(&mut s, "1000.Pa * 1.m / 1.m"),
+            "4.01865 inH₂O (60 °F)",
+            "the system serves the other dimensions"
+        );
+        eval(&mut s, "display_units(\"SI\", [\"m3/h\"])");
+        assert_eq!(eval(&mut s, "2.m3_s * 1.m / 1.m"), "7200 m³/h");
+        assert_eq!(eval(&mut s, "10.m / 2.s"), "5 m/s", "a new system drops the earlier choices");
+        let e = err(&mut s, "display_units([\"m3/h\", \"furlong\"])");
+        assert!(e.message.contains("furlong"), "{e:?}");
+        assert_eq!(eval(&mut s, "2.m3_s * 1.m / 1.m"), "7200 m³/h", "a refused list changes nothing");
+        assert_eq!(eval(&mut s, "display_units().volume_flow_rate"), "m³/h");
     }
 
     #[test]

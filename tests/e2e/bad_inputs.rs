@@ -252,6 +252,8 @@ const CASES: &[(&str, &[&str])] = &[
     ),
     (r##"traverse_layout(round_duct(1.m), #{points: 4}).chart().save("x.doc")"##, &[r##"x.doc"##, r##".svg or .png"##]),
     (r##"display_units("metric")"##, &[r##""si" or "us""##, r##""metric""##]),
+    (r##"display_units(["m3/h", "m3/x"])"##, &[r##"display_units"##, r##"unknown unit 'x'"##]),
+    (r##"display_units([3])"##, &[r##"each unit is text"##]),
     (
         r##"water().density(101.kPa, table_from(#{t: [20.0]})["t"])"##,
         &[r##"temperature must be a temperature column"##, r##"dimensionless ('t')"##],

@@ -11,7 +11,7 @@ use stagna::units::quantity::format_number;
 use stagna::{Length, Pressure, Temperature, Warning};
 
 use super::fluids::State;
-use super::{Col, Q, Res, SharedPrefs, UnitSystem, preferred_unit, prefs, rt};
+use super::{Col, DisplayUnits, Q, Res, SharedPrefs, UnitSystem, display_of, preferred_unit, rt};
 
 /// A plain number from an int, a float or a dimensionless quantity.
 pub fn number(d: &Dynamic, what: &str) -> Res<f64> {
@@ -43,7 +43,7 @@ pub fn count(d: &Dynamic, what: &str) -> Res<usize> {
 pub fn describe(d: &Dynamic) -> String {
     if let Some(q) = d.clone().try_cast::<Q>() {
         let dim = q.q.dimension.name().unwrap_or("quantity");
-        return format!("a {dim} ({})", q.show(UnitSystem::Si));
+        return format!("a {dim} ({})", q.show(&DisplayUnits::si()));
     }
     if let Some(c) = d.clone().try_cast::<Col>() {
         return format!("a column of {} ('{}')", c.dimension.name().unwrap_or("values"), c.name);
@@ -212,5 +212,5 @@ pub fn warnings_of(w: &[Warning]) -> Array {
 
 /// A quantity from its SI value, shown in the session's units.
 pub fn show_q(v: f64, dim: D, p: &SharedPrefs) -> String {
-    Q::si(v, dim).show(prefs(p).system)
+    Q::si(v, dim).show(&display_of(p))
 }

@@ -51,9 +51,9 @@ impl Plot {
     }
 }
 
-fn column_values(t: &Tbl, name: &str, system: UnitSystem) -> Res<(Vec<f64>, Option<String>)> {
+fn column_values(t: &Tbl, name: &str, display: &DisplayUnits) -> Res<(Vec<f64>, Option<String>)> {
     let c = t.column(name)?;
-    match c.out_unit(system) {
+    match c.out_unit(display) {
         Some(u) => Ok((lib(c.values_in(&u))?, Some(u))),
         None => Ok((c.si.to_vec(), None)),
     }
@@ -85,11 +85,11 @@ fn profile_charts(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .source("power-law fit: least squares on ln u against ln(y/R) (common practice, no source)"),
         move |t: Tbl, o: Map| -> Res<Plot> {
             check_keys(&o, &["x", "y", "by", "title", "fit", "model", "centre"], "profile_chart")?;
-            let system = super::prefs(&p).system;
+            let display = super::display_of(&p);
             let x = text(field(&o, "x").ok_or_else(|| rt("profile_chart: option x (column) is required"))?, "x")?;
             let y = text(field(&o, "y").ok_or_else(|| rt("profile_chart: option y (column) is required"))?, "y")?;
-            let (xs, xu) = column_values(&t, &x, system)?;
-            let (ys, yu) = column_values(&t, &y, system)?;
+            let (xs, xu) = column_values(&t, &x, &display)?;
+            let (ys, yu) = column_values(&t, &y, &display)?;
             let mut series = Vec::new();
             match field(&o, "by") {
                 Some(b) => {
@@ -146,11 +146,11 @@ fn trend_charts_and_output(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .source("common practice, no source"),
         move |c: Campaign, o: Map| -> Res<Plot> {
             check_keys(&o, &["y", "title"], "trend_chart")?;
-            let system = super::prefs(&p).system;
+            let display = super::display_of(&p);
             let df = &c.res.traverses;
             let y = field(&o, "y").map(|d| text(d, "y")).transpose()?.unwrap_or_else(|| "volume_flow_m3_s".into());
             let tbl = super::tables::with_result_units(df.clone(), Default::default());
-            let (values, yu) = column_values(&tbl, &y, system)?;
+            let (values, yu) = column_values(&tbl, &y, &display)?;
             // Error bars in the same unit as the plotted flows.
             let errors = match (&yu, df.column("expanded_flow_m3_s").is_ok() && y.ends_with("flow_m3_s")) {
                 (Some(u), true) => Some(lib(tbl.column("expanded_flow_m3_s")?.values_in(u))?),

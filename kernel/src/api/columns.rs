@@ -91,7 +91,7 @@ fn col_scale(a: &Col, k: f64, q: Option<&Q>, divide: bool, q_first: bool) -> Res
             })
             .collect();
     finite_rows(&v, &a.si, &[kk], || {
-        let k = q.map_or_else(|| format_number(kk), |q| q.show(UnitSystem::Si));
+        let k = q.map_or_else(|| format_number(kk), |q| q.show(&DisplayUnits::si()));
         match (divide, q_first) {
             (false, _) => format!("'{}' × {k}", a.name),
             (true, false) => format!("'{}' / {k}", a.name),
@@ -120,9 +120,9 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 /// Showing columns, and arithmetic between columns and quantities.
 fn arithmetic(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let p = prefs.clone();
-    r.engine.register_fn("to_string", move |c: &mut Col| c.show(super::prefs(&p).system));
+    r.engine.register_fn("to_string", move |c: &mut Col| c.show(&super::display_of(&p)));
     let p = prefs.clone();
-    r.engine.register_fn("to_debug", move |c: &mut Col| c.show(super::prefs(&p).system));
+    r.engine.register_fn("to_debug", move |c: &mut Col| c.show(&super::display_of(&p)));
     let e = &mut *r.engine;
     for op in ['+', '-', '*', '/'] {
         let s = op.to_string();
@@ -186,7 +186,7 @@ fn conversions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                         prefs.max_array
                     )));
                 }
-                let v = match c.out_unit(prefs.system) {
+                let v = match c.out_unit(&prefs.display) {
                     Some(u) => lib(c.values_in(&u))?,
                     None => c.si.to_vec(),
                 };

@@ -141,7 +141,7 @@ fn gas_constructors(r: &mut Registrar<'_>) {
             if mm.is_nan() || mm <= 0.0 {
                 return Err(rt(format!(
                     "ideal_gas: molar mass must be greater than 0, got {}",
-                    Q::si(mm, D::MOLAR_MASS).show(UnitSystem::Si)
+                    Q::si(mm, D::MOLAR_MASS).show(&DisplayUnits::si())
                 )));
             }
             Ok(Fluid::IdealGas {
@@ -243,8 +243,8 @@ fn state_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             "FluidState ({}): p = {}, t = {}, ρ = {}, μ = {}",
             s.s.model,
             show_q(s.s.pressure.si(), D::PRESSURE, &p),
-            Q::kelvin(s.s.temperature.k()).show(super::prefs(&p).system),
-            Q { q: s.s.density.into(), unit: Some("kg/m^3".into()) }.show(UnitSystem::Si),
+            Q::kelvin(s.s.temperature.k()).show(&super::display_of(&p)),
+            Q { q: s.s.density.into(), unit: Some("kg/m^3".into()) }.show(&DisplayUnits::si()),
             visc
         );
         for w in &s.s.warnings {

@@ -237,7 +237,7 @@ fn readings(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         let mut s = format!(
             "GaugeReading: Δp = {} (deflection {})",
             show_q(g.dp.si(), D::PRESSURE, &p),
-            Q { q: g.deflection.into(), unit: Some("mm".into()) }.show(UnitSystem::Si)
+            Q { q: g.deflection.into(), unit: Some("mm".into()) }.show(&DisplayUnits::si())
         );
         for w in &g.warnings {
             s.push_str(&format!("\n  warning: {}", w.message));

@@ -55,19 +55,54 @@ pub fn lib<T>(r: stagna::Result<T>) -> Res<T> {
 }
 
 /// The unit system for display.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum UnitSystem {
     /// SI (Pa, m, m/s, m³/s, kg/s, kg/m³, °C).
+    #[default]
     Si,
     /// US customary (in of water at 60 °F, in, ft/s, cfm, lb/h, lb/ft³, °F).
     Us,
+}
+
+/// How quantities and columns without a unit of their own are shown: a unit system,
+/// and a unit chosen per dimension on top of it (m³/h for flows, ft/min for velocities).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct DisplayUnits {
+    /// The base system.
+    pub system: UnitSystem,
+    /// Units chosen per dimension (and absolute temperature or difference), over the system.
+    pub chosen: Vec<(Dimension, bool, Arc<str>)>,
+}
+
+impl DisplayUnits {
+    /// SI without choices.
+    pub fn si() -> Self {
+        Self::default()
+    }
+    /// The unit a value of this dimension is shown in, if any.
+    pub fn unit_for(&self, d: Dimension, absolute_temperature: bool) -> Option<&str> {
+        let abs = d == Dimension::TEMPERATURE && absolute_temperature;
+        self.chosen
+            .iter()
+            .find(|(cd, ca, _)| *cd == d && *ca == abs)
+            .map(|(_, _, u)| &**u)
+            .or_else(|| preferred_unit(d, absolute_temperature, self.system))
+    }
+    /// Chooses `unit` for its own dimension (replacing an earlier choice).
+    pub fn choose(&mut self, unit: &str) -> stagna::Result<()> {
+        let q = Quantity::new(1.0, unit)?;
+        let abs = q.dimension == Dimension::TEMPERATURE && q.absolute_temperature;
+        self.chosen.retain(|(d, a, _)| !(*d == q.dimension && *a == abs));
+        self.chosen.push((q.dimension, abs, unit.into()));
+        Ok(())
+    }
 }
 
 /// Per-session settings read by the display functions.
 #[derive(Debug, Clone)]
 pub struct Prefs {
     /// Display units.
-    pub system: UnitSystem,
+    pub display: DisplayUnits,
     /// Folder where relative output paths go (batch runs) — `None` writes beside the script's
     /// working directory.
     pub output_dir: Option<std::path::PathBuf>,
@@ -88,7 +123,7 @@ pub struct Prefs {
 impl Default for Prefs {
     fn default() -> Self {
         Self {
-            system: UnitSystem::Si,
+            display: DisplayUnits::si(),
             output_dir: None,
             protected: Vec::new(),
             data_dir: None,
@@ -107,6 +142,14 @@ pub fn prefs(p: &SharedPrefs) -> Prefs {
     match p.read() {
         Ok(g) => g.clone(),
         Err(e) => e.into_inner().clone(),
+    }
+}
+
+/// The session's display units (read without copying the other settings).
+pub fn display_of(p: &SharedPrefs) -> DisplayUnits {
+    match p.read() {
+        Ok(g) => g.display.clone(),
+        Err(e) => e.into_inner().display.clone(),
     }
 }
 
@@ -165,9 +208,8 @@ impl Q {
         Ok(Q { q: Quantity::new(value, unit)?, unit: Some(unit.into()) })
     }
     /// Text in the display unit (explicit, else the session's preference, else SI).
-    pub fn show(&self, system: UnitSystem) -> String {
-        let unit =
-            self.unit.as_deref().or_else(|| preferred_unit(self.q.dimension, self.q.absolute_temperature, system));
+    pub fn show(&self, display: &DisplayUnits) -> String {
+        let unit = self.unit.as_deref().or_else(|| display.unit_for(self.q.dimension, self.q.absolute_temperature));
         match unit.map(|u| self.q.display_in(u)) {
             Some(Ok(s)) => pretty_unit(&s),
             _ => pretty_unit(&self.q.to_string()),
@@ -215,11 +257,11 @@ impl Col {
         Col { name: name.into(), si: Arc::new(si), dimension, absolute_temperature: false, unit: unit.map(Into::into) }
     }
     /// The unit to write the column in.
-    pub fn out_unit(&self, system: UnitSystem) -> Option<String> {
+    pub fn out_unit(&self, display: &DisplayUnits) -> Option<String> {
         self.unit
             .as_deref()
             .map(str::to_string)
-            .or_else(|| preferred_unit(self.dimension, self.absolute_temperature, system).map(str::to_string))
+            .or_else(|| display.unit_for(self.dimension, self.absolute_temperature).map(str::to_string))
     }
     /// Values in `unit`.
     pub fn values_in(&self, unit: &str) -> stagna::Result<Vec<f64>> {
@@ -229,8 +271,8 @@ impl Col {
         Ok(self.si.iter().map(|&v| Quantity { si: v, ..one }.value_in_unit(&u).unwrap_or(f64::NAN)).collect())
     }
     /// A short summary: name, length, unit, first values.
-    pub fn show(&self, system: UnitSystem) -> String {
-        let unit = self.out_unit(system);
+    pub fn show(&self, display: &DisplayUnits) -> String {
+        let unit = self.out_unit(display);
         let vals = match &unit {
             Some(u) => self.values_in(u).unwrap_or_else(|_| self.si.to_vec()),
             None => self.si.to_vec(),

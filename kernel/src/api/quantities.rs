@@ -2,7 +2,7 @@
 //! `qty("3 inH2O@60F")`, arithmetic with dimension checks, conversion, comparison and
 //! the session's display units.
 
-use rhai::Dynamic;
+use rhai::{Dynamic, Map};
 use stagna::Quantity;
 use stagna::units::unit;
 
@@ -97,7 +97,7 @@ fn scale(a: &Q, k: f64, divide: bool) -> Res<Q> {
         let op = if divide { "/" } else { "×" };
         return Err(rt(format!(
             "{} {op} {}: the result is not a finite number (a division by zero or an overflow)",
-            a.show(UnitSystem::Si),
+            a.show(&DisplayUnits::si()),
             format_number(k)
         )));
     }
@@ -171,31 +171,64 @@ fn units_and_qty(r: &mut Registrar<'_>) {
 
 /// Display units and conversion.
 fn display(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    fn set(p: &SharedPrefs, f: impl FnOnce(&mut DisplayUnits)) {
+        match p.write() {
+            Ok(mut g) => f(&mut g.display),
+            Err(e) => f(&mut e.into_inner().display),
+        }
+    }
+    fn system_of(s: &str) -> Res<UnitSystem> {
+        match s.to_ascii_uppercase().as_str() {
+            "SI" => Ok(UnitSystem::Si),
+            "US" | "USC" => Ok(UnitSystem::Us),
+            _ => Err(rt(format!("display_units: the system is \"SI\" or \"US\", got \"{s}\""))),
+        }
+    }
+    // Every unit is checked before any is kept: a bad one leaves the settings as they were.
+    fn chosen(base: &DisplayUnits, units: &rhai::Array) -> Res<DisplayUnits> {
+        let mut d = base.clone();
+        for u in units {
+            let u = u.clone().into_immutable_string().map_err(|t| {
+                rt(format!("display_units: each unit is text such as \"m3/h\", got a value of type {t}"))
+            })?;
+            d.choose(&u).map_err(|e| rt(format!("display_units: {e}")))?;
+        }
+        Ok(d)
+    }
+    let doc = Doc::new(
+        "display_units(system[, units]) / display_units(units) / display_units() -> Map",
+        "Sets how quantities and columns without an explicit unit are shown in this session: the system \"SI\" (Pa, m, m/s, m³/s, kg/s, kg/m³, °C) or \"US\" (inH₂O at 60 °F, ft, ft/s, cfm, lb/h, lb/ft³, °F), and over it a unit per dimension: each unit in the array is used for its own dimension (\"m3/h\" for volume flows, \"ft/min\" for velocities, \"degC\" for temperatures, \"delta_K\" for temperature differences). Given a system, earlier per-dimension choices are dropped; given only units, they are added to the current settings. Values are stored in SI either way; a unit written on a value (`12.m3_h`, `.to(...)`) always wins. Returns the units in use, by dimension.",
+    )
+    .param("system", "\"SI\" or \"US\"")
+    .param("units", "array of unit texts, one per dimension")
+    .example("let flow = 5.m_s * 0.4.m2;         // a computed value follows the session\ndisplay_units(\"US\", [\"ft/min\", \"ft3/min\"]);\nprint(flow);                          // 4237.76 ft³/min\nprint(flow / 0.4.m2);                 // 984.252 ft/min\ndisplay_units(\"SI\", [\"m3/h\"]);\nprint(flow);                          // 7200 m³/h\nprint(display_units());\ndisplay_units(\"SI\");")
+    .source("unit factors: NIST SP 811 (2008) Appendix B.8");
     let p = prefs.clone();
-    r.func(
-        "display_units",
-        &Doc::new("display_units(system)", "Sets how quantities and columns without an explicit unit are shown in this session: \"SI\" (Pa, m, m/s, m³/s, kg/s, kg/m³, °C) or \"US\" (inH₂O at 60 °F, ft, ft/s, cfm, lb/h, lb/ft³, °F). Values are stored in SI either way.")
-            .param("system", "\"SI\" or \"US\"")
-            .example("display_units(\"US\");\nprint(100.Pa);\ndisplay_units(\"SI\");")
-            .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
-        move |s: &str| -> Res<()> {
-            let system = match s.to_ascii_uppercase().as_str() {
-                "SI" => UnitSystem::Si,
-                "US" | "USC" => UnitSystem::Us,
-                _ => return Err(rt(format!("display_units: \"SI\" or \"US\", got \"{s}\""))),
-            };
-            match p.write() {
-                Ok(mut g) => g.system = system,
-                Err(e) => e.into_inner().system = system,
-            }
-            Ok(())
-        },
-    );
+    r.func("display_units", &doc, move |s: &str| -> Res<Map> {
+        let system = system_of(s)?;
+        set(&p, |d| *d = DisplayUnits { system, chosen: Vec::new() });
+        Ok(in_use(&super::prefs(&p).display))
+    });
+    let p = prefs.clone();
+    r.func("display_units", &doc, move |s: &str, units: rhai::Array| -> Res<Map> {
+        let system = system_of(s)?;
+        let d = chosen(&DisplayUnits { system, chosen: Vec::new() }, &units)?;
+        set(&p, |g| *g = d);
+        Ok(in_use(&super::prefs(&p).display))
+    });
+    let p = prefs.clone();
+    r.func("display_units", &doc, move |units: rhai::Array| -> Res<Map> {
+        let d = chosen(&super::prefs(&p).display, &units)?;
+        set(&p, |g| *g = d);
+        Ok(in_use(&super::prefs(&p).display))
+    });
+    let p = prefs.clone();
+    r.func("display_units", &doc, move || -> Map { in_use(&super::prefs(&p).display) });
 
     let p = prefs.clone();
-    r.engine.register_fn("to_string", move |q: &mut Q| q.show(super::prefs(&p).system));
+    r.engine.register_fn("to_string", move |q: &mut Q| q.show(&super::display_of(&p)));
     let p = prefs.clone();
-    r.engine.register_fn("to_debug", move |q: &mut Q| q.show(super::prefs(&p).system));
+    r.engine.register_fn("to_debug", move |q: &mut Q| q.show(&super::display_of(&p)));
 
     r.method(
         "Quantity",
@@ -327,7 +360,7 @@ fn arithmetic(r: &mut Registrar<'_>) {
     e.register_fn("/", |k: i64, a: Q| invert(k as f64, &a));
     e.register_fn("**", |a: Q, n: i64| -> Res<Q> {
         if !(-8..=8).contains(&n) {
-            return Err(rt(format!("{} ** {n}: quantity powers go from -8 to 8", a.show(UnitSystem::Si))));
+            return Err(rt(format!("{} ** {n}: quantity powers go from -8 to 8", a.show(&DisplayUnits::si()))));
         }
         if a.q.absolute_temperature {
             return Err(rt("cannot raise an absolute temperature to a power; use .si for kelvins"));
@@ -361,4 +394,39 @@ fn arithmetic(r: &mut Registrar<'_>) {
         e.register_fn(op, move |b: f64, a: Q| plain(op, format_number(b), &a));
         e.register_fn(op, move |b: i64, a: Q| plain(op, b.to_string(), &a));
     }
+}
+
+/// The units in use, by dimension name (temperatures as `temperature` and
+/// `temperature difference`).
+fn in_use(d: &DisplayUnits) -> Map {
+    use stagna::units::dimension::Dimension as D;
+    let mut m = Map::new();
+    m.insert("system".into(), Dynamic::from(if d.system == UnitSystem::Us { "US" } else { "SI" }));
+    let dims = [
+        D::PRESSURE,
+        D::LENGTH,
+        D::AREA,
+        D::VELOCITY,
+        D::VOLUME_FLOW,
+        D::MASS_FLOW,
+        D::DENSITY,
+        D::DYNAMIC_VISCOSITY,
+        D::ACCELERATION,
+        D::MOLAR_MASS,
+    ];
+    for dim in dims.into_iter().chain(d.chosen.iter().map(|c| c.0)) {
+        if dim == D::TEMPERATURE {
+            continue;
+        }
+        if let (Some(name), Some(u)) = (dim.name(), d.unit_for(dim, false)) {
+            m.insert(name.replace(' ', "_").into(), Dynamic::from(pretty_unit(u)));
+        }
+    }
+    if let Some(u) = d.unit_for(D::TEMPERATURE, true) {
+        m.insert("temperature".into(), Dynamic::from(pretty_unit(u)));
+    }
+    if let Some(u) = d.unit_for(D::TEMPERATURE, false) {
+        m.insert("temperature_difference".into(), Dynamic::from(pretty_unit(u)));
+    }
+    m
 }

@@ -470,7 +470,7 @@ fn queries(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                     if c.si.len() != t.df.height() {
                         return Err(rt(format!("t.with_column: column has {} rows, the table {}", c.si.len(), t.df.height())));
                     }
-                    let unit = c.out_unit(super::prefs(&p).system);
+                    let unit = c.out_unit(&super::display_of(&p));
                     let values = match &unit {
                         Some(u) => lib(c.values_in(u))?,
                         None => c.si.to_vec(),
