@@ -126,6 +126,8 @@ pub struct PointVelocity {
     pub coefficient: f64,
     /// Probe kind.
     pub kind: ProbeKind,
+    /// Where the coefficient comes from (a calibration or set-up record), when known.
+    pub coefficient_source: Option<String>,
     /// Remarks.
     pub warnings: Vec<Warning>,
 }
@@ -264,6 +266,7 @@ impl Probe {
             isentropic_exponent: gamma,
             coefficient: c,
             kind: self.kind,
+            coefficient_source: self.coefficient_source.clone(),
             warnings,
         })
     }
@@ -306,6 +309,9 @@ impl PointVelocity {
         let n = format_number;
         let mut s = Steps::default();
         let (c, dp, rho) = (self.coefficient, self.dp.si(), self.density.si());
+        if let Some(src) = &self.coefficient_source {
+            s.push("probe coefficient", "C", "C", format!("{} ({})", self.kind, src), n(c), src);
+        }
         match self.isentropic_exponent {
             None => s.push(
                 "point velocity (incompressible)",

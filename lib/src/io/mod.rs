@@ -3,9 +3,11 @@
 //! Reads tables of readings (CSV, Parquet, spreadsheets) and writes them atomically
 //! ([`table`]), draws charts of profiles, trends, budgets and layouts as SVG or PNG
 //! ([`plot`]), shows the library's main types in Rust notebooks ([`evcxr`]) and reads
-//! and writes the record files behind coefficients ([`record`]).
+//! and writes the record files behind coefficients ([`record`]) and the set-up files of
+//! instruments, sites and campaigns ([`setup`]).
 
 pub mod evcxr;
 pub mod plot;
 pub mod record;
+pub mod setup;
 pub mod table;
