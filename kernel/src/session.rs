@@ -1267,6 +1267,49 @@ mod tests {
     }
 
     #[test]
+    fn set_up_files_load_save_and_name_their_records() {
+        // Issue 15: instruments, sites and campaigns from a set-up file; saved as TOML and
+        // JSON and read back the same; the record is named in worked steps and budgets.
+        let mut s = Session::new();
+        let dir = std::env::temp_dir().join(format!("stagna-setup-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        eval(&mut s, "let s = demo_setup(\"larkfield-ahu2\");");
+        for ext in ["setup.toml", "json"] {
+            let p = dir.join(format!("ahu2.{ext}"));
+            eval(&mut s, &format!("s.save(\"{}\"); let back = load_setup(\"{}\");", p.display(), p.display()));
+            assert_eq!(eval(&mut s, "back.ids.transducers"), "[\"DPT-1\"]", "{ext}");
+            assert!(eval(&mut s, "back.probe(\"PS-12\")").contains("C = 0.998"), "{ext}");
+        }
+        let steps = eval(&mut s, "s.probe(\"PS-12\").velocity(118.Pa, 1.2.kg_m3).steps()");
+        assert!(steps.contains("set-up larkfield-ahu2.setup.toml, probe 'PS-12'"), "{steps}");
+        // 0.998·√(2·118/1.2) = 13.9957 m/s (ISO 3966 velocity equation, hand calculation)
+        assert!(steps.contains("13.9957 m/s"), "{steps}");
+        // Mean of the measured diameters 600.5 and 599.5 mm = 600 mm: A = π·0.3² = 0.282743 m².
+        assert!(eval(&mut s, "s.section(\"ahu2-supply\")").contains("0.282743 m²"));
+        // The campaign's spec reduces a traverse with the file's probe and gauge.
+        let t = "table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [600.0, 600.0, 600.0, 600.0]}).units(#{h: \"mm\", t: \"degC\", d: \"mm\"})";
+        let v = eval(
+            &mut s,
+            &format!(
+                "reduce_campaign({t}, s.campaign(\"monthly-traverse\") + #{{fluid: dry_air(), static_pressure: 101.kPa, columns: #{{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\"}}}}).traverses.height"
+            ),
+        );
+        assert_eq!(v, "1");
+        // The transducer's calibration is the Δp term of a budget, named as its source.
+        let src = eval(
+            &mut s,
+            "let tx = s.transducer(\"DPT-1\"); let b = traverse_budget(tx.dp([98.0, 112.0, 118.0, 101.0]), #{coefficient: 0.998, u_coefficient: s.probe_u(\"PS-12\"), density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, transducer: tx}); b.table().filter(col(\"input\") == \"Δp point 1\").texts(\"source\")[0]",
+        );
+        assert!(src.contains("transducer DPT-1 calibration of 2026-09-22"), "{src}");
+        let u = eval(&mut s, "b.table().filter(col(\"input\") == \"Δp point 1\")[\"u\"].mean()");
+        let expect = eval(&mut s, "tx.u_reading(tx.dp(98.0)).value");
+        assert!(u.starts_with(&expect[..5]), "{u} vs {expect}");
+        let e = err(&mut s, "s.probe(\"PS-99\")");
+        assert!(e.message.contains("no probe 'PS-99'") && e.message.contains("PS-12"), "{e:?}");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
     fn deep_data_and_shadowed_values_are_safe() {
         // Regressions (issue 16): arrays nested 5 000 deep overflowed the stack when dropped
         // or shown (the front ends run sessions on threads with big stacks; tests get a

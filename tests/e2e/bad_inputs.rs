@@ -447,3 +447,76 @@ fn bad_command_lines_are_refused_naming_the_option() {
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
+
+/// A broken set-up file, as a user might leave it: each is refused with the file, the
+/// line and the key, and the script stops before using anything from it (issue 15).
+#[test]
+fn bad_set_up_files_name_file_line_and_key() {
+    const GOOD: &str = include_str!("../../demo-data/larkfield-ahu2.setup.toml");
+    let line_of = |text: &str, needle: &str| text.lines().position(|l| l.contains(needle)).map(|i| i + 1).unwrap_or(0);
+    let truncated = &GOOD[..GOOD.find("liquid_density").unwrap_or(0) + 22];
+    let cases: Vec<(String, &str, Vec<String>)> = vec![
+        // (file text, the line's marker, further fragments)
+        (truncated.to_string(), "liquid_density", vec!["liquid_density".into()]),
+        (GOOD.replace("angle_deg = 20", "angle_deg = \"twenty\""), "angle_deg", vec!["angle_deg".into()]),
+        (GOOD.replace("\"8 mm\"", "\"8 mmm\""), "head_diameter", vec!["'head_diameter'".into(), "mmm".into()]),
+        (
+            GOOD.replace(
+                "points = [[0.4, 0.0], [50.9, 50.0], [101.1, 100.0], [151.8, 150.0], [202.2, 200.0], [252.0, 249.0]]",
+                "points = [[0.4, 0.0]]",
+            ),
+            "points = [[0.4",
+            vec!["'points'".into(), "at least 3 points".into()],
+        ),
+        (GOOD.replace("id = \"DPT-1\"", "id = \"PS-12\""), "id = \"PS-12\"\nunit", vec!["already used".into()]),
+        (GOOD.replace("version = 1", "version = 9"), "version = 9", vec!["'version'".into(), "newer stagna".into()]),
+        (GOOD.replace("serial = \"MN-3-551\"", "serail = \"MN-3-551\""), "serail", vec!["serail".into()]),
+        (
+            GOOD.replace("liquid_density = \"826 kg/m^3\"", "liquid_density = \"826 m\""),
+            "liquid_density",
+            vec!["not a density".into()],
+        ),
+    ];
+    let dir = tempdir("setup");
+    let mut failures = Vec::new();
+    for (k, (text, marker, fragments)) in cases.iter().enumerate() {
+        let file = dir.join(format!("case{k}.setup.toml"));
+        std::fs::write(&file, text).expect("set-up file");
+        let script = dir.join("case.rhai");
+        std::fs::write(&script, format!("let s = load_setup(\"{}\");\nprint(\"loaded\");", file.display()))
+            .expect("script");
+        let o = Command::new(env!("CARGO_BIN_EXE_stagna"))
+            .args(["run", script.to_str().unwrap_or_default(), "-o", dir.join("out").to_str().unwrap_or_default()])
+            .output()
+            .expect("the stagna binary runs");
+        let stderr = String::from_utf8_lossy(&o.stderr).to_lowercase();
+        let stdout = String::from_utf8_lossy(&o.stdout);
+        let mut want: Vec<String> = fragments.iter().map(|f| f.to_lowercase()).collect();
+        want.push(format!("case{k}.setup.toml"));
+        // The line of the marker (its first line when it spans two).
+        let first = marker.lines().next().unwrap_or("");
+        if !first.is_empty() {
+            let n = if marker.contains('\n') {
+                text.lines()
+                    .collect::<Vec<_>>()
+                    .windows(2)
+                    .position(|w| w[0].contains(first) && w[1].contains(marker.lines().nth(1).unwrap_or("")))
+                    .map(|i| i + 1)
+                    .unwrap_or(0)
+            } else {
+                line_of(text, first)
+            };
+            want.push(format!("line {n}"));
+        }
+        if o.status.success() || stdout.contains("loaded") {
+            failures.push(format!("case {k}: loaded; expected a refusal"));
+        }
+        for f in &want {
+            if !stderr.contains(f.as_str()) {
+                failures.push(format!("case {k}: message lacks {f:?}:\n{stderr}"));
+            }
+        }
+    }
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -30,6 +30,7 @@ pub mod probes;
 pub mod profiles;
 pub mod quantities;
 pub mod sections;
+pub mod setups;
 pub mod stack;
 pub mod steps;
 pub mod tables;
@@ -310,4 +311,5 @@ pub fn register_all(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     charts::register(r, prefs);
     uncertainty::register(r, prefs);
     stack::register(r, prefs);
+    setups::register(r, prefs);
 }

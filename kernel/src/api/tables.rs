@@ -288,7 +288,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Tbl>("Table").register_type_with_name::<Grouped>("GroupBy");
     r.group("Tables");
     readers(r, prefs);
-    members(r);
+    members(r, prefs);
     queries(r, prefs);
     groups_and_joins(r);
     writing(r, prefs);
@@ -395,7 +395,7 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 }
 
 /// Showing a table, declaring units, columns and size.
-fn members(r: &mut Registrar<'_>) {
+fn members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_fn("to_string", |t: &mut Tbl| t.show());
     r.engine.register_fn("to_debug", |t: &mut Tbl| t.show());
     r.method(
@@ -435,6 +435,21 @@ fn members(r: &mut Registrar<'_>) {
         },
     );
     r.engine.register_indexer_get(|t: &mut Tbl, c: &str| t.column(c));
+    let pt = prefs.clone();
+    r.method(
+        "Table",
+        "texts",
+        &Doc::new("t.texts(column) -> array", "A column's values as text, one string per row (labels, sources, ids); numbers are written as polars writes them. Bounded by the session's array limit.")
+            .example("print(demo_table(\"hollin-brook-main\").head(3).texts(\"time\"));")
+            .source("common practice, no source"),
+        move |t: &mut Tbl, c: &str| -> Res<Array> {
+            let max = super::prefs(&pt).max_array;
+            if t.df.height() > max {
+                return Err(rt(format!("texts(\"{c}\"): {} rows is past the session's array limit of {max} (--max-array); take .head(n) first", t.df.height())));
+            }
+            Ok(lib(stagna::io::table::text_column(&t.df, c))?.into_iter().map(Dynamic::from).collect())
+        },
+    );
     r.property(
         "Table",
         "height",

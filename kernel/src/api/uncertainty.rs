@@ -37,6 +37,41 @@ fn dps_of(d: &Dynamic) -> Res<Vec<f64>> {
     Err(rt(format!("traverse_budget: dp must be a pressure column or an array of pressures, got {}", describe(d))))
 }
 
+/// Δp inputs whose uncertainty comes from a transducer's calibration (√(s² + u_curve²)
+/// at each point, evaluated at the corrected Δp, the curve being close to identity),
+/// with the terms given beside it; Type A with the calibration's ν when it stands alone.
+fn transducer_dp_inputs(
+    t: &stagna::instruments::transducer::Transducer,
+    dps: &[f64],
+    rel: f64,
+    abs_pa: f64,
+) -> Res<Vec<Input>> {
+    let c = t.calibration.as_ref().ok_or_else(|| {
+        rt(format!("traverse_budget: transducer {} has no calibration points; give dp_rel and dp_abs instead", t.id))
+    })?;
+    let source = format!(
+        "transducer {} calibration of {}: s = {} Pa (ν = {}) with the curve's own uncertainty{}",
+        t.id,
+        c.date,
+        stagna::units::quantity::format_number(c.residual_sd_pa),
+        c.dof,
+        if rel > 0.0 || abs_pa > 0.0 { ", plus dp_rel and dp_abs as given" } else { "" }
+    );
+    dps.iter()
+        .enumerate()
+        .map(|(i, &dp)| {
+            let u_cal = c.u_reading_pa(dp);
+            let u = ((rel * dp).powi(2) + abs_pa * abs_pa + u_cal * u_cal).sqrt();
+            let mut input = lib(Input::normal(&format!("Δp point {}", i + 1), "Pa", dp, u))?.with_source(&source);
+            if rel == 0.0 && abs_pa == 0.0 {
+                input.dof = c.dof as f64;
+                input.evaluation = stagna::uncertainty::Evaluation::TypeA;
+            }
+            Ok(input)
+        })
+        .collect()
+}
+
 /// Registers budgets.
 pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Budget>("Budget");
@@ -49,12 +84,12 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 fn budgets(r: &mut Registrar<'_>) {
     r.func(
         "traverse_budget",
-        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); dp_rel (relative u of each Δp), dp_abs (absolute u of each Δp); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
+        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); dp_rel (relative u of each Δp, default 0.005), dp_abs (absolute u of each Δp, default 0.5 Pa); transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and dp_rel and dp_abs count only when given); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
             .param("dp", "pressure column or array of pressures, one per point (all > 0)")
             .example("let dps = [98.Pa, 112.Pa, 118.Pa, 115.Pa, 101.Pa, 95.Pa];\nlet b = traverse_budget(dps, #{coefficient: 0.998, u_coefficient: 0.0025, density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, dp_rel: 0.005, dp_abs: 0.4.Pa});\nprint(b);")
             .source("JCGM 100:2008 (GUM) §5, §G; method terms as documented in the library (ISO 3966 §10 and common practice)"),
         |d: Dynamic, o: Map| -> Res<Budget> {
-            check_keys(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "dp_rel", "dp_abs", "rule", "coverage", "output"], "traverse_budget")?;
+            check_keys(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "dp_rel", "dp_abs", "transducer", "rule", "coverage", "output"], "traverse_budget")?;
             let dps = dps_of(&d)?;
             let req = |k: &str| field(&o, k).ok_or_else(|| rt(format!("traverse_budget: option '{k}' is required")));
             let c = number(req("coefficient")?, "coefficient")?;
@@ -63,8 +98,15 @@ fn budgets(r: &mut Registrar<'_>) {
             let urho = si_of(req("u_density")?, D::DENSITY, "u_density")?;
             let dd = si_of(req("diameter")?, D::LENGTH, "diameter")?;
             let ud = si_of(req("u_diameter")?, D::LENGTH, "u_diameter")?;
-            let dp_rel = field(&o, "dp_rel").map(|x| number(x, "dp_rel")).transpose()?.unwrap_or(0.005);
-            let dp_abs = field(&o, "dp_abs").map(|x| si_of(x, D::PRESSURE, "dp_abs")).transpose()?.unwrap_or(0.5);
+            let transducer: Option<stagna::instruments::transducer::Transducer> = match field(&o, "transducer") {
+                None => None,
+                Some(t) => Some(t.clone().try_cast().ok_or_else(|| rt("traverse_budget: 'transducer' must be a Transducer (setup.transducer(id))"))?),
+            };
+            // With a calibrated transducer its calibration is the measured Δp term; the
+            // other terms count only when given.
+            let (rel_default, abs_default) = if transducer.is_some() { (0.0, 0.0) } else { (0.005, 0.5) };
+            let dp_rel = field(&o, "dp_rel").map(|x| number(x, "dp_rel")).transpose()?.unwrap_or(rel_default);
+            let dp_abs = field(&o, "dp_abs").map(|x| si_of(x, D::PRESSURE, "dp_abs")).transpose()?.unwrap_or(abs_default);
             let coverage = field(&o, "coverage").map(|x| number(x, "coverage")).transpose()?.unwrap_or(0.95);
             let rule = match field(&o, "rule").map(|x| text(x, "rule")).transpose()?.as_deref() {
                 None | Some("equal-area") => stagna::LayoutRule::EqualArea,
@@ -82,7 +124,10 @@ fn budgets(r: &mut Registrar<'_>) {
                 lib(Input::normal("density ρ", "kg/m³", rho, urho))?,
                 lib(Input::normal("diameter D", "m", dd, ud))?,
                 &MethodTerm::typical(rule),
-                lib(dp_inputs(&dps, dp_rel, dp_abs))?,
+                match &transducer {
+                    None => lib(dp_inputs(&dps, dp_rel, dp_abs))?,
+                    Some(t) => transducer_dp_inputs(t, &dps, dp_rel, dp_abs)?,
+                },
             ))?;
             if velocity {
                 t = t.for_mean_velocity();

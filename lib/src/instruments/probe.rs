@@ -310,7 +310,7 @@ impl PointVelocity {
         let mut s = Steps::default();
         let (c, dp, rho) = (self.coefficient, self.dp.si(), self.density.si());
         if let Some(src) = &self.coefficient_source {
-            s.push("probe coefficient", "C", "C", format!("{} ({})", self.kind, src), n(c), src);
+            s.push("probe coefficient", "C (from its record)", "C", format!("C of the {}", self.kind), n(c), src);
         }
         match self.isentropic_exponent {
             None => s.push(

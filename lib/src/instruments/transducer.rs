@@ -274,10 +274,10 @@ impl Transducer {
                 out_of_range += 1;
             }
             if let Some(c) = &self.calibration {
-                if let Some((lo, hi)) = span {
-                    if *v < lo || *v > hi {
-                        outside_span += 1;
-                    }
+                if let Some((lo, hi)) = span
+                    && (*v < lo || *v > hi)
+                {
+                    outside_span += 1;
                 }
                 *v = c.correct_pa(*v);
             }

@@ -357,12 +357,8 @@ fn toml_line(text: &str, table: &str, index: usize, key: &str) -> Option<usize> 
             }
             continue;
         }
-        if inside {
-            if let Some(rest) = t.strip_prefix(key) {
-                if rest.trim_start().starts_with('=') {
-                    return Some(i + 1);
-                }
-            }
+        if inside && t.strip_prefix(key).is_some_and(|rest| rest.trim_start().starts_with('=')) {
+            return Some(i + 1);
         }
     }
     header_line
@@ -414,12 +410,20 @@ impl Setup {
         let text = std::fs::read_to_string(path)
             .map_err(|e| Error::File { path: shown.clone(), message: format!("cannot read the set-up file: {e}") })?;
         let json = path.extension().is_some_and(|e| e.eq_ignore_ascii_case("json"));
-        Self::from_text(&text, path, json, today_days, max_age_days)
+        Self::from_text(&text, path, json, today_days, max_age_days, &|p| std::fs::read_to_string(p))
     }
 
     /// Checks a set-up file's text; `path` names it in messages and anchors the
-    /// relative paths of the records it names.
-    pub fn from_text(text: &str, path: &Path, json: bool, today_days: i64, max_age_days: Option<i64>) -> Result<Self> {
+    /// relative paths of the records it names, which `read` reads (the file system, or
+    /// bundled copies).
+    pub fn from_text(
+        text: &str,
+        path: &Path,
+        json: bool,
+        today_days: i64,
+        max_age_days: Option<i64>,
+        read: &dyn Fn(&Path) -> std::io::Result<String>,
+    ) -> Result<Self> {
         let shown = path.display().to_string();
         let file: SetupFile = if json {
             serde_json::from_str(text).map_err(|e| Error::File { path: shown.clone(), message: e.to_string() })?
@@ -427,17 +431,32 @@ impl Setup {
             crate::io::record::from_toml(text, &shown)?
         };
         let o = Origin { path: &shown, text, json };
+        // Top-level keys: the line where the key is written (TOML).
+        let top = |key: &str| {
+            if json {
+                return String::new();
+            }
+            text.lines()
+                .position(|l| l.trim_start().strip_prefix(key).is_some_and(|r| r.trim_start().starts_with('=')))
+                .map(|i| format!("line {}: ", i + 1))
+                .unwrap_or_default()
+        };
         if file.format != FORMAT {
             return Err(Error::File {
-                path: shown,
-                message: format!("key 'format': '{}' is not a set-up file (expected '{FORMAT}')", file.format),
+                path: shown.clone(),
+                message: format!(
+                    "{}key 'format': '{}' is not a set-up file (expected '{FORMAT}')",
+                    top("format"),
+                    file.format
+                ),
             });
         }
         if file.version > VERSION || file.version == 0 {
             return Err(Error::File {
-                path: shown,
+                path: shown.clone(),
                 message: format!(
-                    "key 'version': {} — this Stagna reads set-up files of version 1 to {VERSION}; a newer file needs a newer Stagna",
+                    "{}key 'version': {} — this Stagna reads set-up files of version 1 to {VERSION}; a newer file needs a newer Stagna",
+                    top("version"),
                     file.version
                 ),
             });
@@ -468,7 +487,7 @@ impl Setup {
         let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
         let mut probes = BTreeMap::new();
         for (i, e) in file.probes.iter().enumerate() {
-            probes.insert(e.id.clone(), resolve_probe(&o, i, e, &base, today_days, max_age_days)?);
+            probes.insert(e.id.clone(), resolve_probe(&o, i, e, &base, today_days, max_age_days, read)?);
         }
         let mut gauges = BTreeMap::new();
         for (i, e) in file.gauges.iter().enumerate() {
@@ -509,15 +528,15 @@ impl Setup {
             if !probes.contains_key(&e.probe) {
                 return Err(missing("probe", "probe", &e.probe, probes.keys().collect()));
             }
-            if let Some(g) = &e.gauge {
-                if !gauges.contains_key(g) {
-                    return Err(missing("gauge", "gauge", g, gauges.keys().collect()));
-                }
+            if let Some(g) = &e.gauge
+                && !gauges.contains_key(g)
+            {
+                return Err(missing("gauge", "gauge", g, gauges.keys().collect()));
             }
-            if let Some(t) = &e.transducer {
-                if !transducers.contains_key(t) {
-                    return Err(missing("transducer", "transducer", t, transducers.keys().collect()));
-                }
+            if let Some(t) = &e.transducer
+                && !transducers.contains_key(t)
+            {
+                return Err(missing("transducer", "transducer", t, transducers.keys().collect()));
             }
             if e.gauge.is_some() == e.transducer.is_some() {
                 return Err(o.err(
@@ -528,16 +547,16 @@ impl Setup {
                     "name exactly one reading instrument: a gauge (manometer readings) or a transducer (logged Δp)",
                 ));
             }
-            if let Some(l) = &e.layout {
-                if !matches!(l.as_str(), "equal-area" | "log-linear" | "log-chebyshev") {
-                    return Err(o.err(
-                        "campaign",
-                        i,
-                        &e.id,
-                        "layout",
-                        format!("'{l}' is not a layout rule (equal-area, log-linear or log-chebyshev)"),
-                    ));
-                }
+            if let Some(l) = &e.layout
+                && !matches!(l.as_str(), "equal-area" | "log-linear" | "log-chebyshev")
+            {
+                return Err(o.err(
+                    "campaign",
+                    i,
+                    &e.id,
+                    "layout",
+                    format!("'{l}' is not a layout rule (equal-area, log-linear or log-chebyshev)"),
+                ));
             }
             for (col, unit) in &e.units {
                 crate::units::unit::Unit::parse(unit)
@@ -577,6 +596,7 @@ fn resolve_probe(
     base: &Path,
     today_days: i64,
     max_age_days: Option<i64>,
+    read: &dyn Fn(&Path) -> std::io::Result<String>,
 ) -> Result<SetupProbe> {
     let t = "probe";
     let kind = probe_kind(&e.kind).ok_or_else(|| {
@@ -617,7 +637,7 @@ fn resolve_probe(
                 ));
             }
             let p = base.join(file);
-            let text = std::fs::read_to_string(&p)
+            let text = read(&p)
                 .map_err(|err| o.err(t, i, &e.id, "calibration", format!("cannot read '{}': {err}", p.display())))?;
             let rec = CalibrationRecord::from_toml(&text, &p.display().to_string())
                 .map_err(|err| o.err(t, i, &e.id, "calibration", err))?;
@@ -636,10 +656,10 @@ fn resolve_probe(
     if let Some(d) = opt_len(o, t, i, &e.id, "head_diameter", &e.head_diameter)? {
         probe = probe.with_head_diameter(d).map_err(|err| o.err(t, i, &e.id, "head_diameter", err))?;
     }
-    if let Some(u) = e.coefficient_standard_uncertainty {
-        if !(u.is_finite() && u >= 0.0) {
-            return Err(o.err(t, i, &e.id, "coefficient_standard_uncertainty", format!("must be ≥ 0, got {u}")));
-        }
+    if let Some(u) = e.coefficient_standard_uncertainty
+        && !(u.is_finite() && u >= 0.0)
+    {
+        return Err(o.err(t, i, &e.id, "coefficient_standard_uncertainty", format!("must be ≥ 0, got {u}")));
     }
     Ok(SetupProbe {
         probe,
@@ -822,7 +842,7 @@ mod tests {
     const TODAY: i64 = 20_790; // 2026-12-03
 
     fn load(text: &str) -> Result<Setup> {
-        Setup::from_text(text, Path::new("/nowhere/site.toml"), false, TODAY, None)
+        Setup::from_text(text, Path::new("/nowhere/site.toml"), false, TODAY, None, &|p| std::fs::read_to_string(p))
     }
 
     const GOOD: &str = r#"
@@ -890,7 +910,10 @@ columns = { traverse = "run", deflection = "h_mm" }
         // Saved and read back, it is the same file.
         let again = load(&s.to_toml().unwrap()).unwrap();
         assert_eq!(again.file, s.file);
-        let json = Setup::from_text(&s.to_json().unwrap(), Path::new("x.json"), true, TODAY, None).unwrap();
+        let json = Setup::from_text(&s.to_json().unwrap(), Path::new("x.json"), true, TODAY, None, &|p| {
+            std::fs::read_to_string(p)
+        })
+        .unwrap();
         assert_eq!(json.file, s.file);
     }
 
@@ -946,6 +969,7 @@ columns = { traverse = "run", deflection = "h_mm" }
             true,
             TODAY,
             None,
+            &|p| std::fs::read_to_string(p),
         )
         .unwrap_err()
         .to_string();
