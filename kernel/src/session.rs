@@ -196,6 +196,64 @@ pub enum Event {
     Display(Bundle),
     /// `clear_output()`.
     ClearOutput,
+    /// How far a long computation has come (shown in place: a terminal bar, a notebook
+    /// display updated under one display id).
+    Progress(ProgressEvent),
+}
+
+/// One progress report of a long computation.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ProgressEvent {
+    /// Which computation (one per call of a long function in this session).
+    pub id: u64,
+    /// What is running, e.g. "reduce_campaign".
+    pub label: String,
+    /// Items done.
+    pub done: u64,
+    /// Items in all.
+    pub total: u64,
+    /// The first report of this computation.
+    pub first: bool,
+}
+
+impl ProgressEvent {
+    /// "label: 42 % (420 of 1000)".
+    pub fn text(&self) -> String {
+        let pct = (self.done * 100).checked_div(self.total).unwrap_or(100);
+        format!("{}: {pct} % ({} of {})", self.label, self.done, self.total)
+    }
+    /// An HTML progress bar with the text beside it.
+    pub fn html(&self) -> String {
+        format!(
+            "<div><progress value=\"{}\" max=\"{}\" style=\"width:20em\"></progress> <span>{}</span></div>",
+            self.done,
+            self.total.max(1),
+            self.text().replace('&', "&amp;").replace('<', "&lt;")
+        )
+    }
+}
+
+/// A terminal progress bar on standard error (drawn only when it is a terminal).
+pub fn terminal_progress(p: &ProgressEvent) {
+    static BAR: std::sync::Mutex<Option<(u64, indicatif::ProgressBar)>> = std::sync::Mutex::new(None);
+    let mut g = match BAR.lock() {
+        Ok(g) => g,
+        Err(e) => e.into_inner(),
+    };
+    if g.as_ref().is_none_or(|(id, _)| *id != p.id) {
+        let bar = indicatif::ProgressBar::with_draw_target(Some(p.total), indicatif::ProgressDrawTarget::stderr());
+        if let Ok(style) = indicatif::ProgressStyle::with_template("{msg} {bar:40} {pos}/{len}  {elapsed}") {
+            bar.set_style(style);
+        }
+        bar.set_message(p.label.clone());
+        *g = Some((p.id, bar));
+    }
+    if let Some((_, bar)) = g.as_ref() {
+        bar.set_position(p.done);
+        if p.done >= p.total {
+            bar.finish_and_clear();
+        }
+    }
 }
 
 type Sink = Arc<dyn Fn(Event) + Send + Sync>;
@@ -222,6 +280,7 @@ fn stdout_sink() -> Sink {
         Event::Stderr(s) => eprintln!("{s}"),
         Event::Display(b) => println!("{}", b.text),
         Event::ClearOutput => {}
+        Event::Progress(p) => terminal_progress(&p),
     })
 }
 
@@ -310,6 +369,31 @@ impl Session {
         engine.register_fn("eprint", move |s: &str| send(&s3, Event::Stderr(s.to_string())));
         let s4 = sink.clone();
         engine.register_fn("clear_output", move || send(&s4, Event::ClearOutput));
+        let s6 = sink.clone();
+        let ids = Arc::new(std::sync::atomic::AtomicU64::new(0));
+        let start: api::ProgressStart = Arc::new(move |label: &str| {
+            let id = ids.fetch_add(1, Ordering::Relaxed) + 1;
+            let sink = s6.clone();
+            let label = label.to_string();
+            // (last report, whether one was sent); reports at most every 200 ms, and the last.
+            let state = std::sync::Mutex::new((std::time::Instant::now(), false));
+            stagna::progress::Progress::new(move |done, total| {
+                let mut st = match state.lock() {
+                    Ok(g) => g,
+                    Err(e) => e.into_inner(),
+                };
+                let first = !st.1;
+                if !first && done < total && st.0.elapsed() < std::time::Duration::from_millis(200) {
+                    return;
+                }
+                *st = (std::time::Instant::now(), true);
+                send(&sink, Event::Progress(ProgressEvent { id, label: label.clone(), done, total, first }));
+            })
+        });
+        match prefs.write() {
+            Ok(mut g) => g.progress = Some(api::ProgressHook(start)),
+            Err(e) => e.into_inner().progress = Some(api::ProgressHook(start)),
+        }
         let s5 = sink.clone();
         engine.register_fn(
             "display",
@@ -347,6 +431,7 @@ impl Session {
             Event::Display(b) => f(&b.text),
             Event::Stderr(s) => eprintln!("{s}"),
             Event::ClearOutput => {}
+            Event::Progress(p) => terminal_progress(&p),
         });
     }
 

@@ -48,6 +48,7 @@ pub mod units;
 // Shared by every stage.
 pub mod columns;
 pub mod error;
+pub mod progress;
 pub mod steps;
 
 // The flat module paths of release 0.1, kept so that existing Rust code and

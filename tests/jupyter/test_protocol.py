@@ -350,3 +350,29 @@ def test_history_search_follows_glob_semantics(kernel):
         reply = kc.get_shell_msg(timeout=TIMEOUT)
     inputs = [h[2] for h in reply["content"]["history"]]
     assert "6 * 7" in inputs, inputs
+
+
+def test_long_cells_show_progress_in_one_display_updated_in_place(kernel):
+    """Issue 15: a long cell (Monte Carlo, campaign reduction) shows its progress as a
+    display_data with a display id, then update_display_data on that same id, ending at
+    100 %; no widget library is needed."""
+    code = (
+        'let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, '
+        'density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});\n'
+        'b.monte_carlo(2000000).trials'
+    )
+    _, kc = kernel
+    reply, msgs = run(kc, code)
+    assert reply["status"] == "ok", reply
+    shown = [m for m in msgs if m["msg_type"] == "display_data" and "display_id" in m["content"].get("transient", {})]
+    updates = [m for m in msgs if m["msg_type"] == "update_display_data"]
+    assert len(shown) == 1, [m["msg_type"] for m in msgs]
+    display_id = shown[0]["content"]["transient"]["display_id"]
+    assert updates, "no update_display_data"
+    assert all(u["content"]["transient"]["display_id"] == display_id for u in updates)
+    last = updates[-1]["content"]["data"]
+    assert "Monte Carlo trials: 100 % (2000000 of 2000000)" in last["text/plain"], last
+    assert "<progress" in last["text/html"]
+    # The result still arrives after the progress.
+    results = [m for m in msgs if m["msg_type"] == "execute_result"]
+    assert results and "2000000" in results[0]["content"]["data"]["text/plain"]

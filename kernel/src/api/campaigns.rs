@@ -95,6 +95,7 @@ fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
         flow,
         uncertainty,
         conditions,
+        progress: None,
     })
 }
 
@@ -280,14 +281,15 @@ fn campaign_uncertainty(o: &Map) -> Res<Option<CampaignUncertainty>> {
 }
 
 /// Registers the package.
-pub fn register(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
+pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Campaign>("Campaign");
     r.group("Campaign reductions");
-    reductions(r);
+    reductions(r, prefs);
 }
 
 /// Reducing campaigns and what a reduction gives.
-fn reductions(r: &mut Registrar<'_>) {
+fn reductions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    let pp = prefs.clone();
     r.func(
         "reduce_campaign",
         &Doc::new("reduce_campaign(table, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced.")
@@ -295,8 +297,9 @@ fn reductions(r: &mut Registrar<'_>) {
             .returns("Campaign (.traverses table, .failures)")
             .example("let t = table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})\n    .units(#{h: \"mm\", t: \"degC\", d: \"mm\", y: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),\n    columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\", position: \"y\"}};\nprint(reduce_campaign(t, spec).traverses);")
             .source("velocity-area method, ISO 3966:2008 §9–10; point physics as in Manometer.dp and Probe.velocity"),
-        |t: Tbl, o: Map| -> Res<Campaign> {
-            let spec = campaign_spec(&t, &o)?;
+        move |t: Tbl, o: Map| -> Res<Campaign> {
+            let mut spec = campaign_spec(&t, &o)?;
+            spec.progress = super::progress_for(&pp, "reduce_campaign: traverses");
             Ok(Campaign { res: lib(stagna::campaign::reduce_campaign(&t.df, &spec))? })
         },
     );

@@ -99,6 +99,28 @@ impl DisplayUnits {
     }
 }
 
+/// Starts the progress report of one long computation, named by a label.
+pub type ProgressStart = Arc<dyn Fn(&str) -> stagna::progress::Progress + Send + Sync>;
+
+/// The session's progress reporting (set by the session, which knows where output goes).
+#[derive(Clone)]
+pub struct ProgressHook(pub ProgressStart);
+
+impl std::fmt::Debug for ProgressHook {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("ProgressHook")
+    }
+}
+
+/// A progress report for a long computation, when the session shows progress.
+pub fn progress_for(p: &SharedPrefs, label: &str) -> Option<stagna::progress::Progress> {
+    let hook = match p.read() {
+        Ok(g) => g.progress.clone(),
+        Err(e) => e.into_inner().progress.clone(),
+    };
+    hook.map(|h| (h.0)(label))
+}
+
 /// Per-session settings read by the display functions.
 #[derive(Debug, Clone)]
 pub struct Prefs {
@@ -119,6 +141,8 @@ pub struct Prefs {
     /// anywhere the user may (the REPL). Batch runs allow their output folder and the
     /// kernel its working folder, plus each `--allow-write DIR`.
     pub write_roots: Option<Vec<std::path::PathBuf>>,
+    /// Progress reporting of long computations.
+    pub progress: Option<ProgressHook>,
 }
 
 impl Default for Prefs {
@@ -131,6 +155,7 @@ impl Default for Prefs {
             interrupt: Arc::default(),
             max_array: usize::MAX,
             write_roots: None,
+            progress: None,
         }
     }
 }

@@ -207,7 +207,8 @@ fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                 return Err(rt("monte_carlo: trials from 10 000 to 50 000 000"));
             }
             let cancel = Some(super::prefs(&pp).interrupt);
-            let mc = lib(monte_carlo(&b.model.model, &b.model.inputs, &Correlations::none(), &McOptions { trials: n as usize, coverage: b.g.coverage, cancel, ..Default::default() }))?;
+            let progress = super::progress_for(&pp, "Monte Carlo trials");
+            let mc = lib(monte_carlo(&b.model.model, &b.model.inputs, &Correlations::none(), &McOptions { trials: n as usize, coverage: b.g.coverage, cancel, progress, ..Default::default() }))?;
             let v = validate(&b.g, &mc, 2);
             let mut m = Map::new();
             m.insert("trials".into(), Dynamic::from(mc.trials as i64));

@@ -135,6 +135,16 @@ fn evaluation_thread(
             Event::Stderr(s) => ("stream", json!({"name": "stderr", "text": format!("{s}\n")})),
             Event::Display(b) => ("display_data", json!({"data": mime(&b), "metadata": {}, "transient": {}})),
             Event::ClearOutput => ("clear_output", json!({"wait": false})),
+            // One display per computation, updated in place under its display id (no
+            // widget library needed).
+            Event::Progress(pr) => (
+                if pr.first { "display_data" } else { "update_display_data" },
+                json!({
+                    "data": {"text/plain": pr.text(), "text/html": pr.html()},
+                    "metadata": {},
+                    "transient": {"display_id": format!("stagna-progress-{}", pr.id)},
+                }),
+            ),
         };
         let _ = tx.send(Out { parent, msg_type, content });
     });

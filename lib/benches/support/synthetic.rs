@@ -64,5 +64,6 @@ pub fn spec(min_points: usize) -> stagna::Result<CampaignSpec> {
         flow: Default::default(),
         uncertainty: None,
         conditions: None,
+        progress: None,
     })
 }

@@ -96,6 +96,8 @@ pub struct CampaignSpec {
     /// loads): they replace `static_pressure`, `fluid` and `flow.moisture` for the
     /// traverses they name.
     pub conditions: Option<TraverseConditions>,
+    /// Told how many traverses are done, as they finish.
+    pub progress: Option<crate::progress::Progress>,
 }
 
 /// The static pressure, fluid and moisture of each traverse, by traverse key.
@@ -653,6 +655,15 @@ fn traverse_uncertainty(
 /// Traverses per parallel work item.
 const CHUNK: usize = 2048;
 
+/// Counts a chunk of traverses as done when the chunk's results have been computed.
+struct Done<'a, 'b>(&'a crate::progress::Counter<'b>, usize);
+
+impl Drop for Done<'_, '_> {
+    fn drop(&mut self) {
+        self.0.add(self.1 as u64);
+    }
+}
+
 /// Reduces every traverse of a campaign (see the module doc).
 pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignResult> {
     use rayon::prelude::*;
@@ -735,11 +746,13 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
     let cond_of = |first: usize| lookup.at(first);
 
     // One result per traverse, in group order, computed in parallel chunks.
+    let counter = crate::progress::Counter::new(spec.progress.as_ref(), groups.len() as u64);
     let results: Vec<(usize, Result<TraverseOut>)> = match &*groups {
         GroupsType::Slice { groups, .. } => groups
             .par_chunks(CHUNK)
             .flat_map_iter(|chunk| {
                 let mut sc = Scratch::new();
+                let _done = Done(&counter, chunk.len());
                 chunk
                     .iter()
                     .map(|&[off, len]| {
@@ -755,6 +768,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             .zip(idx.all().par_chunks(CHUNK))
             .flat_map_iter(|(firsts, alls)| {
                 let mut sc = Scratch::new();
+                let _done = Done(&counter, firsts.len());
                 firsts
                     .iter()
                     .zip(alls)
@@ -927,6 +941,7 @@ mod tests {
             flow: Default::default(),
             uncertainty: None,
             conditions: None,
+            progress: None,
         }
     }
 

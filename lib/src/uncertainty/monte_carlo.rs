@@ -37,11 +37,13 @@ pub struct McOptions {
     /// Set from another thread to stop the run; it is polled between chunks of trials
     /// and the run ends with [`Error::Interrupted`].
     pub cancel: Option<Arc<AtomicBool>>,
+    /// Told how many trials are done, chunk by chunk.
+    pub progress: Option<crate::progress::Progress>,
 }
 
 impl Default for McOptions {
     fn default() -> Self {
-        Self { trials: 1_000_000, seed: 20_261_202, coverage: 0.95, cancel: None }
+        Self { trials: 1_000_000, seed: 20_261_202, coverage: 0.95, cancel: None, progress: None }
     }
 }
 
@@ -149,6 +151,19 @@ pub fn sample_model<M: Model>(
     seed: u64,
     cancel: Option<&AtomicBool>,
 ) -> Result<Vec<f64>> {
+    sample_model_reporting(model, inputs, correlations, trials, seed, cancel, None)
+}
+
+/// As [`sample_model`], telling `progress` how many trials are done chunk by chunk.
+pub fn sample_model_reporting<M: Model>(
+    model: &M,
+    inputs: &[Input],
+    correlations: &Correlations,
+    trials: usize,
+    seed: u64,
+    cancel: Option<&AtomicBool>,
+    progress: Option<&crate::progress::Progress>,
+) -> Result<Vec<f64>> {
     if trials > MAX_TRIALS {
         return Err(Error::OutOfRange {
             context: "Monte Carlo",
@@ -173,10 +188,12 @@ pub fn sample_model<M: Model>(
     let sampler = Sampler::new(inputs, correlations)?;
     let mut out = vec![0.0; trials];
     let stopped = || cancel.is_some_and(|c| c.load(Ordering::Relaxed));
+    let counter = crate::progress::Counter::new(progress, trials as u64);
     out.par_chunks_mut(CHUNK).enumerate().for_each(|(c, chunk)| {
         if stopped() {
             return;
         }
+        let n = chunk.len() as u64;
         let mut rng = SmallRng::seed_from_u64(splitmix(seed ^ splitmix(c as u64)));
         let mut x = vec![0.0; inputs.len()];
         let mut z = vec![0.0; sampler.correlated.len()];
@@ -184,6 +201,7 @@ pub fn sample_model<M: Model>(
             sampler.draw(&mut rng, &mut x, &mut z);
             *y = model.eval(&x);
         }
+        counter.add(n);
     });
     if stopped() {
         return Err(Error::Interrupted { context: "Monte Carlo" });
@@ -251,7 +269,18 @@ pub fn monte_carlo<M: Model>(
     correlations: &Correlations,
     opts: &McOptions,
 ) -> Result<McResult> {
-    summarize(sample_model(model, inputs, correlations, opts.trials, opts.seed, opts.cancel.as_deref())?, opts.coverage)
+    summarize(
+        sample_model_reporting(
+            model,
+            inputs,
+            correlations,
+            opts.trials,
+            opts.seed,
+            opts.cancel.as_deref(),
+            opts.progress.as_ref(),
+        )?,
+        opts.coverage,
+    )
 }
 
 /// The numerical tolerance δ of JCGM 101 §7.9.2 for u(y) stated to `ndig` significant digits:
@@ -431,5 +460,19 @@ mod tests {
         )
         .unwrap_err();
         assert!(e.to_string().contains("non-finite"), "{e}");
+    }
+
+    #[test]
+    fn progress_is_reported_to_the_last_trial() {
+        let i = pitot_inputs();
+        let seen = std::sync::Arc::new(std::sync::Mutex::new(Vec::new()));
+        let s2 = seen.clone();
+        let p = crate::progress::Progress::new(move |d, t| s2.lock().unwrap().push((d, t)));
+        sample_model_reporting(&PointVelocityModel, &i, &Correlations::none(), 200_000, 7, None, Some(&p)).unwrap();
+        let v = seen.lock().unwrap().clone();
+        // 200 000 trials in chunks of 65 536: four reports, the largest being all of them.
+        assert_eq!(v.len(), 4);
+        assert_eq!(v.iter().map(|x| x.0).max(), Some(200_000));
+        assert!(v.iter().all(|x| x.1 == 200_000));
     }
 }
