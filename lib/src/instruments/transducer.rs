@@ -73,7 +73,7 @@ impl TransducerCalibration {
     /// ```
     /// use stagna::instruments::transducer::{CalibrationPoint, TransducerCalibration};
     /// let p = |x, y| CalibrationPoint { indicated_pa: x, reference_pa: y };
-    /// let c = TransducerCalibration::fit(vec![p(0.0, 0.2), p(100.0, 100.1), p(200.0, 200.3)], 1, "2026-10-14", "").unwrap();
+    /// let c = TransducerCalibration::fit(vec![p(0.0, 0.2), p(100.0, 100.2), p(200.0, 200.2)], 1, "2026-10-14", "").unwrap();
     /// assert!((c.correct_pa(150.0) - 150.2).abs() < 1e-9);
     /// assert!(TransducerCalibration::fit(vec![p(0.0, 0.2)], 1, "2026-10-14", "").is_err());
     /// ```
