@@ -430,8 +430,9 @@ impl Session {
             Event::Stdout(s) => f(&s),
             Event::Display(b) => f(&b.text),
             Event::Stderr(s) => eprintln!("{s}"),
-            Event::ClearOutput => {}
-            Event::Progress(p) => terminal_progress(&p),
+            // Captured output (the batch runner, which runs files on parallel sessions
+            // and shows its own bar per file): no bar per computation.
+            Event::ClearOutput | Event::Progress(_) => {}
         });
     }
 

@@ -6,7 +6,7 @@ use rhai::{Array, Dynamic, Map};
 use stagna::instruments::transducer::Transducer;
 use stagna::io::setup::Setup;
 use stagna::units::dimension::Dimension as D;
-use stagna::units::quantity::format_number;
+use stagna::units::quantity::{format_number, format_sig};
 use stagna::{Conduit, Manometer, Probe, gravity};
 
 use super::*;
@@ -33,14 +33,7 @@ fn max_age(o: &Map) -> Res<Option<i64>> {
 }
 
 fn load(prefs: &SharedPrefs, path: &str, max_age_days: Option<i64>) -> Res<SetupV> {
-    let mut file = PathBuf::from(path);
-    if file.is_relative()
-        && !file.exists()
-        && let Some(dir) = super::prefs(prefs).output_dir
-        && dir.join(&file).exists()
-    {
-        file = dir.join(&file);
-    }
+    let file = super::tables::in_path(prefs, path);
     Ok(SetupV(Arc::new(lib(Setup::load(&file, super::stack::today_days(), max_age_days))?)))
 }
 
@@ -149,16 +142,15 @@ fn show(s: &Setup) -> String {
         out.push_str(&format!("\n  {n}"));
     }
     for (id, p) in &s.probes {
-        let src = p.probe.coefficient_source.as_deref().unwrap_or("");
         let u = p
             .coefficient_standard_uncertainty
-            .map(|u| format!(", u(C) = {} (standard, k = 1)", format_number(u)))
+            .map(|u| format!(", u(C) = {} (standard, k = 1)", format_sig(u, 2)))
             .unwrap_or_default();
         out.push_str(&format!(
             "\n  probe {id}: {}, C = {}{u} — {}",
             p.probe.kind,
             format_number(p.probe.coefficient),
-            src.rsplit(": ").next().unwrap_or(src)
+            p.source
         ));
     }
     for (id, g) in &s.gauges {
@@ -432,7 +424,7 @@ fn show_transducer(t: &Transducer) -> String {
                 c.date,
                 c.points.len(),
                 c.degree,
-                format_number(c.residual_sd_pa),
+                format_sig(c.residual_sd_pa, 2),
                 c.dof
             ));
             if let Some((a, b)) = c.linear_terms() {

@@ -38,15 +38,7 @@ pub struct Sheets(pub Vec<RunSheet>);
 /// The text of a record file. A relative path that is not here may be a record this run
 /// wrote into its output folder (where `.save` writes), so that is tried next.
 fn read_record(prefs: &SharedPrefs, path: &str) -> Res<String> {
-    let mut file = std::path::PathBuf::from(path);
-    if file.is_relative()
-        && !file.exists()
-        && let Some(dir) = super::prefs(prefs).output_dir
-        && dir.join(&file).exists()
-    {
-        file = dir.join(&file);
-    }
-    std::fs::read_to_string(&file).map_err(|e| rt(format!("{path}: cannot read: {e}")))
+    std::fs::read_to_string(super::tables::in_path(prefs, path)).map_err(|e| rt(format!("{path}: cannot read: {e}")))
 }
 
 /// Writes a record's text into the session's output folder, atomically.

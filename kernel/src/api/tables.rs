@@ -154,6 +154,20 @@ fn warn_unit_change(ctx: &NativeCallContext, column: &str, old: &str, new: &str)
     ctx.call_native_fn::<()>("eprint", (rhai::ImmutableString::from(msg),))
 }
 
+/// Where an input file the run may have written itself is read from: a relative path
+/// that is not here is looked for in the session's output folder (where saves go).
+pub fn in_path(p: &SharedPrefs, path: &str) -> PathBuf {
+    let file = PathBuf::from(path);
+    if file.is_relative()
+        && !file.exists()
+        && let Some(dir) = super::prefs(p).output_dir
+        && dir.join(&file).exists()
+    {
+        return dir.join(&file);
+    }
+    file
+}
+
 /// Where an output file goes: relative paths into the session's output folder; never
 /// onto a protected (input) file.
 pub fn out_path(p: &SharedPrefs, path: &str) -> Res<PathBuf> {

@@ -3,7 +3,7 @@
 
 use rhai::{Dynamic, Map};
 use stagna::io::plot::Chart;
-use stagna::uncertainty::flow_models::{MethodTerm, TraverseUncertainty, dp_inputs};
+use stagna::uncertainty::flow_models::{MethodTerm, TraverseUncertainty, dp_inputs, transducer_dp_inputs};
 use stagna::uncertainty::monte_carlo::{McOptions, monte_carlo, validate};
 use stagna::uncertainty::{Correlations, GumResult, Input};
 use stagna::units::dimension::Dimension as D;
@@ -35,41 +35,6 @@ fn dps_of(d: &Dynamic) -> Res<Vec<f64>> {
         return a.iter().map(|x| si_of(x, D::PRESSURE, "traverse_budget: dp")).collect();
     }
     Err(rt(format!("traverse_budget: dp must be a pressure column or an array of pressures, got {}", describe(d))))
-}
-
-/// Δp inputs whose uncertainty comes from a transducer's calibration (√(s² + u_curve²)
-/// at each point, evaluated at the corrected Δp, the curve being close to identity),
-/// with the terms given beside it; Type A with the calibration's ν when it stands alone.
-fn transducer_dp_inputs(
-    t: &stagna::instruments::transducer::Transducer,
-    dps: &[f64],
-    rel: f64,
-    abs_pa: f64,
-) -> Res<Vec<Input>> {
-    let c = t.calibration.as_ref().ok_or_else(|| {
-        rt(format!("traverse_budget: transducer {} has no calibration points; give dp_rel and dp_abs instead", t.id))
-    })?;
-    let source = format!(
-        "transducer {} calibration of {}: s = {} Pa (ν = {}) with the curve's own uncertainty{}",
-        t.id,
-        c.date,
-        stagna::units::quantity::format_number(c.residual_sd_pa),
-        c.dof,
-        if rel > 0.0 || abs_pa > 0.0 { ", plus dp_rel and dp_abs as given" } else { "" }
-    );
-    dps.iter()
-        .enumerate()
-        .map(|(i, &dp)| {
-            let u_cal = c.u_reading_pa(dp);
-            let u = ((rel * dp).powi(2) + abs_pa * abs_pa + u_cal * u_cal).sqrt();
-            let mut input = lib(Input::normal(&format!("Δp point {}", i + 1), "Pa", dp, u))?.with_source(&source);
-            if rel == 0.0 && abs_pa == 0.0 {
-                input.dof = c.dof as f64;
-                input.evaluation = stagna::uncertainty::Evaluation::TypeA;
-            }
-            Ok(input)
-        })
-        .collect()
 }
 
 /// Registers budgets.
@@ -126,7 +91,7 @@ fn budgets(r: &mut Registrar<'_>) {
                 &MethodTerm::typical(rule),
                 match &transducer {
                     None => lib(dp_inputs(&dps, dp_rel, dp_abs))?,
-                    Some(t) => transducer_dp_inputs(t, &dps, dp_rel, dp_abs)?,
+                    Some(t) => lib(transducer_dp_inputs(t, &dps, dp_rel, dp_abs))?,
                 },
             ))?;
             if velocity {

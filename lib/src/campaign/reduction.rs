@@ -655,15 +655,6 @@ fn traverse_uncertainty(
 /// Traverses per parallel work item.
 const CHUNK: usize = 2048;
 
-/// Counts a chunk of traverses as done when the chunk's results have been computed.
-struct Done<'a, 'b>(&'a crate::progress::Counter<'b>, usize);
-
-impl Drop for Done<'_, '_> {
-    fn drop(&mut self) {
-        self.0.add(self.1 as u64);
-    }
-}
-
 /// Reduces every traverse of a campaign (see the module doc).
 pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignResult> {
     use rayon::prelude::*;
@@ -752,14 +743,15 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             .par_chunks(CHUNK)
             .flat_map_iter(|chunk| {
                 let mut sc = Scratch::new();
-                let _done = Done(&counter, chunk.len());
-                chunk
+                let out = chunk
                     .iter()
                     .map(|&[off, len]| {
                         let (off, len) = (off as usize, len as usize);
                         (off, cond_of(off).and_then(|c| kernel.traverse(off..off + len, off, &mut sc, &c)))
                     })
-                    .collect::<Vec<_>>()
+                    .collect::<Vec<_>>();
+                counter.add(chunk.len() as u64);
+                out
             })
             .collect(),
         GroupsType::Idx(idx) => idx
@@ -768,8 +760,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             .zip(idx.all().par_chunks(CHUNK))
             .flat_map_iter(|(firsts, alls)| {
                 let mut sc = Scratch::new();
-                let _done = Done(&counter, firsts.len());
-                firsts
+                let out = firsts
                     .iter()
                     .zip(alls)
                     .map(|(&first, rows)| {
@@ -778,7 +769,9 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
                             .and_then(|c| kernel.traverse(rows.iter().map(|i| *i as usize), first, &mut sc, &c));
                         (first, out)
                     })
-                    .collect::<Vec<_>>()
+                    .collect::<Vec<_>>();
+                counter.add(firsts.len() as u64);
+                out
             })
             .collect(),
     };

@@ -318,7 +318,7 @@ impl Transducer {
                 c.date,
                 c.degree,
                 c.points.len(),
-                crate::units::quantity::format_number(c.residual_sd_pa),
+                crate::units::quantity::format_sig(c.residual_sd_pa, 2),
                 c.dof
             ),
             None => format!("transducer {} (readings in {}), uncalibrated", self.id, self.unit),

@@ -244,6 +244,9 @@ pub struct SetupFile {
 pub struct SetupProbe {
     /// The probe (its `coefficient_source` names this file and entry).
     pub probe: Probe,
+    /// Where the coefficient comes from (the calibration record, or the file's
+    /// `coefficient_source`); the probe's `coefficient_source` adds the file and entry.
+    pub source: String,
     /// Standard uncertainty of the coefficient, when given (absolute, k = 1).
     pub coefficient_standard_uncertainty: Option<f64>,
     /// The calibration record, when the coefficient comes from one.
@@ -581,12 +584,6 @@ impl Setup {
         serde_json::to_string_pretty(&self.file)
             .map_err(|e| Error::Inconsistent { context: "set-up file", message: format!("cannot write JSON: {e}") })
     }
-
-    /// How this file is named in results: its file name and an entry.
-    pub fn cite(&self, table: &str, id: &str) -> String {
-        let name = self.path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
-        format!("set-up {name}, {table} '{id}'")
-    }
 }
 
 fn resolve_probe(
@@ -608,12 +605,12 @@ fn resolve_probe(
             format!("'{}' is not a probe kind (pitot-static, pitot-wall-taps or s-type)", e.kind),
         )
     })?;
-    let cite = |extra: String| {
+    let cite = |source: &str| {
         let name = Path::new(o.path).file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
         let serial = e.serial.as_deref().map(|s| format!(", serial {s}")).unwrap_or_default();
-        format!("set-up {name}, probe '{}'{serial}: {extra}", e.id)
+        format!("set-up {name}, probe '{}'{serial}: {source}", e.id)
     };
-    let (mut probe, calibration) = match (&e.calibration, e.coefficient) {
+    let (mut probe, calibration, source) = match (&e.calibration, e.coefficient) {
         (Some(_), Some(_)) => {
             return Err(o.err(
                 t,
@@ -643,14 +640,15 @@ fn resolve_probe(
                 .map_err(|err| o.err(t, i, &e.id, "calibration", err))?;
             let mut probe = Probe::from_calibration(&rec, today_days, max_age_days)
                 .map_err(|err| o.err(t, i, &e.id, "calibration", err))?;
-            probe.coefficient_source = Some(cite(probe.coefficient_source.unwrap_or_default()));
-            (probe, Some(rec))
+            let source = probe.coefficient_source.take().unwrap_or_default();
+            probe.coefficient_source = Some(cite(&source));
+            (probe, Some(rec), source)
         }
         (None, Some(c)) => {
             let mut probe = Probe::new(kind, c).map_err(|err| o.err(t, i, &e.id, "coefficient", err))?;
-            probe.coefficient_source =
-                Some(cite(e.coefficient_source.clone().unwrap_or_else(|| "coefficient as stated in the file".into())));
-            (probe, None)
+            let source = e.coefficient_source.clone().unwrap_or_else(|| "coefficient as stated in the file".into());
+            probe.coefficient_source = Some(cite(&source));
+            (probe, None, source)
         }
     };
     if let Some(d) = opt_len(o, t, i, &e.id, "head_diameter", &e.head_diameter)? {
@@ -663,6 +661,7 @@ fn resolve_probe(
     }
     Ok(SetupProbe {
         probe,
+        source,
         coefficient_standard_uncertainty: e.coefficient_standard_uncertainty,
         calibration,
         entry: e.clone(),

@@ -110,6 +110,43 @@ pub fn dp_inputs(dps: &[f64], rel: f64, abs_pa: f64) -> Result<Vec<Input>> {
         .collect()
 }
 
+/// Δp inputs whose uncertainty comes from a transducer's calibration: √(s² + u_curve²)
+/// at each point (evaluated at the corrected Δp, the curve being close to identity), with
+/// `rel`·Δp and `abs_pa` beside it when given. Alone, the term is Type A with the
+/// calibration's ν degrees of freedom. The calibration is named as each input's source.
+pub fn transducer_dp_inputs(
+    t: &crate::instruments::transducer::Transducer,
+    dps: &[f64],
+    rel: f64,
+    abs_pa: f64,
+) -> Result<Vec<Input>> {
+    let c = t.calibration.as_ref().ok_or_else(|| Error::Inconsistent {
+        context: "traverse uncertainty",
+        message: format!("transducer {} has no calibration points; give dp_rel and dp_abs instead", t.id),
+    })?;
+    let alone = rel == 0.0 && abs_pa == 0.0;
+    let source = format!(
+        "transducer {} calibration of {}: s = {} Pa (ν = {}) with the curve's own uncertainty{}",
+        t.id,
+        c.date,
+        crate::units::quantity::format_sig(c.residual_sd_pa, 2),
+        c.dof,
+        if alone { "" } else { ", plus dp_rel and dp_abs as given" }
+    );
+    dps.iter()
+        .enumerate()
+        .map(|(i, &dp)| {
+            let u = ((rel * dp).powi(2) + abs_pa * abs_pa + c.u_reading_pa(dp).powi(2)).sqrt();
+            let mut input = Input::normal(&format!("Δp point {}", i + 1), "Pa", dp, u)?.with_source(&source);
+            if alone {
+                input.dof = c.dof as f64;
+                input.evaluation = crate::uncertainty::Evaluation::TypeA;
+            }
+            Ok(input)
+        })
+        .collect()
+}
+
 /// A traverse flow with its uncertainty inputs, ready for [`gum`] or Monte Carlo.
 #[derive(Debug, Clone)]
 pub struct TraverseUncertainty {

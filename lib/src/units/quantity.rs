@@ -333,6 +333,28 @@ pub fn format_number(v: f64) -> String {
     if s.contains('.') { s.trim_end_matches('0').trim_end_matches('.').to_string() } else { s }
 }
 
+/// `v` to `digits` significant figures, e.g. an uncertainty to two (GUM 7.2.6).
+///
+/// ```
+/// use stagna::units::quantity::format_sig;
+/// assert_eq!(format_sig(0.165508, 2), "0.17");
+/// assert_eq!(format_sig(0.0995, 2), "0.10");
+/// assert_eq!(format_sig(1234.5, 2), "1200");
+/// assert_eq!(format_sig(0.0025, 2), "0.0025");
+/// ```
+pub fn format_sig(v: f64, digits: u32) -> String {
+    if !v.is_finite() || v == 0.0 {
+        return format_number(v);
+    }
+    let mut mag = v.abs().log10().floor() as i32;
+    if (v * 10f64.powi(digits as i32 - 1 - mag)).round().abs() >= 10f64.powi(digits as i32) {
+        mag += 1; // rounding carried into the next digit (0.0995 → 0.10)
+    }
+    let decimals = (digits as i32 - 1 - mag).max(0) as usize;
+    let scale = 10f64.powi(digits as i32 - 1 - mag);
+    format!("{:.decimals$}", (v * scale).round() / scale)
+}
+
 /// Defines a typed quantity: a newtype over its SI value with a fixed dimension.
 macro_rules! typed_quantity {
     ($(#[$doc:meta])* $name:ident, $dim:expr, $sym:literal) => {
