@@ -287,6 +287,23 @@ const CASES: &[(&str, &[&str])] = &[
     (r##"gauge_sensitivity([1.mmH2O, -2.mmH2O, 3.mmH2O])"##, &[r##"row 2"##, r##"velocity head must be 0 or more"##]),
     (r##"cyclonic_check([4, 95, 3])"##, &[r##"row 2"##, r##"yaw angle must be within ±90°"##]),
     (
+        r##"method1a_site(round_duct(200.mm), #{straight_upstream_D: 9})"##,
+        &[r##"option 'straight_downstream_D' is required"##],
+    ),
+    (
+        r##"method1a_site(round_duct(200.mm), #{straight_upstream_D: -1, straight_downstream_D: 3})"##,
+        &[r##"straight length upstream of the site must be 0 or more"##],
+    ),
+    (r##"method1a_steady_flow(0.4.m3_s, 12.m_s)"##, &[r##"same kind of quantity"##]),
+    (
+        r##"let t = table_from(#{tr: ["T1","T1","T1","T1"], h: [20.0, 30.0, 30.0, 20.0], t: [150.0, 150.0, 150.0, 150.0], d: [500.0, 500.0, 500.0, 500.0]}).units(#{h: "mm", t: "degC", d: "mm"}); reduce_campaign(t, #{fluid: flue_gas(12, 6, 0, 0.1), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: s_type(0.84), columns: #{traverse: "tr", deflection: "h", fluid_temperature: "t", size: "d"}, method2: #{report: "best"}})"##,
+        &[r##"method2.report: 'best' unknown"##, r##""physics" or "method""##],
+    ),
+    (
+        r##"let t = table_from(#{tr: ["T1","T1","T1","T1"], h: [20.0, 30.0, 30.0, 20.0], t: [150.0, 150.0, 150.0, 150.0], d: [500.0, 500.0, 500.0, 500.0]}).units(#{h: "mm", t: "degC", d: "mm"}); reduce_campaign(t, #{fluid: flue_gas(12, 6, 0, 0.1), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: s_type(0.84), columns: #{traverse: "tr", deflection: "h", fluid_temperature: "t", size: "d"}, method2: #{}})"##,
+        &[r##"no dry molecular weight m_d"##, r##"method2: #{md: ...}"##],
+    ),
+    (
         r##"method2_run(#{dp: [10.mmH2O, 12.mmH2O, 14.mmH2O], stack_temperature: 150.degC, barometric: 760.mmHg, static_pressure: 0.Pa, co2: 12, o2: 6, n2_co: 82, moisture: 1.0, probe: s_type(0.84), diameter: 1.5.m})"##,
         &[r##"b_ws must be in [0, 1)"##],
     ),

@@ -116,6 +116,16 @@ fn stack_test_by_the_methods_equations() {
         .map(|l| number_after(l, "Q_sd"))
         .expect("physics Q_sd");
     assert!((q_campaign * 3600.0 / (physics / 0.995) - 1.0).abs() < 1e-3, "{q_campaign} m³/s vs {physics} dscm/h");
+    // The campaign's Method 2 route (eq. 2-7 over the same runs, M_d by Method 3 from the
+    // runs table) against the sheet's unadjusted v_s for R2: the same equations by two code
+    // paths; the Δp differ only by the gas density over the gauge oil (1.15 kg/m³ typed on
+    // the sheet, the stack gas at the section in the campaign), under 0.1 %.
+    let m2_campaign = row
+        .split('┆')
+        .nth(4)
+        .and_then(|c| c.trim().trim_end_matches('│').trim().parse::<f64>().ok())
+        .expect("Method 2 velocity");
+    assert!((m2_campaign / v - 1.0).abs() < 1e-3, "{m2_campaign} m/s vs {v} m/s");
     let csv = std::fs::read_to_string(dir.join("stack-run-sheets.csv")).unwrap_or_default();
     assert!(csv.starts_with("run,group,symbol,quantity,value,unit,verdict,source"), "{csv}");
     assert!(csv.contains("R3,reported,Q_sd,"), "{csv}");

@@ -39,6 +39,7 @@ fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
             "uncertainty",
             "runs",
             "run_columns",
+            "method2",
         ],
         "campaign",
     )?;
@@ -84,6 +85,16 @@ fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
         }
         None => None,
     };
+    let method2 = method2_route(o)?;
+    if let Some(m) = &method2
+        && m.dry_molecular_weight.is_none()
+        && conditions.as_ref().is_none_or(|c| c.dry_molecular_weight.iter().all(Option::is_none))
+    {
+        return Err(rt(
+            "campaign method2: no dry molecular weight M_d: give method2: #{md: ...} (g/g-mol), or a runs table with \
+             md, or co2 and o2 (Method 3)",
+        ));
+    }
     Ok(CampaignSpec {
         columns,
         fluid,
@@ -96,14 +107,34 @@ fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
         uncertainty,
         conditions,
         progress: None,
+        method2,
     })
+}
+
+/// The `method2` option: `#{md, report}` (report "physics", the default, or "method").
+fn method2_route(o: &Map) -> Res<Option<stagna::campaign::Method2Route>> {
+    let Some(d) = field(o, "method2") else { return Ok(None) };
+    let m: Map = d.clone().try_cast().ok_or_else(|| {
+        rt("campaign: 'method2' must be a map, e.g. #{md: 30.2, report: \"method\"} (md: the dry molecular weight, g/g-mol)")
+    })?;
+    check_keys(&m, &["md", "report"], "campaign method2")?;
+    let md = field(&m, "md").map(|v| number(v, "method2.md (dry molecular weight, g/g-mol)")).transpose()?;
+    let report = match field(&m, "report").map(|v| text(v, "method2.report")).transpose()?.as_deref() {
+        None | Some("physics") => false,
+        Some("method") => true,
+        Some(other) => {
+            return Err(rt(format!("campaign method2.report: '{other}' unknown; write \"physics\" or \"method\"")));
+        }
+    };
+    Ok(Some(stagna::campaign::Method2Route { dry_molecular_weight: md, report }))
 }
 
 /// Per-traverse conditions from a runs table: one row per traverse, keyed by a column of
 /// the same name as the campaign's traverse column. Columns (named as `run_columns` maps
 /// them, else by the key): static_pressure (absolute), or barometric with static_gauge;
 /// co2, o2, co (%, dry; a stack gas of that analysis); moisture (B_ws). What a row does not
-/// give comes from the campaign's constants.
+/// give comes from the campaign's constants. For the Method 2 route: md (M_d, g/g-mol),
+/// else M_d by Method 3 eq. 3-1 from co2 and o2 (N₂ + CO by difference).
 fn traverse_conditions(
     runs: &Tbl,
     o: &Map,
@@ -112,7 +143,7 @@ fn traverse_conditions(
     static_pressure: Pressure,
     moisture: Option<f64>,
 ) -> Res<stagna::campaign::TraverseConditions> {
-    const KEYS: [&str; 7] = ["static_pressure", "barometric", "static_gauge", "co2", "o2", "co", "moisture"];
+    const KEYS: [&str; 8] = ["static_pressure", "barometric", "static_gauge", "co2", "o2", "co", "moisture", "md"];
     let names: Map = match field(o, "run_columns") {
         Some(m) => m.clone().try_cast().ok_or_else(|| rt("campaign: 'run_columns' must be a map"))?,
         None => Map::new(),
@@ -124,8 +155,8 @@ fn traverse_conditions(
         if has(&name) { runs.column(&name).map(Some) } else { Ok(None) }
     };
     let cols: Vec<Option<Col>> = KEYS.iter().map(|k| col_of(k)).collect::<Res<_>>()?;
-    let [sp, bar, gauge, co2, o2, co, bws] =
-        <[Option<Col>; 7]>::try_from(cols).map_err(|_| rt("campaign: runs columns"))?;
+    let [sp, bar, gauge, co2, o2, co, bws, md_col] =
+        <[Option<Col>; 8]>::try_from(cols).map_err(|_| rt("campaign: runs columns"))?;
     for (c, what) in [(&sp, "static_pressure"), (&bar, "barometric"), (&gauge, "static_gauge")] {
         if let Some(c) = c
             && c.dimension != D::PRESSURE
@@ -150,7 +181,7 @@ fn traverse_conditions(
             None => Ok(None),
         }
     };
-    let (mut p, mut fl, mut m) = (Vec::new(), Vec::new(), Vec::new());
+    let (mut p, mut fl, mut m, mut mds) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     for (i, key) in keys.iter().enumerate() {
         let pressure =
             match (at(&sp, i, "static_pressure")?, at(&bar, i, "barometric")?, at(&gauge, i, "static_gauge")?) {
@@ -160,6 +191,15 @@ fn traverse_conditions(
                 (None, None, None) => static_pressure.si(),
             };
         let b = at(&bws, i, "moisture")?.or(moisture);
+        let row_err = |e: stagna::Error| rt(format!("campaign runs: row {} ({key}): {e}", i + 1));
+        let md = match (at(&md_col, i, "md")?, at(&co2, i, "co2")?) {
+            (Some(md), _) => Some(md),
+            (None, Some(c)) => {
+                let o = at(&o2, i, "o2")?.unwrap_or(0.0);
+                Some(stagna::methods::us_epa::dry_molecular_weight(c, o, 100.0 - c - o).map_err(row_err)?)
+            }
+            (None, None) => None,
+        };
         let f = match at(&co2, i, "co2")? {
             Some(c) => Fluid::Gas(
                 lib(GasMixture::flue_gas(
@@ -175,8 +215,9 @@ fn traverse_conditions(
         p.push(pressure);
         fl.push(f);
         m.push(b);
+        mds.push(md);
     }
-    lib(stagna::campaign::TraverseConditions::new(keys, p, fl, m))
+    lib(stagna::campaign::TraverseConditions::new(keys, p, fl, m).and_then(|c| c.with_dry_molecular_weight(mds)))
 }
 
 /// The `columns` map of a campaign spec: which table column holds what, each checked
@@ -293,7 +334,7 @@ fn reductions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "reduce_campaign",
         &Doc::new("reduce_campaign(table, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced.")
-            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{coefficient, density, diameter, dp_rel, dp_abs, coverage, rule}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture) with run_columns (key → column name)")
+            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{coefficient, density, diameter, dp_rel, dp_abs, coverage, rule}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture, md) with run_columns (key → column name); method2 #{md?, report: \"physics\" | \"method\"} adds each traverse by US EPA Method 2 eq. 2-7 and 2-10 (epa_m2_velocity_m_s, epa_m2_dry_flow_20C_760mmHg_m3_h, physics_velocity_m_s, epa_m2_minus_physics_pct, reported_route; M_d per run from md, else Method 3 eq. 3-1 from co2/o2)")
             .returns("Campaign (.traverses table, .failures)")
             .example("let t = table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})\n    .units(#{h: \"mm\", t: \"degC\", d: \"mm\", y: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),\n    columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\", position: \"y\"}};\nprint(reduce_campaign(t, spec).traverses);")
             .source("velocity-area method, ISO 3966:2008 §9–10; point physics as in Manometer.dp and Probe.velocity"),

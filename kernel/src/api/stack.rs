@@ -433,6 +433,51 @@ fn checks(r: &mut Registrar<'_>) {
         |y: Dynamic| -> Res<MethodCheck> { lib(site_checks::cyclonic_flow(&degrees(&y, "yaw")?)) },
     );
     r.func(
+        "method1a_site",
+        &Doc::new("method1a_site(conduit, options) -> Array", "US EPA Method 1A checks of a small stack or duct (0.10 m to under 0.30 m across, or 0.0081 m² to under 0.071 m²): the size range, the straight lengths before and after the particulate site (preferred: 8 D before and 10 D after; alternative: 2 D and 2.5 D) and where the standard pitot's velocity site stands (8 D, or 2 D at the alternative location, after the particulate site). Distances in equivalent diameters along the flow.")
+            .param("conduit", "the stack or duct (round_duct or rect_duct)")
+            .param("options", "map: straight_upstream_D (straight length from the nearest disturbance before the site to the site), straight_downstream_D (from the site to the nearest disturbance after it), velocity_site_D (optional: velocity site after the particulate site)")
+            .example("for c in method1a_site(round_duct(200.mm), #{straight_upstream_D: 9, straight_downstream_D: 11, velocity_site_D: 8}) { print(c); }")
+            .source("US EPA Method 1A §1.2 (size range, read in the published text); §11.1.1 site distances from memory, unverified"),
+        |c: stagna::Conduit, o: Map| -> Res<Array> {
+            check_keys(&o, &["straight_upstream_D", "straight_downstream_D", "velocity_site_D"], "method1a_site")?;
+            let need = |k: &str| {
+                field(&o, k)
+                    .ok_or_else(|| rt(format!("method1a_site: option '{k}' is required (equivalent diameters)")))
+                    .and_then(|d| number(d, k))
+            };
+            let site = site_checks::SmallDuctSite {
+                diameter_m: match c.section {
+                    stagna::section::conduit::Section::Circular { diameter } => Some(diameter.si()),
+                    _ => None,
+                },
+                area_m2: c.area().si(),
+                straight_upstream_d: need("straight_upstream_D")?,
+                straight_downstream_d: need("straight_downstream_D")?,
+                velocity_site_d: field(&o, "velocity_site_D").map(|d| number(d, "velocity_site_D")).transpose()?,
+            };
+            Ok(lib(site_checks::method1a_site(&site))?.into_iter().map(Dynamic::from).collect())
+        },
+    );
+    r.func(
+        "method1a_steady_flow",
+        &Doc::new("method1a_steady_flow(before, after) -> MethodCheck", "US EPA Method 1A steady-flow check where sampling and velocity share one location: the flow (or mean velocity) from a complete velocity traverse after the sampling run against the one before it; the run is acceptable when they differ by 10 % or less.")
+            .param("before", "flow or mean velocity from the traverse before the run")
+            .param("after", "the same quantity from the traverse after the run")
+            .example("print(method1a_steady_flow(0.412.m3_s, 0.437.m3_s));")
+            .source("US EPA Method 1A §11.1.2 (10 % criterion from memory, unverified)"),
+        |a: Dynamic, b: Dynamic| -> Res<MethodCheck> {
+            let qa = a.clone().try_cast::<Q>();
+            let qb = b.clone().try_cast::<Q>();
+            let (x, y) = match (qa, qb) {
+                (Some(x), Some(y)) if x.q.dimension == y.q.dimension => (x.q.si, y.q.si),
+                (Some(_), Some(_)) => return Err(rt("method1a_steady_flow: before and after must be the same kind of quantity (both flows or both velocities)")),
+                _ => (number(&a, "before")?, number(&b, "after")?),
+            };
+            lib(site_checks::method1a_steady_flow(x, y))
+        },
+    );
+    r.func(
         "gauge_sensitivity",
         &Doc::new("gauge_sensitivity(dp) -> Array", "Method 2 checks of whether a more sensitive gauge is needed: the sensitivity factor T = Σ√(Δp + K)/Σ√Δp (K = 0.127 mm H₂O) against 1.05, the mean Δp and the count of readings below 1.3 mm H₂O.")
             .param("dp", "velocity heads of one traverse (pressures: array or column)")

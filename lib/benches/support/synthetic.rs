@@ -65,5 +65,6 @@ pub fn spec(min_points: usize) -> stagna::Result<CampaignSpec> {
         uncertainty: None,
         conditions: None,
         progress: None,
+        method2: None,
     })
 }

@@ -98,6 +98,22 @@ pub struct CampaignSpec {
     pub conditions: Option<TraverseConditions>,
     /// Told how many traverses are done, as they finish.
     pub progress: Option<crate::progress::Progress>,
+    /// The US EPA Method 2 route beside (or instead of) the physics route.
+    pub method2: Option<Method2Route>,
+}
+
+/// The US EPA Method 2 route of a campaign: each traverse also reduced by the method's
+/// own equations (eq. 2-7 velocity from the mean of √Δp in mm H₂O and the mean stack
+/// temperature, eq. 2-10 dry flow at 20 °C and 760 mmHg, with the method's rounded
+/// constants; see [`crate::methods::us_epa`]), beside the physics route (density per
+/// point, compressibility correction) with the difference shown.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Method2Route {
+    /// Dry molecular weight M_d (g/g-mol) for traverses whose conditions give none.
+    pub dry_molecular_weight: Option<f64>,
+    /// Report the method's velocity and flows in the main columns (the physics route's
+    /// velocity is then kept beside); otherwise the physics route is reported.
+    pub report: bool,
 }
 
 /// The static pressure, fluid and moisture of each traverse, by traverse key.
@@ -111,6 +127,9 @@ pub struct TraverseConditions {
     pub fluid: Vec<Fluid>,
     /// Water-vapour fraction B_ws for the dry-basis flow, if any.
     pub moisture: Vec<Option<f64>>,
+    /// Dry molecular weight M_d (g/g-mol) of each traverse's gas for the Method 2 route,
+    /// if given (from that run's analysis by Method 3, or directly).
+    pub dry_molecular_weight: Vec<Option<f64>>,
 }
 
 impl TraverseConditions {
@@ -146,7 +165,29 @@ impl TraverseConditions {
                 )?;
             }
         }
-        Ok(Self { keys, static_pressure_pa, fluid, moisture })
+        let dry_molecular_weight = vec![None; n];
+        Ok(Self { keys, static_pressure_pa, fluid, moisture, dry_molecular_weight })
+    }
+
+    /// The dry molecular weight of each traverse (g/g-mol) for the Method 2 route.
+    pub fn with_dry_molecular_weight(mut self, md: Vec<Option<f64>>) -> Result<Self> {
+        if md.len() != self.keys.len() {
+            return Err(Error::Inconsistent {
+                context: "traverse conditions",
+                message: "one dry molecular weight (or none) per traverse key".into(),
+            });
+        }
+        for (k, m) in self.keys.iter().zip(&md) {
+            if let Some(m) = m {
+                crate::error::within("traverse conditions", "dry molecular weight M_d", *m, "g/g-mol", 2.0, 100.0)
+                    .map_err(|e| Error::Inconsistent {
+                        context: "traverse conditions",
+                        message: format!("traverse {k}: {e}"),
+                    })?;
+            }
+        }
+        self.dry_molecular_weight = md;
+        Ok(self)
     }
 }
 
@@ -157,6 +198,8 @@ struct Cond<'a> {
     fluid: &'a Fluid,
     gamma: Option<f64>,
     dry: Option<f64>,
+    /// Dry molecular weight for the Method 2 route, g/g-mol.
+    md: Option<f64>,
 }
 
 /// Relative standard uncertainties for the per-traverse GUM budget of the flow
@@ -335,6 +378,8 @@ struct TraverseOut {
     dry: Option<f64>,
     /// (u, relative u, k, U, ν_eff) of the flow.
     unc: Option<[f64; 5]>,
+    /// Method 2 route: (v_s m/s, Q_sd dscm/h, physics velocity m/s).
+    m2: Option<[f64; 3]>,
 }
 
 /// Everything a traverse reduction reads, shared by all threads.
@@ -457,6 +502,7 @@ impl Kernel<'_> {
             }
         };
         let (mut n, mut sum_v, mut sum_rho, mut vmax, mut reversed, mut sum_t) = (0u32, 0.0, 0.0, f64::MIN, 0u32, 0.0);
+        let mut sum_sqrt_dp_mm = 0.0;
         let (mut ordered, mut last_line, mut last_s) = (true, f64::MIN, f64::MIN);
         if spec.conditions.is_some() {
             // The density memos are keyed by temperature alone: another traverse's fluid or
@@ -482,6 +528,15 @@ impl Kernel<'_> {
             let (dp, rho_f, v, t) = self.phys.point(row, cond, &mut sc.memos).map_err(at)?;
             if spec.uncertainty.is_some() {
                 sc.dps.push(dp);
+            }
+            if spec.method2.is_some() {
+                if dp < 0.0 {
+                    return Err(at(Error::Inconsistent {
+                        context: "US EPA Method 2 route",
+                        message: "negative velocity head (reverse flow); Method 2 does not apply".into(),
+                    }));
+                }
+                sum_sqrt_dp_mm += (dp / crate::methods::us_epa::PA_PER_MM_H2O).sqrt();
             }
             n += 1;
             sum_v += v;
@@ -596,6 +651,38 @@ impl Kernel<'_> {
                 integ => section_mean(&sc.lines, &sc.pos, &sc.v, integ)?.mean.si(),
             };
         let rho = sum_rho / f64::from(n);
+        let t_mean = sum_t / f64::from(n);
+        let m2 = match &spec.method2 {
+            None => None,
+            Some(route) => {
+                use crate::methods::us_epa as m;
+                let md = cond.md.or(route.dry_molecular_weight).ok_or_else(|| Error::Inconsistent {
+                    context: "US EPA Method 2 route",
+                    message: "no dry molecular weight M_d for this traverse: give the stack-gas analysis (CO₂, O₂) or \
+                              M_d for the run, or one M_d for the campaign"
+                        .into(),
+                })?;
+                let b_ws = cond.dry.map_or(0.0, |k| 1.0 - k);
+                let m_s = m::wet_molecular_weight(md, b_ws)?;
+                let t_s_c = t_mean - 273.15;
+                let p_s = cond.p / m::PA_PER_MM_HG;
+                let v = self.wall_factor
+                    * m::velocity_from_mean_sqrt(
+                        spec.probe.coefficient,
+                        sum_sqrt_dp_mm / f64::from(n),
+                        t_s_c,
+                        p_s,
+                        m_s,
+                        m::MethodUnits::Metric,
+                    )?;
+                let q_sd = m::dry_standard_flow_metric(b_ws, v, area, t_s_c, p_s)?;
+                Some([v, q_sd, mean_v])
+            }
+        };
+        let mean_v = match (&spec.method2, m2) {
+            (Some(r), Some([v, ..])) if r.report => v,
+            _ => mean_v,
+        };
         let q = mean_v * area;
         // Rectangular: the equivalent size √(W·H) with A = size², and u(size)/size = r/√2 when
         // width and height each have relative uncertainty r (derived).
@@ -617,10 +704,11 @@ impl Kernel<'_> {
             rho,
             vmax,
             reversed,
-            t_mean: sum_t / f64::from(n),
+            t_mean,
             p: cond.p,
             dry: cond.dry,
             unc,
+            m2,
         })
     }
 }
@@ -722,7 +810,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         .map(|b| 1.0 - b);
     let key_series = df.column(&cols.traverse).map_err(table_err)?.as_materialized_series().clone();
     let groups = groups(df, &cols.traverse)?;
-    let base = Cond { p: spec.static_pressure.si(), fluid: &spec.fluid, gamma, dry };
+    let base = Cond { p: spec.static_pressure.si(), fluid: &spec.fluid, gamma, dry, md: None };
     if let Some(c) = &spec.conditions
         && c.fluid.iter().any(|f| f.isentropic_exponent().is_some() != gamma.is_some())
     {
@@ -822,6 +910,23 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
         }
         traverses.with_column(f("reference_flow_m3_s", q_ref)).map_err(table_err)?;
     }
+    if let Some(route) = &spec.method2 {
+        if gamma.is_none() {
+            return Err(Error::Inconsistent {
+                context: "US EPA Method 2 route",
+                message: "the method is for gases".into(),
+            });
+        }
+        let m2 = |k: usize| outs.iter().map(|o| o.m2.map_or(f64::NAN, |m| m[k])).collect::<Vec<f64>>();
+        let diff =
+            outs.iter().map(|o| o.m2.map_or(f64::NAN, |[v, _, phys]| (v - phys) / phys * 100.0)).collect::<Vec<f64>>();
+        traverses.with_column(f("epa_m2_velocity_m_s", m2(0))).map_err(table_err)?;
+        traverses.with_column(f("epa_m2_dry_flow_20C_760mmHg_m3_h", m2(1))).map_err(table_err)?;
+        traverses.with_column(f("physics_velocity_m_s", m2(2))).map_err(table_err)?;
+        traverses.with_column(f("epa_m2_minus_physics_pct", diff)).map_err(table_err)?;
+        let name = if route.report { "US EPA Method 2 (eq. 2-7, 2-10)" } else { "physics" };
+        traverses.with_column(Column::new("reported_route".into(), vec![name; outs.len()])).map_err(table_err)?;
+    }
     Ok(CampaignResult { traverses, failures, warnings: spec.probe.notes.clone() })
 }
 
@@ -868,6 +973,7 @@ impl<'a> CondLookup<'a> {
             fluid: &c.fluid[i],
             gamma: c.fluid[i].isentropic_exponent(),
             dry: c.moisture[i].map(|b| 1.0 - b).or(self.base.dry),
+            md: c.dry_molecular_weight.get(i).copied().flatten(),
         })
     }
 }
@@ -879,8 +985,13 @@ pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame
     let n = df.height();
     let (mut dps, mut rhos, mut vs) = (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
     let mut memos = Memos::new();
-    let base =
-        Cond { p: spec.static_pressure.si(), fluid: &spec.fluid, gamma: spec.fluid.isentropic_exponent(), dry: None };
+    let base = Cond {
+        p: spec.static_pressure.si(),
+        fluid: &spec.fluid,
+        gamma: spec.fluid.isentropic_exponent(),
+        dry: None,
+        md: None,
+    };
     let lookup = CondLookup::new(df, spec, base)?;
     let mut last_key: Option<&str> = None;
     let mut cond = base;
@@ -935,6 +1046,7 @@ mod tests {
             uncertainty: None,
             conditions: None,
             progress: None,
+            method2: None,
         }
     }
 
@@ -993,6 +1105,98 @@ mod tests {
         for (i, s) in scalar.iter().enumerate() {
             assert!((v.get(i).unwrap() - s).abs() < 1e-12);
         }
+    }
+
+    // The Method 2 route in a campaign is the method's eq. 2-7/2-10 (tested against the
+    // worked example in `methods::us_epa`) over the same per-point Δp the physics route
+    // reads: here it is recomputed from `point_velocities` and `us_epa::velocity`.
+    #[test]
+    fn method2_route_beside_and_instead_of_physics() {
+        use crate::methods::us_epa as m;
+        let gas = Fluid::Gas(crate::GasMixture::flue_gas(12.0, 6.0, 0.0, 0.10).unwrap());
+        let mut spec = air_spec();
+        spec.fluid = gas;
+        spec.static_pressure = Pressure::pa(99_500.0);
+        spec.flow = crate::section::flow::FlowOptions {
+            reference: Some(crate::ReferenceCondition::Normal0C),
+            moisture: Some(0.10),
+            wall_factor: None,
+        };
+        spec.method2 = Some(Method2Route { dry_molecular_weight: Some(30.16), report: false });
+        let temps = vec![150.0, 151.0, 149.0, 150.5, 150.0, 150.0, 150.0, 150.0];
+        let df = frame(
+            vec![1, 1, 1, 1, 2, 2, 2, 2],
+            vec![20.0, 30.0, 31.0, 21.0, 22.0, 33.0, 24.0, 23.0],
+            temps.clone(),
+            [EA4; 2].concat(),
+        );
+        let r = reduce_campaign(&df, &spec).unwrap();
+        assert!(r.failures.is_empty(), "{:?}", r.failures);
+        let pts = point_velocities(&df.slice(0, 4), &spec).unwrap();
+        let dp_mm: Vec<f64> =
+            pts.column("dp_pa").unwrap().f64().unwrap().into_no_null_iter().map(|d| d / m::PA_PER_MM_H2O).collect();
+        let t_s = temps[..4].iter().sum::<f64>() / 4.0;
+        let p_s = 99_500.0 / m::PA_PER_MM_HG;
+        let m_s = m::wet_molecular_weight(30.16, 0.10).unwrap();
+        let v = m::velocity(0.998, &dp_mm, t_s, p_s, m_s, m::MethodUnits::Metric).unwrap();
+        let area = std::f64::consts::PI * 0.25 / 4.0;
+        let q_sd = m::dry_standard_flow_metric(0.10, v, area, t_s, p_s).unwrap();
+        let get = |c: &str| r.traverses.column(c).unwrap().f64().unwrap().get(0).unwrap();
+        assert!((get("epa_m2_velocity_m_s") - v).abs() < 1e-9 * v);
+        assert!((get("epa_m2_dry_flow_20C_760mmHg_m3_h") - q_sd).abs() < 1e-9 * q_sd);
+        let phys = get("mean_velocity_m_s");
+        assert_eq!(get("physics_velocity_m_s"), phys);
+        let diff = get("epa_m2_minus_physics_pct");
+        assert!((diff - (v - phys) / phys * 100.0).abs() < 1e-9);
+        // Same gas, same readings: the two routes differ by the rounded constants and the
+        // averaging of √Δp against the mean of point velocities, a fraction of a percent.
+        assert!(diff.abs() < 0.5, "{diff}");
+        assert_eq!(r.traverses.column("reported_route").unwrap().str().unwrap().get(0), Some("physics"));
+        // Reported by the method: the main columns carry the method's velocity.
+        spec.method2 = Some(Method2Route { dry_molecular_weight: Some(30.16), report: true });
+        let r2 = reduce_campaign(&df, &spec).unwrap();
+        let get2 = |c: &str| r2.traverses.column(c).unwrap().f64().unwrap().get(0).unwrap();
+        assert!((get2("mean_velocity_m_s") - v).abs() < 1e-9 * v);
+        assert!((get2("volume_flow_m3_s") - v * area).abs() < 1e-9);
+        assert_eq!(get2("physics_velocity_m_s"), phys);
+        assert!(r2.traverses.column("reported_route").unwrap().str().unwrap().get(0).unwrap().contains("Method 2"));
+        // Per-run M_d wins over the campaign's; a traverse with none fails alone, named.
+        spec.method2 = Some(Method2Route { dry_molecular_weight: None, report: false });
+        let fl = spec.fluid.clone();
+        spec.conditions = Some(
+            TraverseConditions::new(
+                vec!["1".into(), "2".into()],
+                vec![99_500.0; 2],
+                vec![fl.clone(), fl],
+                vec![Some(0.10); 2],
+            )
+            .unwrap()
+            .with_dry_molecular_weight(vec![Some(30.16), None])
+            .unwrap(),
+        );
+        let r3 = reduce_campaign(&df, &spec).unwrap();
+        assert_eq!(r3.traverses.height(), 1);
+        assert!(
+            (r3.traverses.column("epa_m2_velocity_m_s").unwrap().f64().unwrap().get(0).unwrap() - v).abs() < 1e-9 * v
+        );
+        assert!(r3.failures[0].message.contains("no dry molecular weight"), "{:?}", r3.failures);
+        // Reverse flow: Method 2 does not apply; the traverse fails, named.
+        spec.conditions = None;
+        spec.method2 = Some(Method2Route { dry_molecular_weight: Some(30.16), report: false });
+        let rev = frame(vec![1, 1, 1, 1], vec![20.0, -3.0, 31.0, 21.0], vec![150.0; 4], EA4.to_vec());
+        let r4 = reduce_campaign(&rev, &spec).unwrap();
+        assert!(
+            r4.failures[0].message.contains("point 2") && r4.failures[0].message.contains("reverse flow"),
+            "{:?}",
+            r4.failures
+        );
+        // Water is not a stack gas.
+        assert!(
+            TraverseConditions::new(vec!["1".into()], vec![1e5], vec![spec.fluid.clone()], vec![None])
+                .unwrap()
+                .with_dry_molecular_weight(vec![Some(1.0)])
+                .is_err()
+        );
     }
 
     #[test]
@@ -1089,6 +1293,7 @@ mod tests {
         spec.conditions.as_mut().unwrap().static_pressure_pa.push(101_000.0);
         spec.conditions.as_mut().unwrap().fluid.push(gas(10.0, 0.10));
         spec.conditions.as_mut().unwrap().moisture.push(None);
+        spec.conditions.as_mut().unwrap().dry_molecular_weight.push(None);
         let pts = point_velocities(&df, &spec).unwrap();
         let rho = pts.column("density_kg_m3").unwrap().f64().unwrap();
         let alone = gas(12.0, 0.14).density_si(97_500.0, 423.15).unwrap();

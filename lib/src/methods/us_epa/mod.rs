@@ -122,8 +122,14 @@ pub fn mean_sqrt_dp(dp: &[f64]) -> Result<f64> {
 /// assert!((v - 14.3852).abs() < 1e-4); // check-values.md §4.2 worked example
 /// ```
 pub fn velocity(cp: f64, dp: &[f64], t_s: f64, p_s: f64, m_s: f64, units: MethodUnits) -> Result<f64> {
+    velocity_from_mean_sqrt(cp, mean_sqrt_dp(dp)?, t_s, p_s, m_s, units)
+}
+
+/// Method 2 eq. 2-7 from the mean of √Δp already formed (Δp in mm H₂O metric, in. H₂O
+/// English), as a campaign reduction accumulates it.
+pub fn velocity_from_mean_sqrt(cp: f64, s: f64, t_s: f64, p_s: f64, m_s: f64, units: MethodUnits) -> Result<f64> {
     within("EPA Method 2", "pitot coefficient C_p", cp, "", 0.5, 1.2)?;
-    let s = mean_sqrt_dp(dp)?;
+    finite("EPA Method 2", "mean of √Δp", s)?;
     finite("EPA Method 2", "stack temperature", t_s)?;
     positive(
         "EPA Method 2",

@@ -1,6 +1,7 @@
 //! Checks a US EPA stack test makes on the site and the readings before it reports a
-//! flow: cyclonic flow (Method 1), gauge sensitivity at low velocity heads (Method 2),
-//! and whether a Method 2H default wall factor may be used.
+//! flow: cyclonic flow (Method 1), small stacks and ducts (Method 1A), gauge sensitivity
+//! at low velocity heads (Method 2), and whether a Method 2H default wall factor may be
+//! used.
 //!
 //! # Formula
 //! - Cyclonic flow: the null (yaw) angle α_i at each point, mean of |α_i| against 20°.
@@ -8,6 +9,12 @@
 //!   (0.005 in. H₂O); a more sensitive gauge is needed when T > 1.05. Also: the mean Δp
 //!   below 1.3 mm (0.05 in.) H₂O, or more than 10 % of the readings below it (12 or more
 //!   points), or more than one reading below it (fewer than 12 points).
+//! - Method 1A (small stacks and ducts): 0.10 m ≤ D < 0.30 m, or 0.0081 m² ≤ A < 0.071 m²
+//!   for other shapes. Particulate site preferably ≥ 8 equivalent diameters after and
+//!   ≥ 10 before the nearest disturbances, the standard pitot's velocity site 8 diameters
+//!   after it; where that cannot be had, ≥ 2 after and ≥ 2.5 before, velocity site 2
+//!   diameters after. Steady flow when the flow from a velocity traverse after the
+//!   sampling run is within 10 % of the one before.
 //! - Method 2H default wall adjustment factor: 0.9900 for brick-and-mortar stacks,
 //!   0.9950 for all other stacks and ducts; circular stacks of 1.0 m (3.3 ft) or more.
 //!
@@ -18,7 +25,10 @@
 //! shows how to tell); Method 2H §1.1 (circular stacks and ducts), §1.2 (not below
 //! 3.3 ft, 1.0 m), §2.2.1 (the calculated factor needs 16 or more Method 1 points and 8
 //! or more wall points) and §2.2.2 (the defaults, "without taking wall effects
-//! measurements"; the clause names no point count for them). From memory: the 20° limit
+//! measurements"; the clause names no point count for them); Method 1A §1.2 (the size
+//! range, and not in cyclonic or swirling flow). From memory: the site distances and the
+//! 10 % steady-flow criterion of Method 1A §11.1 (a secondary summary of the method agrees
+//! with them; the method's own clause was not read); the 20° limit
 //! and averaging of Method 1 §11.4, the 1.05 limit on T and the 1.3 mm criteria of
 //! Method 2 §6.2.1 / §12; printed checks say so.
 
@@ -121,6 +131,160 @@ pub fn gauge_sensitivity(dp: &[f64], units: MethodUnits) -> Result<Vec<MethodChe
     Ok(checks)
 }
 
+/// A small stack or duct where particulate sampling and velocity measurement follow
+/// US EPA Method 1A. Distances are in (equivalent) diameters, counted along the flow:
+/// `straight_upstream_d` is the straight length between the nearest disturbance before the
+/// sampling site and the site, `straight_downstream_d` the straight length from the site
+/// to the nearest disturbance after it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SmallDuctSite {
+    /// Inside diameter, m (circular), or None for other shapes.
+    pub diameter_m: Option<f64>,
+    /// Cross-sectional area, m².
+    pub area_m2: f64,
+    /// Straight length before the particulate site, equivalent diameters.
+    pub straight_upstream_d: f64,
+    /// Straight length after the particulate site, equivalent diameters.
+    pub straight_downstream_d: f64,
+    /// Distance of the (standard pitot) velocity site after the particulate site,
+    /// equivalent diameters, when the two are separate (unsteady flow).
+    pub velocity_site_d: Option<f64>,
+}
+
+/// US EPA Method 1A checks of a small-duct site: the size range of the method, the
+/// straight lengths around the particulate site (preferred or alternative location) and,
+/// when given, where the velocity site stands.
+///
+/// ```
+/// use stagna::methods::us_epa::site_checks::{method1a_site, SmallDuctSite};
+/// let d = 0.20;
+/// let site = SmallDuctSite { diameter_m: Some(d), area_m2: std::f64::consts::PI * d * d / 4.0,
+///     straight_upstream_d: 9.0, straight_downstream_d: 11.0, velocity_site_d: Some(8.0) };
+/// let checks = method1a_site(&site).unwrap();
+/// assert!(checks.iter().all(|c| c.pass));
+/// ```
+pub fn method1a_site(s: &SmallDuctSite) -> Result<Vec<MethodCheck>> {
+    let ctx = "EPA Method 1A";
+    let area = finite(ctx, "area", s.area_m2)?;
+    if area <= 0.0 {
+        return Err(Error::OutOfRange {
+            context: ctx,
+            param: "area",
+            value: area,
+            unit: "m²",
+            allowed: "more than 0".into(),
+        });
+    }
+    for (name, v) in [
+        ("straight length upstream of the site", s.straight_upstream_d),
+        ("straight length downstream of the site", s.straight_downstream_d),
+    ] {
+        if finite(ctx, name, v)? < 0.0 {
+            return Err(Error::OutOfRange {
+                context: ctx,
+                param: name,
+                value: v,
+                unit: "D",
+                allowed: "0 or more".into(),
+            });
+        }
+    }
+    let mut checks = vec![match s.diameter_m {
+        Some(d) => MethodCheck {
+            name: "stack diameter for Method 1A".into(),
+            value: finite(ctx, "diameter", d)?,
+            unit: "m",
+            decimals: 3,
+            limit: "0.10 m to under 0.30 m (Method 1 at 0.30 m and over)".into(),
+            pass: (0.10..0.30).contains(&d),
+            source: "US EPA Method 1A §1.2",
+            citation: Citation::Verified,
+        },
+        None => MethodCheck {
+            name: "duct area for Method 1A".into(),
+            value: area,
+            unit: "m²",
+            decimals: 4,
+            limit: "0.0081 m² to under 0.071 m² (Method 1 at 0.071 m² and over)".into(),
+            pass: (0.0081..0.071).contains(&area),
+            source: "US EPA Method 1A §1.2",
+            citation: Citation::Verified,
+        },
+    }];
+    let preferred = s.straight_upstream_d >= 8.0 && s.straight_downstream_d >= 10.0;
+    let (up, down, vel) = if preferred { (8.0, 10.0, 8.0) } else { (2.0, 2.5, 2.0) };
+    let which = if preferred { "preferred location" } else { "alternative location" };
+    checks.push(MethodCheck {
+        name: format!("straight length upstream of the particulate site ({which})"),
+        value: s.straight_upstream_d,
+        unit: "D",
+        decimals: 1,
+        limit: format!("≥ {up} D (≥ 8 D preferred, ≥ 2 D at the least)"),
+        pass: s.straight_upstream_d >= up,
+        source: "US EPA Method 1A §11.1.1",
+        citation: Citation::FromMemory,
+    });
+    checks.push(MethodCheck {
+        name: format!("straight length downstream of the particulate site ({which})"),
+        value: s.straight_downstream_d,
+        unit: "D",
+        decimals: 1,
+        limit: format!("≥ {down} D (≥ 10 D preferred, ≥ 2.5 D at the least)"),
+        pass: s.straight_downstream_d >= down,
+        source: "US EPA Method 1A §11.1.1",
+        citation: Citation::FromMemory,
+    });
+    if let Some(v) = s.velocity_site_d {
+        finite(ctx, "velocity site distance", v)?;
+        checks.push(MethodCheck {
+            name: "velocity site (standard pitot) after the particulate site".into(),
+            value: v,
+            unit: "D",
+            decimals: 1,
+            limit: format!("≥ {vel} D with the {which}"),
+            pass: v >= vel,
+            source: "US EPA Method 1A §11.1.1",
+            citation: Citation::FromMemory,
+        });
+    }
+    Ok(checks)
+}
+
+/// US EPA Method 1A steady-flow check for sampling and velocity at one location: the
+/// flow from a complete velocity traverse after the sampling run against the one before
+/// it (any one unit), deviation within 10 %.
+///
+/// ```
+/// use stagna::methods::us_epa::site_checks::method1a_steady_flow;
+/// assert!(method1a_steady_flow(1000.0, 1080.0).unwrap().pass);
+/// assert!(!method1a_steady_flow(1000.0, 1120.0).unwrap().pass);
+/// ```
+pub fn method1a_steady_flow(before: f64, after: f64) -> Result<MethodCheck> {
+    let ctx = "EPA Method 1A";
+    for (name, v) in [("flow before the run", before), ("flow after the run", after)] {
+        if finite(ctx, name, v)? <= 0.0 {
+            return Err(Error::OutOfRange {
+                context: ctx,
+                param: name,
+                value: v,
+                unit: "",
+                allowed: "more than 0".into(),
+            });
+        }
+    }
+    let dev = (after - before).abs() / before * 100.0;
+    Ok(MethodCheck {
+        name: "steady flow: deviation of the flow after the run from the flow before".into(),
+        value: dev,
+        unit: "%",
+        decimals: 1,
+        limit: "≤ 10 %".into(),
+        pass: dev <= 10.0 + 1e-9,
+        source: "US EPA Method 1A §11.1.2",
+        citation: Citation::FromMemory,
+    })
+}
+
 /// Stack construction, for the Method 2H default wall factor.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Construction {
@@ -212,6 +376,57 @@ pub fn default_wall_factor(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // Method 1A §1.2 size range (read in the published text: "less than about 0.30 meter
+    // (12 in.) in diameter, or 0.071 m2 (113 in.2) ... but equal to or greater than about
+    // 0.10 meter (4 in.) in diameter, or 0.0081 m2 (12.57 in.2)"); §11.1 site distances
+    // and the 10 % steady-flow deviation from memory, unverified.
+    #[test]
+    fn method1a_limits_on_both_sides() {
+        let round = |d: f64, up: f64, down: f64, vel: Option<f64>| SmallDuctSite {
+            diameter_m: Some(d),
+            area_m2: std::f64::consts::PI * d * d / 4.0,
+            straight_upstream_d: up,
+            straight_downstream_d: down,
+            velocity_site_d: vel,
+        };
+        let size = |s: &SmallDuctSite| method1a_site(s).unwrap()[0].pass;
+        assert!(size(&round(0.10, 8.0, 10.0, None)));
+        assert!(!size(&round(0.099, 8.0, 10.0, None)));
+        assert!(size(&round(0.299, 8.0, 10.0, None)));
+        assert!(!size(&round(0.30, 8.0, 10.0, None)), "0.30 m and over is Method 1");
+        let rect = |a: f64| SmallDuctSite {
+            diameter_m: None,
+            area_m2: a,
+            straight_upstream_d: 8.0,
+            straight_downstream_d: 10.0,
+            velocity_site_d: None,
+        };
+        assert!(size(&rect(0.0081)) && !size(&rect(0.0080)) && size(&rect(0.0709)) && !size(&rect(0.071)));
+        // Preferred location: 8 D before, 10 D after, velocity site 8 D after the sampling site.
+        let c = method1a_site(&round(0.2, 8.0, 10.0, Some(8.0))).unwrap();
+        assert!(c.iter().all(|c| c.pass) && c[1].name.contains("preferred"));
+        assert!(!method1a_site(&round(0.2, 8.0, 10.0, Some(7.9))).unwrap()[3].pass);
+        // Alternative location: 2 D and 2.5 D; the velocity site then 2 D after.
+        let c = method1a_site(&round(0.2, 7.9, 10.0, Some(2.0))).unwrap();
+        assert!(c.iter().all(|c| c.pass) && c[1].name.contains("alternative"), "{c:?}");
+        assert!(!method1a_site(&round(0.2, 1.9, 10.0, None)).unwrap()[1].pass);
+        assert!(!method1a_site(&round(0.2, 2.0, 2.4, None)).unwrap()[2].pass);
+        assert!(method1a_site(&round(0.2, 2.0, 2.5, None)).unwrap()[2].pass);
+        assert!(c[1].to_string().contains("from memory, unverified"));
+        assert!(!c[0].to_string().contains("unverified"));
+        // Bad input names what to fix.
+        let e = method1a_site(&round(0.2, -1.0, 10.0, None)).unwrap_err().to_string();
+        assert!(e.contains("straight length upstream"), "{e}");
+        assert!(method1a_site(&rect(0.0)).is_err());
+        assert!(method1a_site(&round(f64::NAN, 8.0, 10.0, None)).is_err());
+        // Steady flow: within 10 % on either side.
+        assert!(method1a_steady_flow(100.0, 110.0).unwrap().pass);
+        assert!(method1a_steady_flow(100.0, 90.0).unwrap().pass);
+        assert!(!method1a_steady_flow(100.0, 110.5).unwrap().pass);
+        assert!(!method1a_steady_flow(100.0, 89.0).unwrap().pass);
+        assert!(method1a_steady_flow(0.0, 1.0).unwrap_err().to_string().contains("flow before the run"));
+    }
 
     // Mean of absolute angles (Method 1 §11.4, from memory): hand calculation.
     #[test]
