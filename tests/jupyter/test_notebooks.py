@@ -61,3 +61,48 @@ def test_notebook_runs_with_expected_outputs(path):
 
 def test_every_stagna_notebook_has_expectations():
     assert NOTEBOOKS and all(p.name in EXPECT for p in NOTEBOOKS)
+
+
+RUST_NOTEBOOK = ROOT / "demo-notebooks" / "06-rust-library-evcxr.ipynb"
+
+
+def test_rust_notebook_runs_under_evcxr():
+    """The Rust notebook under the evcxr kernel that tests/run-all installs (kernelspec "rust")."""
+    from jupyter_client.kernelspec import KernelSpecManager
+
+    specs = KernelSpecManager().find_kernel_specs()
+    assert "rust" in specs, f"no 'rust' kernelspec (tests/run-all installs evcxr_jupyter); found {sorted(specs)}"
+    nb = nbformat.read(RUST_NOTEBOOK, as_version=4)
+    # The first cell builds the library inside the kernel (minutes from a clean folder).
+    NotebookClient(
+        nb, kernel_name="rust", timeout=1500, resources={"metadata": {"path": str(RUST_NOTEBOOK.parent)}}
+    ).execute()
+    text, mimes = outputs_text(nb)
+    latex = "\n".join(o.get("data", {}).get("text/latex", "") for c in nb.cells for o in c.get("outputs", []))
+    assert "image/svg+xml" in mimes and "text/latex" in mimes, mimes
+    assert "Optimization: 0" in text
+    # 12 points per diameter, equal areas: 2.1, 6.7, 11.8, 17.7, 25.0, 35.6 % of D from the wall
+    # (US EPA Method 1 Table 1-1, check-values.md §5.1); on 1500 mm the first is 31.9 mm, and
+    # the insertion adds the 150 mm port.
+    for point, pct in [("A1", "2.1"), ("A2", "6.7"), ("A3", "11.8"), ("A4", "17.7"), ("A5", "25.0"), ("A6", "35.6")]:
+        assert re.search(rf"{point}\s+[\d.]+\s+{re.escape(pct)}\s", text), f"{point} at {pct} % of D"
+    assert re.search(r"A1\s+31\.9\s+2\.1\s+181\.9", text)
+    assert "<svg" in text and "equal-area layout, 2 line(s) × 12 points" in text
+    # Humid air at 100.8 kPa, 21 °C, 45 % RH: ideal-gas estimate ρ = p/(R_d T)·(1 − 0.378 e/p)
+    # with e = 0.45·e_s(21 °C), e_s = 611.2·exp(17.62 t/(243.12 + t)) Pa (Magnus, WMO-No. 8
+    # Annex 4.B), R_d = 287.058 J/(kg·K): 1.1888 kg/m³; the CIPM-2007 density the library
+    # prints differs by its compressibility Z ≈ 0.9996, under 0.1 %.
+    import math
+
+    t, p = 21.0, 100_800.0
+    e = 0.45 * 611.2 * math.exp(17.62 * t / (243.12 + t))
+    rho_est = p / (287.058 * (t + 273.15)) * (1 - 0.378 * e / p)
+    rho = float(re.search(r"100800 Pa / ([\d.]+) kg/m³", text).group(1))
+    assert abs(rho / rho_est - 1) < 1e-3, (rho, rho_est)
+    # ISO 3966 compressible pitot equation (isentropic, γ = 1.4) evaluated here with that ρ.
+    g, c, dp = 1.4, 0.998, 118.0
+    v = math.sqrt(2 * g / (g - 1) * p / rho * ((1 + c * c * dp / p) ** ((g - 1) / g) - 1))
+    shown = re.search(r"= ([\d.]+) m/s\n   source: isentropic", text).group(1)
+    assert abs(float(shown) - v) < 1e-4 * v, (shown, v)
+    # The same steps as LaTeX, with the same value.
+    assert rf"\mathbf{{{shown}\ \mathrm{{m/s}}}}" in latex, latex
