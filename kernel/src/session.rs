@@ -293,7 +293,7 @@ fn send(sink: &Arc<RwLock<Sink>>, e: Event) {
 }
 
 /// The richer forms of a value whose text is already known.
-pub fn bundle_for(v: &Dynamic, text: String) -> Bundle {
+pub fn bundle_for(v: &Dynamic, text: String, prefs: &SharedPrefs) -> Bundle {
     let mut b = Bundle { text, ..Default::default() };
     if let Some(p) = v.clone().try_cast::<api::charts::Plot>() {
         b.svg = p.svg().ok();
@@ -301,7 +301,7 @@ pub fn bundle_for(v: &Dynamic, text: String) -> Bundle {
     } else if let Some(s) = v.clone().try_cast::<stagna::Steps>() {
         b.latex = Some(format!("$$\n{}\n$$", s.to_latex()));
     } else if let Some(t) = v.clone().try_cast::<api::tables::Tbl>() {
-        b.html = Some(table_html(&t));
+        b.html = Some(api::table_view::html(&t, &api::prefs(prefs).table));
     } else if let Some(bud) = v.clone().try_cast::<api::uncertainty::Budget>() {
         b.html = Some(budget_html(&bud));
     } else if let Some(s) = v.clone().try_cast::<api::stack::Sheets>() {
@@ -395,6 +395,7 @@ impl Session {
             Err(e) => e.into_inner().progress = Some(api::ProgressHook(start)),
         }
         let s5 = sink.clone();
+        let p5 = prefs.clone();
         engine.register_fn(
             "display",
             move |ctx: rhai::NativeCallContext, v: Dynamic| -> Result<(), Box<EvalAltResult>> {
@@ -403,7 +404,7 @@ impl Session {
                 } else {
                     ctx.call_fn::<String>("to_string", (v.clone(),)).unwrap_or_else(|_| format!("{v:?}"))
                 };
-                send(&s5, Event::Display(bundle_for(&v, text)));
+                send(&s5, Event::Display(bundle_for(&v, text, &p5)));
                 Ok(())
             },
         );
@@ -510,7 +511,7 @@ impl Session {
         if v.is_unit() {
             return None;
         }
-        Some(bundle_for(v, self.display(v)))
+        Some(bundle_for(v, self.display(v), &self.prefs))
     }
 
     /// A value as text, through its registered `to_string`.
@@ -966,34 +967,6 @@ fn esc(s: &str) -> String {
 
 fn budget_html(b: &api::uncertainty::Budget) -> String {
     format!("<p>output in {}</p>\n{}", esc(b.unit), b.g.to_html())
-}
-
-/// A table as HTML with units in the headers (first 50 rows, then a note of the size).
-pub fn table_html(t: &api::tables::Tbl) -> String {
-    let df = &t.df;
-    let limit = 50.min(df.height());
-    let mut s = String::from("<table class=\"stagna-table\">\n<thead><tr>");
-    for c in df.get_column_names() {
-        let unit = t
-            .unit_of(c)
-            .map(|u| format!(" <span class=\"unit\">[{}]</span>", esc(&api::pretty_unit(u))))
-            .unwrap_or_default();
-        s.push_str(&format!("<th>{}{unit}</th>", esc(c)));
-    }
-    s.push_str("</tr></thead>\n<tbody>\n");
-    for i in 0..limit {
-        s.push_str("<tr>");
-        for c in df.columns() {
-            let v = c.get(i).map(|v| v.to_string()).unwrap_or_default();
-            s.push_str(&format!("<td>{}</td>", esc(v.trim_matches('"'))));
-        }
-        s.push_str("</tr>\n");
-    }
-    s.push_str("</tbody></table>\n");
-    if df.height() > limit {
-        s.push_str(&format!("<p>first {limit} of {} rows × {} columns</p>\n", df.height(), df.width()));
-    }
-    s
 }
 
 #[cfg(test)]
@@ -1570,7 +1543,13 @@ mod tests {
         let o = s.eval("traverse_layout(round_duct(1.m), #{points: 4}).chart()").unwrap();
         assert!(o.value.unwrap().svg.unwrap().starts_with("<svg"));
         let o = s.eval("table_from(#{h: [1.0]}).unit(\"h\", \"mm\")").unwrap();
-        assert!(o.value.unwrap().html.unwrap().contains("<th>h <span class=\"unit\">[mm]</span></th>"));
+        assert!(
+            o.value
+                .unwrap()
+                .html
+                .unwrap()
+                .contains("<th style=\"text-align:right\">h<br><span class=\"unit\">[mm]</span></th>")
+        );
         let o = s.eval("pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).steps()").unwrap();
         assert!(o.value.unwrap().latex.unwrap().contains("\\sqrt"));
     }

@@ -32,34 +32,42 @@ fn demo_prints_results_with_units_and_cautions() {
     let o = stagna(&["demo"]);
     let (out, err) = text(&o);
     assert!(o.status.success(), "stderr: {err}");
-    for needle in [
-        "dp [Pa]",
-        "velocity [m/s]",
-        "density [kg/m³]",
-        "m³/s",
-        "kg/s",
-        "Caution:",
-        "mercury",
-        "source:",
-        "0 °C, 101.325 kPa",
-    ] {
+    for needle in ["[Pa]", "[m/s]", "[kg/m³]", "m³/s", "kg/s", "Caution:", "mercury", "source:", "0 °C, 101.325 kPa"]
+    {
         assert!(out.contains(needle), "missing '{needle}' in:\n{out}");
     }
+    // Tables: units under the names, no data-type rows, 4 significant figures by default.
+    assert!(!out.contains("f64") && !out.contains("shape:"), "{out}");
+    let p5 = row_cells(&out, "5");
+    assert_eq!(p5[3..].join(" "), "122.9 1.207 14.24", "{p5:?}");
     // Duct point 5 by an independent chain: CoolProp 8.0.0 HAPropsSI humid air at 17.9 °C,
     // 51 %, 101 172 Pa → ρ = 1.20676 kg/m³; oil 826/(1 + 7.5e-4·1.5); WGS84 g(52.2°, 35 m);
     // Δp = 122.939 Pa, v = 14.2456 m/s incompressible; isentropic lowers it by M²/8 → 14.2425.
-    let p5 = row_cells(&out, "5");
+    // Checked on the demo script at 7 significant figures (`--set digits=7`).
+    let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("../scripts/demo.rhai");
+    let precise = stagna(&[
+        "run",
+        script.to_str().unwrap_or_default(),
+        "--set",
+        "digits=7",
+        "-o",
+        &tempdir().display().to_string(),
+    ]);
+    let (out7, err7) = text(&precise);
+    assert!(precise.status.success(), "{err7}");
+    let p5 = row_cells(&out7, "5");
     let cell = |cells: &[String], i: usize| cells[i].parse::<f64>().unwrap_or(f64::NAN);
     assert!((cell(&p5, 3) - 122.939).abs() < 5e-3, "{p5:?}");
     assert!((p5[4].parse::<f64>().unwrap_or(0.0) - 1.20676).abs() < 1.5e-4, "CIPM vs CoolProp: {p5:?}");
     assert!((p5[5].parse::<f64>().unwrap_or(0.0) - 14.2425).abs() < 2e-3, "{p5:?}");
     let mean = number_after(&out, "mean velocity, arithmetic mean of 10 equal-area points (one diameter)");
     let q = number_after(&out, "volume flow at duct conditions");
-    assert!((q - mean * std::f64::consts::PI * 0.09).abs() < 1e-3, "Q = v̄·πD²/4: {q} vs {mean}");
+    // Printed to 4 significant figures each.
+    assert!((q - mean * std::f64::consts::PI * 0.09).abs() < 2e-3, "Q = v̄·πD²/4: {q} vs {mean}");
     // Water main 09:00 by an independent chain: `iapws` 1.5.5 IAPWS97 water at 9.6 °C,
     // 513.2 kPa → 999.9328 kg/m³; mercury 13595.1/(1 + 1.818e-4·12) = 13565.51; g(53.4°, 112 m);
     // Δp = 5117.38 Pa, v = 3.19929 m/s.
-    let r1 = row_cells(&out, "09:00");
+    let r1 = row_cells(&out7, "09:00");
     assert!((cell(&r1, 2) - 5.11738).abs() < 1e-5, "Δp in kPa: {r1:?}");
     assert!((cell(&r1, 3) - 999.9328).abs() < 1e-4, "{r1:?}");
     assert!((cell(&r1, 4) - 3.19929).abs() < 1e-5, "{r1:?}");
@@ -71,7 +79,7 @@ fn demo_prints_results_with_units_and_cautions() {
     let n = number_after(pl, "n =");
     let ratio = number_after(pl, "U/U_c =");
     assert!((ratio - 2.0 * n * n / ((n + 1.0) * (2.0 * n + 1.0))).abs() < 1e-4, "{pl}");
-    let mean_pl = number_after(pl, "mean");
+    let mean_pl = number_after(pl, "mean velocity");
     assert!((mean_pl - ratio * vc).abs() < 2e-3, "{pl}");
     assert!((number_after(pl, "flow") - mean_pl * std::f64::consts::PI * 0.04 * 1e3).abs() < 0.2, "{pl}");
     // Uncertainty budget: shares add to 100 % (no correlations; JCGM 100 5.1.2) and the
@@ -81,11 +89,19 @@ fn demo_prints_results_with_units_and_cautions() {
         .skip_while(|l| !l.starts_with("Uncertainty of the volume flow"))
         .take_while(|l| !l.starts_with("y = "))
         .filter_map(|l| {
-            l.trim_end().strip_suffix('%').and_then(|x| x.split_whitespace().last()).and_then(|x| x.parse::<f64>().ok())
+            let w: Vec<&str> = l.split_whitespace().collect();
+            w.iter().position(|x| *x == "%").and_then(|i| w[i - 1].parse::<f64>().ok())
         })
         .sum();
     assert!((shares - 100.0).abs() < 0.6, "shares add to {shares}");
-    assert!(out.contains("U(95 %) = ") && out.contains("Monte Carlo (JCGM 101, 200000 trials)"), "{out}");
+    // GUM 7.2.6: u_c and U to two significant figures, y to the same last digit.
+    let y = out.lines().find(|l| l.starts_with("y = ")).expect("result line");
+    assert!(
+        y.starts_with("y = 3.742, u_c = 0.038 (standard, k = 1;")
+            && y.contains("U = 0.074 (expanded, k = 1.96, 95 % coverage)"),
+        "{y}"
+    );
+    assert!(out.contains("Monte Carlo (JCGM 101, 200000 trials)"), "{out}");
     let ll = out.lines().find(|l| l.contains("log law, κ = 0.41")).expect("log-law line");
     let f = number_after(ll, "f =");
     assert!((number_after(ll, "U/U_c =") - 1.0 / (1.0 + 1.5 / 0.41 * (f / 8.0).sqrt())).abs() < 1e-4, "{ll}");
@@ -138,10 +154,10 @@ fn units_lists_names_and_sources() {
     }
 }
 
-/// The cells of the table row whose first cell is `first`.
+/// The cells of the table row whose first cell is `first` (cells are separated by spaces).
 fn row_cells(out: &str, first: &str) -> Vec<String> {
     out.lines()
-        .map(|l| l.trim_matches(|c| c == '│' || c == ' ').split('┆').map(|c| c.trim().to_string()).collect::<Vec<_>>())
+        .map(|l| l.split_whitespace().map(str::to_string).collect::<Vec<_>>())
         .find(|cells| cells.len() > 3 && cells[0] == first)
         .unwrap_or_else(|| panic!("no table row '{first}' in:\n{out}"))
 }

@@ -128,13 +128,15 @@ def test_rich_output_bundles(kernel):
     assert data["image/svg+xml"].startswith("<svg") and data["image/png"] and data["text/plain"]
     _, outputs = run(kc, 'table_from(#{h: [1.0, 2.0]}).unit("h", "mm")')
     data = [m["content"]["data"] for m in outputs if m["msg_type"] == "execute_result"][0]
-    assert "<th>h <span class=\"unit\">[mm]</span></th>" in data["text/html"]
+    # Units under the names, numbers right-aligned, the same cells as the text form.
+    assert '<th style="text-align:right">h<br><span class="unit">[mm]</span></th>' in data["text/html"]
+    assert "[mm]" in data["text/plain"] and "f64" not in data["text/plain"]
     _, outputs = run(kc, "pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).steps()")
     data = [m["content"]["data"] for m in outputs if m["msg_type"] == "execute_result"][0]
     assert "\\sqrt" in data["text/latex"]
     _, outputs = run(kc, 'let t = table_from(#{x: [' + ", ".join(["1.0"] * 200) + ']}); t')
     data = [m["content"]["data"] for m in outputs if m["msg_type"] == "execute_result"][0]
-    assert "first 50 of 200 rows" in data["text/html"]
+    assert "180 of 200 rows not shown" in data["text/html"] and "180 of 200 rows not shown" in data["text/plain"]
 
 
 def test_execution_count_only_with_store_history(kernel):

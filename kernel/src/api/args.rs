@@ -214,3 +214,8 @@ pub fn warnings_of(w: &[Warning]) -> Array {
 pub fn show_q(v: f64, dim: D, p: &SharedPrefs) -> String {
     Q::si(v, dim).show(&display_of(p))
 }
+
+/// As [`show_q`], to `digits` significant figures.
+pub fn show_q_sig(v: f64, dim: D, p: &SharedPrefs, digits: u32) -> String {
+    Q::si(v, dim).show_sig(&display_of(p), digits)
+}

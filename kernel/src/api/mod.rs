@@ -33,6 +33,7 @@ pub mod sections;
 pub mod setups;
 pub mod stack;
 pub mod steps;
+pub mod table_view;
 pub mod tables;
 pub mod uncertainty;
 
@@ -143,6 +144,8 @@ pub struct Prefs {
     pub write_roots: Option<Vec<std::path::PathBuf>>,
     /// Progress reporting of long computations.
     pub progress: Option<ProgressHook>,
+    /// How tables are shown.
+    pub table: table_view::TableView,
 }
 
 impl Default for Prefs {
@@ -156,6 +159,7 @@ impl Default for Prefs {
             max_array: usize::MAX,
             write_roots: None,
             progress: None,
+            table: table_view::TableView::default(),
         }
     }
 }
@@ -239,6 +243,20 @@ impl Q {
         match unit.map(|u| self.q.display_in(u)) {
             Some(Ok(s)) => pretty_unit(&s),
             _ => pretty_unit(&self.q.to_string()),
+        }
+    }
+
+    /// As [`Q::show`], the number to `digits` significant figures.
+    pub fn show_sig(&self, display: &DisplayUnits, digits: u32) -> String {
+        use stagna::units::quantity::format_sig;
+        let unit = self.unit.as_deref().or_else(|| display.unit_for(self.q.dimension, self.q.absolute_temperature));
+        match unit.map(|u| self.q.value_in(u).map(|v| (v, u))) {
+            Some(Ok((v, u))) => pretty_unit(&format!("{} {}", format_sig(v, digits), u.trim())),
+            _ => {
+                let sym = self.q.si_symbol();
+                let n = format_sig(self.q.si, digits);
+                pretty_unit(&if sym.is_empty() { n } else { format!("{n} {sym}") })
+            }
         }
     }
 }

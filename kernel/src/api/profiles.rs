@@ -114,13 +114,14 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     );
     let p = prefs.clone();
     r.engine.register_fn("to_string", move |s: &mut SinglePointResult| {
+        // Four significant figures: the profile model alone is uncertain to about 1 %.
         let mut out = format!(
-            "SinglePoint ({}): U/U_c = {:.4}, mean {}, Q = {}, Re = {:.3e}",
+            "single-point mean ({}): U/U_c = {:.4}, mean velocity {}, Q = {}, Re = {}",
             s.model.name(),
             s.ratio,
-            show_q(s.mean_velocity.si(), D::VELOCITY, &p),
-            show_q(s.volume_flow.si(), D::VOLUME_FLOW, &p),
-            s.reynolds
+            show_q_sig(s.mean_velocity.si(), D::VELOCITY, &p, 4),
+            show_q_sig(s.volume_flow.si(), D::VOLUME_FLOW, &p, 4),
+            stagna::units::quantity::format_sig(s.reynolds, 3)
         );
         for w in &s.warnings {
             out.push_str(&format!("\n  warning: {}", w.message));

@@ -225,6 +225,24 @@ fn display(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let p = prefs.clone();
     r.func("display_units", &doc, move || -> Map { in_use(&super::prefs(&p).display) });
 
+    let sig_doc = Doc::new("sig(value, digits) -> String", "A number or a quantity as text to the given number of significant figures (1 to 15), in the session's display unit for a quantity: for printing results at a sensible precision, e.g. an uncertainty to two figures (GUM 7.2.6). The value itself keeps every digit.")
+        .param("value", "a number or a quantity")
+        .param("digits", "significant figures")
+        .example("print(sig(13467.71.m3_h, 3));   // 13500 m³/h\nprint(sig(0.0376817, 2));       // 0.038")
+        .source("JCGM 100:2008 (GUM) §7.2.6 for uncertainties; common practice for values");
+    fn digits_of(n: i64) -> Res<u32> {
+        if (1..=15).contains(&n) { Ok(n as u32) } else { Err(rt(format!("sig: digits must be 1 to 15, got {n}"))) }
+    }
+    let p = prefs.clone();
+    r.func("sig", &sig_doc, move |q: Q, n: i64| -> Res<String> {
+        Ok(q.show_sig(&super::display_of(&p), digits_of(n)?))
+    });
+    r.func("sig", &sig_doc, |x: f64, n: i64| -> Res<String> {
+        Ok(stagna::units::quantity::format_sig(x, digits_of(n)?))
+    });
+    r.func("sig", &sig_doc, |x: i64, n: i64| -> Res<String> {
+        Ok(stagna::units::quantity::format_sig(x as f64, digits_of(n)?))
+    });
     let p = prefs.clone();
     r.engine.register_fn("to_string", move |q: &mut Q| q.show(&super::display_of(&p)));
     let p = prefs.clone();

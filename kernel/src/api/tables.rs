@@ -113,15 +113,9 @@ impl Tbl {
         }
     }
 
-    /// The table as text: a units line and the polars rendering.
-    pub fn show(&self) -> String {
-        let mut s = String::new();
-        if !self.units.is_empty() {
-            let u: Vec<String> = self.units.iter().map(|(k, v)| format!("{k} [{}]", pretty_unit(v))).collect();
-            s.push_str(&format!("units: {}\n", u.join(", ")));
-        }
-        s.push_str(&format!("{}", self.df));
-        s
+    /// The table as text (see [`super::table_view`]).
+    pub fn show(&self, view: &super::table_view::TableView) -> String {
+        super::table_view::text(self, view)
     }
 
     /// The unit of a column as written in headers.
@@ -410,8 +404,52 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 
 /// Showing a table, declaring units, columns and size.
 fn members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
-    r.engine.register_fn("to_string", |t: &mut Tbl| t.show());
-    r.engine.register_fn("to_debug", |t: &mut Tbl| t.show());
+    let p = prefs.clone();
+    r.engine.register_fn("to_string", move |t: &mut Tbl| t.show(&super::prefs(&p).table));
+    let p = prefs.clone();
+    r.engine.register_fn("to_debug", move |t: &mut Tbl| t.show(&super::prefs(&p).table));
+    let p = prefs.clone();
+    r.func(
+        "display_table",
+        &Doc::new("display_table(options) -> Map", "Sets how tables are shown in this session: digits, the significant figures of the largest value in each numeric column (one number of decimals per column; 1 to 15, default 4), and rows, the most rows shown before a long table shows only its first and last rows (default 20). Returns the settings; display_table() only reads them. Stored values keep every digit.")
+            .param("options", "map: digits, rows")
+            .example("let t = table_from(#{v: [1.23456, 12.3456]}).units(#{v: \"m/s\"});\ndisplay_table(#{digits: 6});\nprint(t);\ndisplay_table(#{digits: 4, rows: 20});")
+            .source("common practice, no source"),
+        move |o: Map| -> Res<Map> {
+            check_keys(&o, &["digits", "rows"], "display_table")?;
+            let mut v = super::prefs(&p).table;
+            if let Some(d) = field(&o, "digits") {
+                let d = count(d, "digits")?;
+                if !(1..=15).contains(&d) {
+                    return Err(rt(format!("display_table: digits must be 1 to 15, got {d}")));
+                }
+                v.digits = d;
+            }
+            if let Some(r) = field(&o, "rows") {
+                let r = count(r, "rows")?;
+                if r < 6 {
+                    return Err(rt(format!("display_table: rows must be 6 or more, got {r}")));
+                }
+                v.rows = r;
+            }
+            match p.write() {
+                Ok(mut g) => g.table = v,
+                Err(e) => e.into_inner().table = v,
+            }
+            Ok(view_map(&v))
+        },
+    );
+    let p = prefs.clone();
+    r.func(
+        "display_table",
+        &Doc::new(
+            "display_table() -> Map",
+            "How tables are shown in this session: digits and rows (see display_table(options)).",
+        )
+        .example("print(display_table());")
+        .source("common practice, no source"),
+        move || -> Map { view_map(&super::prefs(&p).table) },
+    );
     r.method(
         "Table",
         "unit",
@@ -639,4 +677,11 @@ fn writing(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             Ok(())
         },
     );
+}
+
+fn view_map(v: &super::table_view::TableView) -> Map {
+    let mut m = Map::new();
+    m.insert("digits".into(), Dynamic::from(v.digits as i64));
+    m.insert("rows".into(), Dynamic::from(v.rows as i64));
+    m
 }

@@ -49,12 +49,21 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 fn budgets(r: &mut Registrar<'_>) {
     r.func(
         "traverse_budget",
-        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); dp_rel (relative u of each Δp, default 0.005), dp_abs (absolute u of each Δp, default 0.5 Pa); transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and dp_rel and dp_abs count only when given); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
+        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); dp_rel (relative u of each Δp, default 0.005), dp_abs (absolute u of each Δp, default 0.5 Pa); transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and dp_rel and dp_abs count only when given); sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
             .param("dp", "pressure column or array of pressures, one per point (all > 0)")
             .example("let dps = [98.Pa, 112.Pa, 118.Pa, 115.Pa, 101.Pa, 95.Pa];\nlet b = traverse_budget(dps, #{coefficient: 0.998, u_coefficient: 0.0025, density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, dp_rel: 0.005, dp_abs: 0.4.Pa});\nprint(b);")
             .source("JCGM 100:2008 (GUM) §5, §G; method terms as documented in the library (ISO 3966 §10 and common practice)"),
         |d: Dynamic, o: Map| -> Res<Budget> {
-            check_keys(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "dp_rel", "dp_abs", "transducer", "rule", "coverage", "output"], "traverse_budget")?;
+            check_keys(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "dp_rel", "dp_abs", "transducer", "sources", "rule", "coverage", "output"], "traverse_budget")?;
+            let sources: Map = match field(&o, "sources") {
+                None => Map::new(),
+                Some(m) => m.clone().try_cast().ok_or_else(|| rt("traverse_budget: 'sources' must be a map, e.g. #{coefficient: \"calibration certificate 2291\"}"))?,
+            };
+            check_keys(&sources, &["coefficient", "density", "diameter", "dp"], "traverse_budget sources")?;
+            let source_of = |k: &str, default: &str| -> Res<String> {
+                Ok(field(&sources, k).map(|d| text(d, &format!("sources.{k}"))).transpose()?.unwrap_or_else(|| default.to_string()))
+            };
+            const GIVEN: &str = "value and u as given in the script (no source stated)";
             let dps = dps_of(&d)?;
             let req = |k: &str| field(&o, k).ok_or_else(|| rt(format!("traverse_budget: option '{k}' is required")));
             let c = number(req("coefficient")?, "coefficient")?;
@@ -70,8 +79,17 @@ fn budgets(r: &mut Registrar<'_>) {
             // With a calibrated transducer its calibration is the measured Δp term; the
             // other terms count only when given.
             let (rel_default, abs_default) = if transducer.is_some() { (0.0, 0.0) } else { (0.005, 0.5) };
+            let defaulted = transducer.is_none() && (field(&o, "dp_rel").is_none() || field(&o, "dp_abs").is_none());
             let dp_rel = field(&o, "dp_rel").map(|x| number(x, "dp_rel")).transpose()?.unwrap_or(rel_default);
             let dp_abs = field(&o, "dp_abs").map(|x| si_of(x, D::PRESSURE, "dp_abs")).transpose()?.unwrap_or(abs_default);
+            let dp_source = source_of(
+                "dp",
+                if defaulted {
+                    "default u(Δp) = 0.5 % of Δp with 0.5 Pa (common practice, no source): give dp_rel and dp_abs"
+                } else {
+                    "dp_rel and dp_abs as given in the script (no source stated)"
+                },
+            )?;
             let coverage = field(&o, "coverage").map(|x| number(x, "coverage")).transpose()?.unwrap_or(0.95);
             let rule = match field(&o, "rule").map(|x| text(x, "rule")).transpose()?.as_deref() {
                 None | Some("equal-area") => stagna::LayoutRule::EqualArea,
@@ -84,15 +102,19 @@ fn budgets(r: &mut Registrar<'_>) {
                 Some("velocity") => true,
                 Some(o) => return Err(rt(format!("traverse_budget: output is \"flow\" or \"velocity\", got \"{o}\""))),
             };
+            let points = match &transducer {
+                None => lib(dp_inputs(&dps, dp_rel, dp_abs))?.into_iter().map(|i| i.with_source(&dp_source)).collect(),
+                Some(t) if field(&sources, "dp").is_some() => {
+                    lib(transducer_dp_inputs(t, &dps, dp_rel, dp_abs))?.into_iter().map(|i| i.with_source(&dp_source)).collect()
+                }
+                Some(t) => lib(transducer_dp_inputs(t, &dps, dp_rel, dp_abs))?,
+            };
             let mut t = lib(TraverseUncertainty::new(
-                lib(Input::normal("probe coefficient C", "1", c, uc))?,
-                lib(Input::normal("density ρ", "kg/m³", rho, urho))?,
-                lib(Input::normal("diameter D", "m", dd, ud))?,
+                lib(Input::normal("probe coefficient C", "1", c, uc))?.with_source(&source_of("coefficient", GIVEN)?),
+                lib(Input::normal("density ρ", "kg/m³", rho, urho))?.with_source(&source_of("density", GIVEN)?),
+                lib(Input::normal("diameter D", "m", dd, ud))?.with_source(&source_of("diameter", GIVEN)?),
                 &MethodTerm::typical(rule),
-                match &transducer {
-                    None => lib(dp_inputs(&dps, dp_rel, dp_abs))?,
-                    Some(t) => lib(transducer_dp_inputs(t, &dps, dp_rel, dp_abs))?,
-                },
+                points,
             ))?;
             if velocity {
                 t = t.for_mean_velocity();

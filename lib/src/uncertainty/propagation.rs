@@ -509,50 +509,68 @@ pub fn gum<M: Model>(model: &M, inputs: &[Input], correlations: &Correlations, p
 }
 
 impl fmt::Display for GumResult {
+    /// The budget as a table (value and u per GUM 7.2.6, sensitivities to three and
+    /// contributions to two significant figures, shares, sources) and the result line:
+    /// y with u_c (standard, k = 1) and U (expanded, with its k and coverage).
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        use crate::units::quantity::format_number as n;
+        use crate::units::quantity::{format_sig, format_with_uncertainty};
         let label = |l: &BudgetLine| {
             if l.unit == "1" || l.unit.is_empty() { l.name.clone() } else { format!("{} ({})", l.name, l.unit) }
         };
-        let width = self.budget.iter().map(|l| label(l).chars().count()).max().unwrap_or(5).max(5) + 2;
-        let pad = |s: String| {
-            let k = s.chars().count();
-            format!("{s}{}", " ".repeat(width.saturating_sub(k)))
+        let rows: Vec<[String; 8]> = self
+            .budget
+            .iter()
+            .map(|l| {
+                let (v, u) = format_with_uncertainty(l.value, l.u);
+                [
+                    label(l),
+                    v,
+                    u,
+                    if l.evaluation == Evaluation::TypeA { "A" } else { "B" }.to_string(),
+                    format_sig(l.sensitivity, 3),
+                    format_sig(l.contribution, 2),
+                    format!("{:.1} %", l.share * 100.0),
+                    l.source.clone(),
+                ]
+            })
+            .collect();
+        let head = ["input", "value", "u (k = 1)", "type", "sensitivity c", "c·u", "share", "source"];
+        let mut w = head.map(|h| h.chars().count());
+        for r in &rows {
+            for (k, c) in r.iter().enumerate() {
+                w[k] = w[k].max(c.chars().count());
+            }
+        }
+        let line = |cells: &[String]| {
+            let mut s = String::new();
+            for (k, c) in cells.iter().enumerate() {
+                let fill = " ".repeat(w[k].saturating_sub(c.chars().count()));
+                // Text columns left, numbers right.
+                if k == 0 || k == 3 || k == 7 {
+                    s += &format!("{c}{fill}")
+                } else {
+                    s += &format!("{fill}{c}")
+                }
+                if k + 1 < cells.len() {
+                    s += "  ";
+                }
+            }
+            s.trim_end().to_string()
         };
-        writeln!(
-            f,
-            "{}{:>12} {:>12} {:>5} {:>12} {:>12} {:>7}",
-            pad("input".into()),
-            "value",
-            "u",
-            "type",
-            "sensitivity",
-            "c·u",
-            "share"
-        )?;
-        for l in &self.budget {
-            writeln!(
-                f,
-                "{}{:>12} {:>12} {:>5} {:>12} {:>12} {:>6.1}%",
-                pad(label(l)),
-                n(l.value),
-                n(l.u),
-                if l.evaluation == Evaluation::TypeA { "A" } else { "B" },
-                n(l.sensitivity),
-                n(l.contribution),
-                l.share * 100.0
-            )?;
+        writeln!(f, "{}", line(&head.map(String::from)))?;
+        writeln!(f, "{}", line(&w.map(|n| "─".repeat(n))))?;
+        for r in &rows {
+            writeln!(f, "{}", line(r))?;
         }
         let dof = if self.dof.is_finite() { format!("{:.1}", self.dof) } else { "∞".into() };
+        let (y, u) = format_with_uncertainty(self.value, self.u);
+        let (_, big_u) = format_with_uncertainty(self.value, self.expanded);
         writeln!(
             f,
-            "y = {}, u_c = {} ({:.3} %), ν_eff = {dof}, k = {:.3}, U({:.0} %) = {}",
-            n(self.value),
-            n(self.u),
-            self.u / self.value.abs() * 100.0,
+            "y = {y}, u_c = {u} (standard, k = 1; {} % of y), ν_eff = {dof}; U = {big_u} (expanded, k = {:.2}, {:.0} % coverage)",
+            format_sig(self.u / self.value.abs() * 100.0, 2),
             self.k,
             self.coverage * 100.0,
-            n(self.expanded)
         )
     }
 }

@@ -355,6 +355,39 @@ pub fn format_sig(v: f64, digits: u32) -> String {
     format!("{:.decimals$}", (v * scale).round() / scale)
 }
 
+/// A value and its uncertainty as printed by GUM 7.2.6: the uncertainty to two
+/// significant figures and the value rounded to the same last digit.
+///
+/// ```
+/// use stagna::units::quantity::format_with_uncertainty;
+/// assert_eq!(format_with_uncertainty(3.741738, 0.0376817), ("3.742".into(), "0.038".into()));
+/// assert_eq!(format_with_uncertainty(13467.7, 135.6), ("13470".into(), "140".into()));
+/// assert_eq!(format_with_uncertainty(0.998, 0.0025), ("0.9980".into(), "0.0025".into()));
+/// assert_eq!(format_with_uncertainty(2.5, 0.0), ("2.5".into(), "0".into()));
+/// ```
+pub fn format_with_uncertainty(y: f64, u: f64) -> (String, String) {
+    if !(u.is_finite() && y.is_finite()) || u <= 0.0 {
+        return (format_number(y), format_number(u));
+    }
+    let us = format_sig(u, 2);
+    // The place of the uncertainty's last digit: 10^-decimals, or 10^power for u ≥ 10.
+    let mut mag = u.abs().log10().floor() as i32;
+    if (u * 10f64.powi(1 - mag)).round() >= 100.0 {
+        mag += 1;
+    }
+    let last = mag - 1;
+    let ys = if last < 0 {
+        let d = (-last) as usize;
+        format!("{y:.d$}")
+    } else {
+        let step = 10f64.powi(last);
+        format!("{:.0}", (y / step).round() * step)
+    };
+    let ys =
+        if ys.starts_with('-') && ys[1..].chars().all(|c| c == '0' || c == '.') { ys[1..].to_string() } else { ys };
+    (ys, us)
+}
+
 /// Defines a typed quantity: a newtype over its SI value with a fixed dimension.
 macro_rules! typed_quantity {
     ($(#[$doc:meta])* $name:ident, $dim:expr, $sym:literal) => {
