@@ -22,7 +22,8 @@ pub struct LayoutArgs {
     #[arg(long, default_value = "equal-area")]
     rule: String,
     /// Points per diameter (round) or in total (rectangular equal-area, US EPA Table 1-2).
-    /// Without it the US EPA Method 1 minimum is used (needs --downstream and --upstream).
+    /// Without it the US EPA Method 1 minimum is used (needs --straight-upstream and
+    /// --straight-downstream).
     #[arg(long)]
     points: Option<usize>,
     /// Number of diameters (round conduits).
@@ -31,11 +32,20 @@ pub struct LayoutArgs {
     /// Port (nipple) length added to each insertion depth.
     #[arg(long, default_value = "0 mm")]
     port: String,
-    /// Diameters from the nearest upstream disturbance to the ports.
-    #[arg(long)]
+    /// Straight length before the ports, in diameters: from the nearest disturbance
+    /// upstream (a bend, fan, damper) to the ports.
+    #[arg(long, value_name = "D")]
+    straight_upstream: Option<f64>,
+    /// Straight length after the ports, in diameters: from the ports to the nearest
+    /// disturbance downstream (or the outlet).
+    #[arg(long, value_name = "D")]
+    straight_downstream: Option<f64>,
+    /// Deprecated spelling of --straight-upstream (the distance downstream of the
+    /// disturbance); works for one more release, with a warning.
+    #[arg(long, hide = true)]
     downstream: Option<f64>,
-    /// Diameters from the ports to the nearest downstream disturbance.
-    #[arg(long)]
+    /// Deprecated spelling of --straight-downstream; works for one more release, with a warning.
+    #[arg(long, hide = true)]
     upstream: Option<f64>,
     /// Write the cross-section drawing to this SVG file.
     #[arg(long, value_name = "FILE")]
@@ -64,10 +74,18 @@ pub fn run(a: &LayoutArgs) -> Result<(), Box<dyn Error>> {
         _ => return Err("give --diameter for a round conduit, or --width and --height for a rectangular one".into()),
     };
     let mut notes = Vec::new();
-    let points = match (a.points, a.downstream, a.upstream) {
+    if a.downstream.is_some() || a.upstream.is_some() {
+        eprintln!(
+            "warning: --downstream and --upstream are deprecated and will be removed in the next release; write \
+             --straight-upstream (the straight length before the ports) and --straight-downstream (after them)"
+        );
+    }
+    let before = a.straight_upstream.or(a.downstream);
+    let after = a.straight_downstream.or(a.upstream);
+    let points = match (a.points, before, after) {
         (Some(p), _, _) => Some(p),
-        (None, Some(down), Some(up)) => {
-            let m = epa_method1_points(&conduit, down, up, TraversePurpose::Velocity)?;
+        (None, Some(before), Some(after)) => {
+            let m = epa_method1_points(&conduit, before, after, TraversePurpose::Velocity)?;
             notes.push(format!("US EPA Method 1 minimum: {} points ({})", m.minimum, m.basis));
             Some(if conduit.is_circular() { m.minimum / a.diameters.max(1) } else { m.minimum })
         }
@@ -78,7 +96,10 @@ pub fn run(a: &LayoutArgs) -> Result<(), Box<dyn Error>> {
         (false, LayoutRule::EqualArea, Some(p)) => TraverseLayout::rectangular_epa(&conduit, p, port)?,
         (false, LayoutRule::LogChebyshev, _) => TraverseLayout::rectangular_log_chebyshev(&conduit, port)?,
         (_, _, None) => {
-            return Err("give --points, or --downstream and --upstream for the US EPA Method 1 minimum".into());
+            return Err(
+                "give --points, or --straight-upstream and --straight-downstream for the US EPA Method 1 minimum"
+                    .into(),
+            );
         }
         (false, LayoutRule::LogLinear, _) => return Err("the log-linear rule is for round conduits here".into()),
     };

@@ -43,7 +43,7 @@ struct Cli {
 enum Command {
     /// Run the bundled demo script over the bundled demo data (a duct traverse and a water-main survey).
     Demo {
-        /// Read `larkfield-ahu2-supply.csv` and `hollin-brook-main.csv` from this folder instead
+        /// Read `pretendbury-ahu2-supply.csv` and `neverbrook-main.csv` from this folder instead
         /// of the bundled copies.
         #[arg(long, value_name = "DIR")]
         data_dir: Option<PathBuf>,

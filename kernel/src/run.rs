@@ -174,6 +174,16 @@ pub fn output_dirs(files: &[PathBuf], out: &Path) -> Result<Vec<PathBuf>, String
         .collect())
 }
 
+/// The cautions of the work, once per run, after results people may act on (unless the
+/// script printed its own, as a stack run sheet does).
+fn print_caution(results: &[RunResult]) {
+    let printed = results.iter().any(|r| !r.printed.is_empty());
+    let own = results.iter().flat_map(|r| &r.printed).any(|l| l.contains("Caution:"));
+    if printed && !own {
+        println!("\n{}", crate::demo::CAUTION);
+    }
+}
+
 /// Runs the batch; returns the exit status.
 pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     let script = std::fs::read_to_string(&args.script)
@@ -199,6 +209,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         for l in &r.printed {
             println!("{l}");
         }
+        print_caution(std::slice::from_ref(&r));
         if let Some(e) = r.error {
             eprintln!("{e}");
             return Ok(1);
@@ -259,6 +270,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
             eprintln!("{}: {e}", f.display());
         }
     }
+    print_caution(&results);
     if failed > 0 {
         eprintln!("{failed} of {} file(s) failed", args.files.len());
         return Ok(1);

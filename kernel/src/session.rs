@@ -369,6 +369,12 @@ impl Session {
         engine.register_fn("eprint", move |s: &str| send(&s3, Event::Stderr(s.to_string())));
         let s4 = sink.clone();
         engine.register_fn("clear_output", move || send(&s4, Event::ClearOutput));
+        let s7 = sink.clone();
+        let warn = api::WarnHook(Arc::new(move |s: &str| send(&s7, Event::Stderr(s.to_string()))));
+        match prefs.write() {
+            Ok(mut g) => g.warn = Some(warn),
+            Err(e) => e.into_inner().warn = Some(warn),
+        }
         let s6 = sink.clone();
         let ids = Arc::new(std::sync::atomic::AtomicU64::new(0));
         let start: api::ProgressStart = Arc::new(move |label: &str| {
@@ -1332,7 +1338,7 @@ mod tests {
         let mut s = Session::new();
         let dir = std::env::temp_dir().join(format!("stagna-setup-{}", std::process::id()));
         std::fs::create_dir_all(&dir).unwrap();
-        eval(&mut s, "let s = demo_setup(\"larkfield-ahu2\");");
+        eval(&mut s, "let s = demo_setup(\"pretendbury-ahu2\");");
         for ext in ["setup.toml", "json"] {
             let p = dir.join(format!("ahu2.{ext}"));
             eval(&mut s, &format!("s.save(\"{}\"); let back = load_setup(\"{}\");", p.display(), p.display()));
@@ -1340,7 +1346,7 @@ mod tests {
             assert!(eval(&mut s, "back.probe(\"PS-12\")").contains("C = 0.998"), "{ext}");
         }
         let steps = eval(&mut s, "s.probe(\"PS-12\").velocity(118.Pa, 1.2.kg_m3).steps()");
-        assert!(steps.contains("set-up larkfield-ahu2.setup.toml, probe 'PS-12'"), "{steps}");
+        assert!(steps.contains("set-up pretendbury-ahu2.setup.toml, probe 'PS-12'"), "{steps}");
         // 0.998·√(2·118/1.2) = 13.9957 m/s (ISO 3966 velocity equation, hand calculation)
         assert!(steps.contains("13.9957 m/s"), "{steps}");
         // Mean of the measured diameters 600.5 and 599.5 mm = 600 mm: A = π·0.3² = 0.282743 m².
@@ -1462,7 +1468,7 @@ mod tests {
         let (start, c) = s.complete("probe.vel", 9);
         assert_eq!(start, 6);
         assert!(c.contains(&"velocity".to_string()), "{c:?}");
-        let (_, c) = s.complete("let d = 78.m", 12);
+        let (_, c) = s.complete("let d = 64.m", 12);
         assert!(c.contains(&"mm".to_string()) && c.contains(&"m_s".to_string()), "{c:?}");
         let (_, c) = s.complete("humid_", 6);
         assert!(c.contains(&"humid_air".to_string()), "{c:?}");

@@ -469,7 +469,7 @@ fn bad_command_lines_are_refused_naming_the_option() {
 /// line and the key, and the script stops before using anything from it (issue 15).
 #[test]
 fn bad_set_up_files_name_file_line_and_key() {
-    const GOOD: &str = include_str!("../../demo-data/larkfield-ahu2.setup.toml");
+    const GOOD: &str = include_str!("../../demo-data/pretendbury-ahu2.setup.toml");
     let line_of = |text: &str, needle: &str| text.lines().position(|l| l.contains(needle)).map(|i| i + 1).unwrap_or(0);
     let truncated = &GOOD[..GOOD.find("liquid_density").unwrap_or(0) + 22];
     let cases: Vec<(String, &str, Vec<String>)> = vec![

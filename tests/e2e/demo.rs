@@ -13,7 +13,7 @@ fn text(o: &Output) -> (String, String) {
 
 fn copy_demo_data(dir: &Path) {
     let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("../demo-data");
-    for f in ["larkfield-ahu2-supply.csv", "hollin-brook-main.csv"] {
+    for f in ["pretendbury-ahu2-supply.csv", "neverbrook-main.csv"] {
         std::fs::copy(src.join(f), dir.join(f)).expect("copy demo data");
     }
 }
@@ -135,7 +135,7 @@ fn bad_files_give_clear_errors_and_exit_non_zero() {
     for (content, expected, what) in cases {
         let dir = tempdir();
         copy_demo_data(&dir);
-        std::fs::write(dir.join("larkfield-ahu2-supply.csv"), content).expect("write");
+        std::fs::write(dir.join("pretendbury-ahu2-supply.csv"), content).expect("write");
         let o = stagna(&["demo", "--data-dir", dir.to_str().unwrap_or_default()]);
         let (out, err) = text(&o);
         assert!(!o.status.success(), "{what}: should fail");

@@ -41,9 +41,9 @@ fn method1_minimum_and_drawing() {
         "layout",
         "--diameter",
         "1.5m",
-        "--downstream",
+        "--straight-upstream",
         "5.5",
-        "--upstream",
+        "--straight-downstream",
         "3",
         "--svg",
         svg.to_str().unwrap_or_default(),
@@ -64,8 +64,13 @@ fn rectangular_and_bad_requests() {
     assert!(!ok && err.contains("points per diameter must be even"), "{err}");
     let (ok, _, err) = stagna(&["layout", "--diameter", "1 kPa", "--points", "8"]);
     assert!(!ok && err.contains("--diameter: dimension mismatch"), "{err}");
-    let (ok, _, err) = stagna(&["layout", "--diameter", "0.25 m", "--downstream", "9", "--upstream", "3"]);
+    let (ok, _, err) =
+        stagna(&["layout", "--diameter", "0.25 m", "--straight-upstream", "9", "--straight-downstream", "3"]);
     assert!(!ok && err.contains("Method 1A"), "{err}");
+    // The earlier flags still work for one release, with a warning naming the new ones.
+    let (ok, out, err) = stagna(&["layout", "--diameter", "1.5m", "--downstream", "5.5", "--upstream", "3"]);
+    assert!(ok && out.contains("US EPA Method 1 minimum: 20 points"), "{out}");
+    assert!(err.contains("deprecated") && err.contains("--straight-upstream"), "{err}");
     let (ok, _, err) = stagna(&["layout", "--diameter", "1 m"]);
     assert!(!ok && err.contains("give --points"), "{err}");
 }

@@ -40,6 +40,9 @@ fn number_after(out: &str, label: &str) -> f64 {
 #[test]
 fn water_main_single_point() {
     let (out, dir) = run_script("water-main-single-point", &[]);
+    // The cautions of the work, once, after the results (the script prints none itself).
+    assert_eq!(out.matches("Caution:").count(), 1, "{out}");
+    assert!(out.trim_end().ends_with("read every warning above."), "{out}");
     // U/U_c = 2n²/((n+1)(2n+1)) for the printed n (power law; check-values.md §6).
     let pl = out.lines().find(|l| l.contains("power law, n = ")).expect("power-law line");
     let n = number_after(pl, "n =");
@@ -79,6 +82,7 @@ fn stack_test_by_the_methods_equations() {
     assert_eq!(out.matches("Stack run R").count(), 3, "{out}");
     assert!(out.contains("all method checks passed: true"), "{out}");
     assert!(out.contains("Caution: Stack gas"), "{out}");
+    assert_eq!(out.matches("Caution:").count(), 1, "the sheets' own, none added by the runner: {out}");
     // Run R2 by hand from the runs table (method symbols and constants from the Method 2,
     // 3, 4 nomenclature; arithmetic with Python 3.11):
     //   M_d = 0.440·10.1 + 0.320·8.3 + 0.280·81.6 = 29.948; P_s = 745.8 − 15.1/13.6 = 744.690 mmHg
@@ -143,7 +147,7 @@ fn profile_study_across_traverses() {
 #[test]
 fn batch_runs_many_files_in_parallel_and_never_overwrites_inputs() {
     let dir = tempdir("batch");
-    let data = root().join("demo-data/hollin-brook-main.csv");
+    let data = root().join("demo-data/neverbrook-main.csv");
     let a = dir.join("main-a.csv");
     let b = dir.join("main-b.csv");
     std::fs::copy(&data, &a).expect("copy");
@@ -161,7 +165,7 @@ fn batch_runs_many_files_in_parallel_and_never_overwrites_inputs() {
         a.to_str().unwrap_or_default(),
         b.to_str().unwrap_or_default(),
         "--set",
-        "site=Hollin Brook",
+        "site=Neverbrook",
         "--set",
         "d=400 mm",
         "-o",
@@ -169,7 +173,7 @@ fn batch_runs_many_files_in_parallel_and_never_overwrites_inputs() {
     ]);
     let so = String::from_utf8_lossy(&o.stdout);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    assert!(so.contains("main-a: ") && so.contains("main-b: ") && so.contains("at Hollin Brook, d = 400 mm"), "{so}");
+    assert!(so.contains("main-a: ") && so.contains("main-b: ") && so.contains("at Neverbrook, d = 400 mm"), "{so}");
     assert!(out.join("main-a/copy.csv").is_file() && out.join("main-b/copy.csv").is_file());
 
     // A script that tries to overwrite its input is refused; the input is untouched.
@@ -221,7 +225,7 @@ fn batch_outputs_are_unique_per_input_and_every_written_file_is_checked() {
     // output folder (one result silently lost); the CSV units sidecar could overwrite
     // an input; a killed writer's temporary file stayed behind.
     let dir = tempdir("unique");
-    let data = root().join("demo-data/hollin-brook-main.csv");
+    let data = root().join("demo-data/neverbrook-main.csv");
     for site in ["siteX", "siteY"] {
         std::fs::create_dir_all(dir.join(site)).expect("dir");
         std::fs::copy(&data, dir.join(site).join("run.csv")).expect("copy");
@@ -282,7 +286,7 @@ fn batch_scripts_write_only_inside_the_output_folder_unless_allowed() {
     }
     assert!(!elsewhere.join("x.csv").exists() && !dir.join("escape.csv").exists());
     // Reading anywhere is fine; writing where --allow-write says is fine.
-    let data = root().join("demo-data/hollin-brook-main.csv");
+    let data = root().join("demo-data/neverbrook-main.csv");
     std::fs::write(
         &script,
         format!("let t = read_table(\"{}\"); t.write(\"{}\");", data.display(), elsewhere.join("x.csv").display()),

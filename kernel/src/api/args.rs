@@ -159,6 +159,16 @@ pub fn check_keys(m: &rhai::Map, allowed: &[&str], what: &str) -> Res<()> {
     Ok(())
 }
 
+/// As [`check_keys`], also accepting deprecated spellings (not advertised).
+pub fn check_keys_or_old(m: &rhai::Map, allowed: &[&str], old: &[&str], what: &str) -> Res<()> {
+    for k in m.keys() {
+        if !allowed.contains(&k.as_str()) && !old.contains(&k.as_str()) {
+            return Err(rt(format!("{what}: unknown option '{k}'; options are: {}", allowed.join(", "))));
+        }
+    }
+    Ok(())
+}
+
 /// Text of a string argument.
 pub fn text(d: &Dynamic, what: &str) -> Res<String> {
     d.clone()

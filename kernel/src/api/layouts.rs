@@ -81,7 +81,7 @@ fn layouts(r: &mut Registrar<'_>) {
     );
     r.func(
         "epa_min_points",
-        &Doc::new("epa_min_points(conduit, downstream_D, upstream_D) -> integer", "Minimum number of traverse points by US EPA Method 1 §11.2 for a site the given numbers of diameters after and before the nearest disturbances.")
+        &Doc::new("epa_min_points(conduit, straight_upstream_D, straight_downstream_D) -> integer", "Minimum number of traverse points by US EPA Method 1 §11.2 for a site with the given straight lengths, in diameters: before the ports (from the nearest disturbance upstream, what the method calls the distance downstream of a disturbance) and after them (to the nearest disturbance downstream).")
             .example("print(epa_min_points(round_duct(1.5.m), 6.0, 1.5));")
             .source("US EPA Method 1 (40 CFR 60 App. A-1) §11.2, Figure 1-1 (breakpoints from memory)"),
         |c: Conduit, down: Dynamic, up: Dynamic| -> Res<i64> {

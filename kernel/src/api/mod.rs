@@ -113,6 +113,52 @@ impl std::fmt::Debug for ProgressHook {
     }
 }
 
+/// Where the session's warnings go (stderr of the REPL and batch runner, the notebook's
+/// stderr stream).
+#[derive(Clone)]
+pub struct WarnHook(pub Arc<dyn Fn(&str) + Send + Sync>);
+
+impl std::fmt::Debug for WarnHook {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("WarnHook")
+    }
+}
+
+/// Sends a warning to the session's stderr, once per text in a session (deprecations and
+/// other notes that would otherwise repeat on every row or call).
+pub fn warn_once(p: &SharedPrefs, text: &str) {
+    let (hook, new) = match p.write() {
+        Ok(mut g) => (g.warn.clone(), g.warned.insert(text.to_string())),
+        Err(e) => {
+            let mut g = e.into_inner();
+            (g.warn.clone(), g.warned.insert(text.to_string()))
+        }
+    };
+    if let (Some(h), true) = (hook, new) {
+        (h.0)(&format!("warning: {text}"));
+    }
+}
+
+/// The value of option `new` in `o`, or of its deprecated spelling `old` with a warning
+/// naming the new one (old names keep working for one release).
+pub fn renamed_option<'a>(
+    o: &'a rhai::Map,
+    new: &str,
+    old: &str,
+    p: &SharedPrefs,
+    function: &str,
+) -> Option<&'a Dynamic> {
+    if let Some(v) = o.get(new) {
+        return Some(v);
+    }
+    let v = o.get(old)?;
+    warn_once(
+        p,
+        &format!("{function}: option '{old}' is deprecated and will be removed in the next release; write '{new}'"),
+    );
+    Some(v)
+}
+
 /// A progress report for a long computation, when the session shows progress.
 pub fn progress_for(p: &SharedPrefs, label: &str) -> Option<stagna::progress::Progress> {
     let hook = match p.read() {
@@ -146,6 +192,10 @@ pub struct Prefs {
     pub progress: Option<ProgressHook>,
     /// How tables are shown.
     pub table: table_view::TableView,
+    /// Where warnings go.
+    pub warn: Option<WarnHook>,
+    /// Warnings already given this session (given once).
+    pub warned: std::collections::BTreeSet<String>,
 }
 
 impl Default for Prefs {
@@ -160,6 +210,8 @@ impl Default for Prefs {
             write_roots: None,
             progress: None,
             table: table_view::TableView::default(),
+            warn: None,
+            warned: Default::default(),
         }
     }
 }

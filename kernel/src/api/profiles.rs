@@ -90,24 +90,27 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             Ok(m)
         },
     );
+    let sp_prefs = prefs.clone();
     r.func(
         "single_point",
-        &Doc::new("single_point(centreline_velocity, state, conduit, options) -> SinglePoint", "Mean velocity and flow from one centreline velocity, iterating the Reynolds number with the profile model. Assumes fully developed, swirl-free flow in a straight round pipe; options: family (\"power-law\" default or \"log-law\"), upstream_D and downstream_D (straight lengths, for warnings).")
-            .example("let w = water().state(350.kPa, 11.degC);\nlet sp = single_point(1.62.m_s, w, round_duct(400.mm).roughness(0.05.mm), #{upstream_D: 30, downstream_D: 8});\nprint(sp);")
+        &Doc::new("single_point(centreline_velocity, state, conduit, options) -> SinglePoint", "Mean velocity and flow from one centreline velocity, iterating the Reynolds number with the profile model. Assumes fully developed, swirl-free flow in a straight round pipe; options: family (\"power-law\" default or \"log-law\"), straight_upstream_D and straight_downstream_D (the straight lengths before and after the measuring section in the flow direction, in diameters, for warnings; the earlier upstream_D and downstream_D still work, with a deprecation warning).")
+            .example("let w = water().state(350.kPa, 11.degC);\nlet sp = single_point(1.62.m_s, w, round_duct(400.mm).roughness(0.05.mm), #{straight_upstream_D: 30, straight_downstream_D: 8});\nprint(sp);")
             .source("ISO 3966:2008 / ISO 7145:1982 (single point at the centre); profile models as in profile_for"),
-        |v: Dynamic, s: State, c: Conduit, o: Map| -> Res<SinglePointResult> {
-            check_keys(&o, &["family", "upstream_D", "downstream_D"], "single_point")?;
+        move |v: Dynamic, s: State, c: Conduit, o: Map| -> Res<SinglePointResult> {
+            check_keys_or_old(&o, &["family", "straight_upstream_D", "straight_downstream_D"], &["upstream_D", "downstream_D"], "single_point")?;
             let family = match field(&o, "family") {
                 Some(f) => profile_family(&text(f, "family")?)?,
                 None => ProfileFamily::PowerLawFromFriction,
             };
-            let straight = match (field(&o, "upstream_D"), field(&o, "downstream_D")) {
+            let up = renamed_option(&o, "straight_upstream_D", "upstream_D", &sp_prefs, "single_point");
+            let down = renamed_option(&o, "straight_downstream_D", "downstream_D", &sp_prefs, "single_point");
+            let straight = match (up, down) {
                 (Some(u), Some(d)) => Some(StraightLengths {
-                    upstream_diameters: number(u, "upstream_D")?,
-                    downstream_diameters: number(d, "downstream_D")?,
+                    upstream_diameters: number(u, "straight_upstream_D")?,
+                    downstream_diameters: number(d, "straight_downstream_D")?,
                 }),
                 (None, None) => None,
-                _ => return Err(rt("single_point: give both upstream_D and downstream_D")),
+                _ => return Err(rt("single_point: give both straight_upstream_D and straight_downstream_D")),
             };
             lib(single_point(Velocity::m_s(si_of(&v, D::VELOCITY, "centreline velocity")?), &s.s, &c, family, straight))
         },
@@ -149,7 +152,7 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.property(
         "SinglePoint",
         "warnings",
-        &Doc::new("result.warnings -> array", "Remarks (straight lengths, regime).").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{upstream_D: 10, downstream_D: 3}).warnings);").source("common practice, no source (25 D / 5 D)"),
+        &Doc::new("result.warnings -> array", "Remarks (straight lengths, regime).").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{straight_upstream_D: 10, straight_downstream_D: 3}).warnings);").source("common practice, no source (25 D / 5 D)"),
         |s: &mut SinglePointResult| warnings_of(&s.warnings),
     );
 }

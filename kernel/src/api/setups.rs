@@ -14,8 +14,8 @@ use crate::catalog::Doc;
 
 /// The bundled set-up files of the invented scenarios, with the records they name.
 const DEMO_SETUPS: &[(&str, &str)] = &[
-    ("larkfield-ahu2", include_str!("../../../demo-data/larkfield-ahu2.setup.toml")),
-    ("hollin-brook", include_str!("../../../demo-data/hollin-brook.setup.toml")),
+    ("pretendbury-ahu2", include_str!("../../../demo-data/pretendbury-ahu2.setup.toml")),
+    ("neverbrook", include_str!("../../../demo-data/neverbrook.setup.toml")),
     ("nowhere-vale", include_str!("../../../demo-data/nowhere-vale.setup.toml")),
 ];
 const DEMO_RECORDS: &[(&str, &str)] =
@@ -25,7 +25,7 @@ const DEMO_RECORDS: &[(&str, &str)] =
 #[derive(Debug, Clone)]
 pub struct SetupV(pub Arc<Setup>);
 
-const EX: &str = "let s = demo_setup(\"larkfield-ahu2\");";
+const EX: &str = "let s = demo_setup(\"pretendbury-ahu2\");";
 
 fn max_age(o: &Map) -> Res<Option<i64>> {
     check_keys(o, &["max_age_days"], "load_setup")?;
@@ -106,7 +106,7 @@ fn loading(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Reads a set-up file (Stagna's own format stagna-setup, TOML; JSON when the name ends in .json): probes (coefficient or S-type calibration record), liquid gauges, transducers with calibration points, sites with their sections, and campaigns. The whole file is checked first — unknown keys, wrong types, unknown units, duplicated instrument ids, too few calibration points, missing records, a newer version — and refused with the file, line and key; nothing is half-loaded. Record paths inside are relative to the file. max_age_days makes an older S-type calibration warn on every velocity.",
     )
     .param("path", "the set-up file (a relative path not found here is looked for in the run's output folder)")
-    .example("demo_setup(\"hollin-brook\").save(\"hollin-example.setup.toml\");\nlet s = load_setup(\"hollin-example.setup.toml\");\nprint(s.probe(\"WT-2\"));")
+    .example("demo_setup(\"neverbrook\").save(\"neverbrook-example.setup.toml\");\nlet s = load_setup(\"neverbrook-example.setup.toml\");\nprint(s.probe(\"WT-2\"));")
     .source("Stagna set-up format stagna-setup, version 1 (docs/records.md)");
     let p = prefs.clone();
     r.func("load_setup", &doc, move |path: &str| load(&p, path, None));
@@ -114,7 +114,7 @@ fn loading(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func("load_setup", &doc, move |path: &str, o: Map| load(&p, path, max_age(&o)?));
     r.func(
         "demo_setup",
-        &Doc::new("demo_setup(name) -> Setup", "A bundled set-up file of the invented scenarios: \"larkfield-ahu2\" (ventilation duct: pitot-static tube, oil gauge, transducer), \"hollin-brook\" (water main: wall-tap pitot, mercury U-tube), \"nowhere-vale\" (stack: S-type tube with its calibration record, oil gauge).")
+        &Doc::new("demo_setup(name) -> Setup", "A bundled set-up file of the invented scenarios: \"pretendbury-ahu2\" (ventilation duct: pitot-static tube, oil gauge, transducer), \"neverbrook\" (water main: wall-tap pitot, mercury U-tube), \"nowhere-vale\" (stack: S-type tube with its calibration record, oil gauge).")
             .example("print(demo_setup(\"nowhere-vale\"));")
             .source("invented demo data bundled with stagna"),
         demo,
@@ -257,7 +257,7 @@ fn members(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
         "Setup",
         "campaign",
         &Doc::new("setup.campaign(id) -> Map", "A campaign's part of a reduce_campaign spec: probe, manometer (at the site's gravity), columns and reference as the file gives them. Add the day's conditions (fluid, static_pressure) with `+`.")
-            .example("let s = demo_setup(\"larkfield-ahu2\");\nlet spec = s.campaign(\"monthly-traverse\") + #{fluid: humid_air(0.45), static_pressure: 100.8.kPa};\nprint(spec.keys());")
+            .example("let s = demo_setup(\"pretendbury-ahu2\");\nlet spec = s.campaign(\"monthly-traverse\") + #{fluid: humid_air(0.45), static_pressure: 100.8.kPa};\nprint(spec.keys());")
             .source("Stagna set-up format stagna-setup, version 1"),
         |s: &mut SetupV, id: &str| -> Res<Map> {
             let c = s.0.campaigns.get(id).ok_or_else(|| unknown(&s.0, "campaign", id, s.0.campaigns.keys().collect()))?;
@@ -280,7 +280,7 @@ fn members(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
         "Setup",
         "units",
         &Doc::new("setup.units(campaign) -> Map", "The units of the readings' columns as the campaign gives them, for table.units(...).")
-            .example("let s = demo_setup(\"hollin-brook\");\nlet t = demo_table(\"hollin-brook-main\").units(s.units(\"centreline-survey\"));\nprint(t[\"hg_deflection_mm\"]);")
+            .example("let s = demo_setup(\"neverbrook\");\nlet t = demo_table(\"neverbrook-main\").units(s.units(\"centreline-survey\"));\nprint(t[\"hg_deflection_mm\"]);")
             .source("Stagna set-up format stagna-setup, version 1"),
         |s: &mut SetupV, id: &str| -> Res<Map> {
             let c = s.0.campaigns.get(id).ok_or_else(|| unknown(&s.0, "campaign", id, s.0.campaigns.keys().collect()))?;

@@ -32,19 +32,15 @@ pub struct Grouped {
 /// The bundled demo tables (invented scenarios).
 pub const DEMO_TABLES: &[(&str, &str, &str)] = &[
     (
-        "larkfield-ahu2-supply.csv",
+        "pretendbury-ahu2-supply.csv",
         "duct traverse, leisure-centre supply air",
-        include_str!("../../../demo-data/larkfield-ahu2-supply.csv"),
+        include_str!("../../../demo-data/pretendbury-ahu2-supply.csv"),
     ),
+    ("neverbrook-main.csv", "water main, centreline readings", include_str!("../../../demo-data/neverbrook-main.csv")),
     (
-        "hollin-brook-main.csv",
-        "water main, centreline readings",
-        include_str!("../../../demo-data/hollin-brook-main.csv"),
-    ),
-    (
-        "ashby-kiln-stack.csv",
+        "nowhere-vale-kiln2-stack.csv",
         "stack traverse, S-type probe, three runs",
-        include_str!("../../../demo-data/ashby-kiln-stack.csv"),
+        include_str!("../../../demo-data/nowhere-vale-kiln2-stack.csv"),
     ),
     (
         "nowhere-vale-kiln-points.csv",
@@ -57,9 +53,9 @@ pub const DEMO_TABLES: &[(&str, &str, &str)] = &[
         include_str!("../../../demo-data/nowhere-vale-kiln-runs.csv"),
     ),
     (
-        "tamworth-rig-profiles.csv",
+        "nullford-rig-profiles.csv",
         "air rig, profiles at 12 stations after a bend",
-        include_str!("../../../demo-data/tamworth-rig-profiles.csv"),
+        include_str!("../../../demo-data/nullford-rig-profiles.csv"),
     ),
 ];
 
@@ -371,8 +367,8 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let pp = prefs.clone();
     r.func(
         "demo_table",
-        &Doc::new("demo_table(name) -> Table", "One of the bundled demo tables (invented scenarios): \"larkfield-ahu2-supply\" (a duct traverse), \"hollin-brook-main\" (a water main), \"ashby-kiln-stack\" (a stack, S-type probe), \"nowhere-vale-kiln-points\" and \"nowhere-vale-kiln-runs\" (a stack test: points with yaw angles, and one row per run) or \"tamworth-rig-profiles\" (profiles after a bend).")
-            .example("let t = demo_table(\"hollin-brook-main\");\nprint(t.height);")
+        &Doc::new("demo_table(name) -> Table", "One of the bundled demo tables (invented scenarios): \"pretendbury-ahu2-supply\" (a duct traverse), \"neverbrook-main\" (a water main), \"nowhere-vale-kiln2-stack\" (a stack, S-type probe), \"nowhere-vale-kiln-points\" and \"nowhere-vale-kiln-runs\" (a stack test: points with yaw angles, and one row per run) or \"nullford-rig-profiles\" (profiles after a bend).")
+            .example("let t = demo_table(\"neverbrook-main\");\nprint(t.height);")
             .source("invented demo data bundled with stagna"),
         move |name: &str| -> Res<Tbl> { Ok(Tbl::new(demo_csv(&pp, name)?)) },
     );
@@ -471,7 +467,7 @@ fn members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Table",
         "units",
         &Doc::new("t.units(map) -> Table", "Declares several column units at once.")
-            .example("let t = demo_table(\"hollin-brook-main\").units(#{hg_deflection_mm: \"mm\", water_temp_c: \"degC\"});\nprint(t[\"water_temp_c\"].mean());")
+            .example("let t = demo_table(\"neverbrook-main\").units(#{hg_deflection_mm: \"mm\", water_temp_c: \"degC\"});\nprint(t[\"water_temp_c\"].mean());")
             .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
         |ctx: NativeCallContext, t: &mut Tbl, m: Map| -> Res<Tbl> {
             let mut out = t.clone();
@@ -492,7 +488,7 @@ fn members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Table",
         "texts",
         &Doc::new("t.texts(column) -> array", "A column's values as text, one string per row (labels, sources, ids); numbers are written as polars writes them. Bounded by the session's array limit.")
-            .example("print(demo_table(\"hollin-brook-main\").head(3).texts(\"time\"));")
+            .example("print(demo_table(\"neverbrook-main\").head(3).texts(\"time\"));")
             .source("common practice, no source"),
         move |t: &mut Tbl, c: &str| -> Res<Array> {
             let max = super::prefs(&pt).max_array;
@@ -506,7 +502,7 @@ fn members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Table",
         "height",
         &Doc::new("t.height -> integer", "Number of rows.")
-            .example("print(demo_table(\"hollin-brook-main\").height);")
+            .example("print(demo_table(\"neverbrook-main\").height);")
             .source("common practice, no source"),
         |t: &mut Tbl| t.df.height() as i64,
     );
@@ -514,7 +510,7 @@ fn members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Table",
         "columns",
         &Doc::new("t.columns -> array", "Column names.")
-            .example("print(demo_table(\"hollin-brook-main\").columns);")
+            .example("print(demo_table(\"neverbrook-main\").columns);")
             .source("common practice, no source"),
         |t: &mut Tbl| t.df.get_column_names().iter().map(|s| Dynamic::from(s.to_string())).collect::<Array>(),
     );
@@ -569,7 +565,7 @@ fn queries(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Table",
         "select",
         &Doc::new("t.select(columns) -> Table", "Only the given columns or expressions (an array, or one).")
-            .example("print(demo_table(\"hollin-brook-main\").select([\"time\", \"water_temp_c\"]));")
+            .example("print(demo_table(\"neverbrook-main\").select([\"time\", \"water_temp_c\"]));")
             .source("polars lazy select"),
         |t: &mut Tbl, d: Dynamic| -> Res<Tbl> {
             Ok(t.with_frame(t.df.clone().lazy().select(exprs_of(&d, "select")?).collect().map_err(perr)?))
@@ -604,7 +600,7 @@ fn queries(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Table",
         "head",
         &Doc::new("t.head(n) -> Table", "The first n rows.")
-            .example("print(demo_table(\"larkfield-ahu2-supply\").head(3));")
+            .example("print(demo_table(\"pretendbury-ahu2-supply\").head(3));")
             .source("common practice, no source"),
         |t: &mut Tbl, n: i64| -> Res<Tbl> {
             if n < 0 {

@@ -603,7 +603,7 @@ pub fn epa_method1_points(
         (
             n,
             format!(
-                "Figure 1-1 ({downstream:.1} D downstream → {by_down}, {upstream:.2} D upstream → {by_up}; figure read from memory)"
+                "Figure 1-1 ({downstream:.1} D straight before the ports, downstream of the disturbance → {by_down}; {upstream:.2} D after them → {by_up}; figure read from memory)"
             ),
         )
     };
