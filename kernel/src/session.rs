@@ -938,7 +938,7 @@ fn register_help(r: &mut Registrar<'_>) {
             "display(value)",
             "Shows a value now (in a notebook: as a table, chart, formula or text) without ending the cell.",
         )
-        .example("display(traverse_layout(round_duct(1.m), #{points: 4}).chart());")
+        .example("display(traverse_layout(round_section(1.m), #{points: 4}).chart());")
         .source("Jupyter messaging protocol 5.3, display_data"),
     );
     r.document(
@@ -1153,9 +1153,9 @@ mod tests {
         assert!(e.kind == "LimitExceeded" && e.message.contains("past its limit"), "{e:?}");
         assert!(e.hint.as_deref().is_some_and(|h| h.contains("--max-memory")), "{e:?}");
         // Bounded domain inputs are checked before allocating.
-        let e = err(&mut s, "traverse_layout(round_duct(1.m), #{points: 100000000})");
+        let e = err(&mut s, "traverse_layout(round_section(1.m), #{points: 100000000})");
         assert!(e.message.contains("points per diameter") && e.message.contains("at most 200"), "{e:?}");
-        let e = err(&mut s, "traverse_layout(rect_duct(1.m, 0.5.m), #{columns: 0})");
+        let e = err(&mut s, "traverse_layout(rect_section(1.m, 0.5.m), #{columns: 0})");
         assert!(e.message.contains("columns") && e.message.contains("got 0"), "{e:?}");
     }
 
@@ -1266,14 +1266,14 @@ mod tests {
         "u_tube(mercury())",
         "pitot_static(0.99)",
         "s_type(0.84)",
-        "round_duct(1.m)",
-        "rect_duct(1.m, 0.5.m)",
+        "round_section(1.m)",
+        "rect_section(1.m, 0.5.m)",
         "power_law(7)",
         "water().state(101.kPa, 20.degC)",
         "table_from(#{a: [1.0, 2.0]})",
         "table_from(#{a: [1.0, 2.0]}).unit(\"a\", \"mm\")[\"a\"]",
         "col(\"a\")",
-        "traverse_layout(round_duct(1.m), #{points: 4})",
+        "traverse_layout(round_section(1.m), #{points: 4})",
     ];
 
     #[test]
@@ -1543,10 +1543,55 @@ mod tests {
         assert!(s.is_complete("1)").is_err());
     }
 
+    /// Renamed options and properties keep working for one release and warn once each;
+    /// renamed result columns name their new name.
+    #[test]
+    fn deprecated_names_keep_working_and_warn_once() {
+        let mut s = Session::new();
+        let lines = Arc::new(std::sync::Mutex::new(Vec::<String>::new()));
+        let sink = lines.clone();
+        s.set_events(move |e| {
+            if let Event::Stderr(x) = e {
+                sink.lock().map(|mut v| v.push(x)).unwrap_or(());
+            }
+        });
+        let new = "traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm, u_rel_dp: 0.01, u_dp: 0.2.Pa})";
+        let old = new.replace("u_rel_dp", "dp_rel").replace("u_dp", "dp_abs");
+        let a = eval(&mut s, &format!("{new}.U"));
+        let b = eval(&mut s, &format!("let b = {old}; b.expanded"));
+        assert_eq!(a, b, "the old spellings give the same result");
+        eval(&mut s, &format!("{old}.expanded"));
+        let got = lines.lock().map(|v| v.clone()).unwrap_or_default();
+        let warnings: Vec<&String> = got.iter().filter(|l| l.starts_with("warning:")).collect();
+        assert_eq!(warnings.len(), 3, "dp_rel, dp_abs and .expanded, once each: {got:?}");
+        assert!(
+            warnings.iter().any(|w| w.contains("'dp_rel' is deprecated") && w.contains("write 'u_rel_dp'")),
+            "{got:?}"
+        );
+        assert!(
+            warnings.iter().any(|w| w.contains("budget.expanded is deprecated") && w.contains("budget.U")),
+            "{got:?}"
+        );
+        // Renamed functions and methods: same results, one warning each.
+        assert_eq!(eval(&mut s, "round_duct(600.mm).area"), eval(&mut s, "round_section(600.mm).area"));
+        eval(&mut s, "round_duct(500.mm); rect_duct(1.m, 2.m); humid_air_dew_point(9.degC)");
+        eval(&mut s, "table_from(#{dp: [100.0, 121.0]}).unit(\"dp\", \"Pa\")[\"dp\"].sqrt_mean(\"Pa\")");
+        let got = lines.lock().map(|v| v.clone()).unwrap_or_default();
+        for name in ["round_duct", "rect_duct", "humid_air_dew_point", "column.sqrt_mean"] {
+            assert_eq!(
+                got.iter().filter(|l| l.contains(&format!("{name} is deprecated"))).count(),
+                1,
+                "{name}: {got:?}"
+            );
+        }
+        let e = err(&mut s, "table_from(#{u_flow_m3_s: [1.0]})[\"expanded_flow_m3_s\"]");
+        assert!(e.message.contains("was renamed 'U_flow_m3_s'"), "{}", e.message);
+    }
+
     #[test]
     fn values_render_as_mime_bundles() {
         let mut s = Session::new();
-        let o = s.eval("traverse_layout(round_duct(1.m), #{points: 4}).chart()").unwrap();
+        let o = s.eval("traverse_layout(round_section(1.m), #{points: 4}).chart()").unwrap();
         assert!(o.value.unwrap().svg.unwrap().starts_with("<svg"));
         let o = s.eval("table_from(#{h: [1.0]}).unit(\"h\", \"mm\")").unwrap();
         assert!(

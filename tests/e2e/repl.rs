@@ -23,7 +23,7 @@ fn piped(input: &str) -> (bool, String, String) {
 #[test]
 fn piped_input_is_evaluated_in_order_with_state_kept() {
     let (ok, out, err) =
-        piped("let d = round_duct(\n    600.mm\n);\nd.area\nfn twice(x) { x * 2 }\ntwice(d.area)\nhelp water\n");
+        piped("let d = round_section(\n    600.mm\n);\nd.area\nfn twice(x) { x * 2 }\ntwice(d.area)\nhelp water\n");
     assert!(ok, "{err}");
     // A = π·0.3² = 0.282743 m²
     assert!(out.contains("0.282743 m²") && out.contains("0.565487 m²"), "{out}");

@@ -31,7 +31,7 @@ class StagnaKernelTests(jkt.KernelTests):
         {"code": 'qty("3 inH2O@60F").to("Pa")', "result": "746.52 Pa"},
     ]
     code_display_data = [
-        {"code": "display(traverse_layout(round_duct(1.m), #{points: 4}).chart())", "mime": "image/svg+xml"},
+        {"code": "display(traverse_layout(round_section(1.m), #{points: 4}).chart())", "mime": "image/svg+xml"},
         {"code": 'display(table_from(#{h: [1.0]}).unit("h", "mm"))', "mime": "text/html"},
     ]
 

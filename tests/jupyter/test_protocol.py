@@ -123,7 +123,7 @@ def test_client_disconnects_and_reconnects(kernel):
 
 def test_rich_output_bundles(kernel):
     km, kc = kernel
-    _, outputs = run(kc, "traverse_layout(round_duct(1.2.m), #{points: 8}).chart()")
+    _, outputs = run(kc, "traverse_layout(round_section(1.2.m), #{points: 8}).chart()")
     data = [m["content"]["data"] for m in outputs if m["msg_type"] == "execute_result"][0]
     assert data["image/svg+xml"].startswith("<svg") and data["image/png"] and data["text/plain"]
     _, outputs = run(kc, 'table_from(#{h: [1.0, 2.0]}).unit("h", "mm")')

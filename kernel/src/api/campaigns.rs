@@ -22,7 +22,7 @@ pub struct Campaign {
 }
 
 /// Builds a campaign spec from a script map and the table's declared units.
-fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
+fn campaign_spec(t: &Tbl, o: &Map, p: &SharedPrefs) -> Res<CampaignSpec> {
     check_keys(
         o,
         &[
@@ -73,7 +73,7 @@ fn campaign_spec(t: &Tbl, o: &Map) -> Res<CampaignSpec> {
         }
     }
     let flow = flow_options(&fo)?;
-    let uncertainty = campaign_uncertainty(o)?;
+    let uncertainty = campaign_uncertainty(o, p)?;
     let conditions = match field(o, "runs") {
         Some(r) => {
             let runs: Tbl =
@@ -287,18 +287,30 @@ fn campaign_columns(t: &Tbl, cols: &Dynamic) -> Res<CampaignColumns> {
 
 /// The optional `uncertainty` map of a campaign spec (relative standard uncertainties of
 /// the inputs, the coverage probability and the layout rule for the method terms).
-fn campaign_uncertainty(o: &Map) -> Res<Option<CampaignUncertainty>> {
+fn campaign_uncertainty(o: &Map, p: &SharedPrefs) -> Res<Option<CampaignUncertainty>> {
     Ok(match field(o, "uncertainty") {
         None => None,
         Some(d) => {
             let u: Map = d.clone().try_cast().ok_or_else(|| rt("campaign: 'uncertainty' must be a map"))?;
-            check_keys(
+            const OLD: [(&str, &str); 5] = [
+                ("u_rel_coefficient", "coefficient"),
+                ("u_rel_density", "density"),
+                ("u_rel_diameter", "diameter"),
+                ("u_rel_dp", "dp_rel"),
+                ("u_dp", "dp_abs"),
+            ];
+            check_keys_or_old(
                 &u,
-                &["coefficient", "density", "diameter", "dp_rel", "dp_abs", "coverage", "rule"],
+                &["u_rel_coefficient", "u_rel_density", "u_rel_diameter", "u_rel_dp", "u_dp", "coverage", "rule"],
+                &OLD.map(|(_, old)| old),
                 "campaign uncertainty",
             )?;
+            let get = |k: &str| {
+                let old = OLD.iter().find(|(n, _)| *n == k).map_or(k, |(_, o)| *o);
+                renamed_option(&u, k, old, p, "campaign uncertainty")
+            };
             let rel = |k: &str, default: f64| -> Res<f64> {
-                field(&u, k).map(|d| number(d, k)).transpose().map(|v| v.unwrap_or(default))
+                get(k).map(|d| number(d, k)).transpose().map(|v| v.unwrap_or(default))
             };
             let rule = match field(&u, "rule") {
                 Some(d) => match text(d, "rule")?.as_str() {
@@ -309,11 +321,11 @@ fn campaign_uncertainty(o: &Map) -> Res<Option<CampaignUncertainty>> {
                 None => stagna::LayoutRule::EqualArea,
             };
             Some(CampaignUncertainty {
-                coefficient_rel: rel("coefficient", 0.005)?,
-                density_rel: rel("density", 0.002)?,
-                diameter_rel: rel("diameter", 0.002)?,
-                dp_rel: rel("dp_rel", 0.005)?,
-                dp_abs_pa: field(&u, "dp_abs").map(|d| si_of(d, D::PRESSURE, "dp_abs")).transpose()?.unwrap_or(0.5),
+                coefficient_rel: rel("u_rel_coefficient", 0.005)?,
+                density_rel: rel("u_rel_density", 0.002)?,
+                diameter_rel: rel("u_rel_diameter", 0.002)?,
+                dp_rel: rel("u_rel_dp", 0.005)?,
+                dp_abs_pa: get("u_dp").map(|d| si_of(d, D::PRESSURE, "u_dp")).transpose()?.unwrap_or(0.5),
                 terms: MethodTerm::typical(rule),
                 coverage: rel("coverage", 0.95)?,
             })
@@ -334,23 +346,24 @@ fn reductions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "reduce_campaign",
         &Doc::new("reduce_campaign(table, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced.")
-            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{coefficient, density, diameter, dp_rel, dp_abs, coverage, rule}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture, md) with run_columns (key → column name); method2 #{md?, report: \"physics\" | \"method\"} adds each traverse by US EPA Method 2 eq. 2-7 and 2-10 (epa_m2_velocity_m_s, epa_m2_dry_flow_20C_760mmHg_m3_h, physics_velocity_m_s, epa_m2_minus_physics_pct, reported_route; M_d per run from md, else Method 3 eq. 3-1 from co2/o2)")
+            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{u_rel_coefficient, u_rel_density, u_rel_diameter, u_rel_dp (relative standard uncertainties, fractions), u_dp (absolute standard uncertainty of each Δp), coverage, rule}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture, md) with run_columns (key → column name); method2 #{md?, report: \"physics\" | \"method\"} adds each traverse by US EPA Method 2 eq. 2-7 and 2-10 (epa_m2_velocity_m_s, epa_m2_dry_flow_20C_760mmHg_m3_h, physics_velocity_m_s, epa_m2_minus_physics_pct, reported_route; M_d per run from md, else Method 3 eq. 3-1 from co2/o2)")
             .returns("Campaign (.traverses table, .failures)")
             .example("let t = table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})\n    .units(#{h: \"mm\", t: \"degC\", d: \"mm\", y: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),\n    columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\", position: \"y\"}};\nprint(reduce_campaign(t, spec).traverses);")
             .source("velocity-area method, ISO 3966:2008 §9–10; point physics as in Manometer.dp and Probe.velocity"),
         move |t: Tbl, o: Map| -> Res<Campaign> {
-            let mut spec = campaign_spec(&t, &o)?;
+            let mut spec = campaign_spec(&t, &o, &pp)?;
             spec.progress = super::progress_for(&pp, "reduce_campaign: traverses");
             Ok(Campaign { res: lib(stagna::campaign::reduce_campaign(&t.df, &spec))? })
         },
     );
+    let pv = prefs.clone();
     r.func(
         "point_velocities",
         &Doc::new("point_velocities(table, spec) -> Table", "The table with dp_pa, density_kg_m3 and velocity_m_s per row, computed in Rust with the same spec as reduce_campaign (stops at the first bad row, naming it).")
             .example("let t = table_from(#{tr: [\"T1\",\"T1\"], h: [20.0, 30.0], t: [20.0, 20.0], d: [500.0, 500.0]}).units(#{h: \"mm\", t: \"degC\", d: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0), columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\"}};\nprint(point_velocities(t, spec));")
             .source("as Manometer.dp and Probe.velocity"),
-        |t: Tbl, o: Map| -> Res<Tbl> {
-            let spec = campaign_spec(&t, &o)?;
+        move |t: Tbl, o: Map| -> Res<Tbl> {
+            let spec = campaign_spec(&t, &o, &pv)?;
             let df = lib(stagna::campaign::point_velocities(&t.df, &spec))?;
             Ok(with_result_units(df, t.units.clone()))
         },

@@ -152,8 +152,8 @@ fn trend_charts_and_output(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             let tbl = super::tables::with_result_units(df.clone(), Default::default());
             let (values, yu) = column_values(&tbl, &y, &display)?;
             // Error bars in the same unit as the plotted flows.
-            let errors = match (&yu, df.column("expanded_flow_m3_s").is_ok() && y.ends_with("flow_m3_s")) {
-                (Some(u), true) => Some(lib(tbl.column("expanded_flow_m3_s")?.values_in(u))?),
+            let errors = match (&yu, df.column("U_flow_m3_s").is_ok() && y.ends_with("flow_m3_s")) {
+                (Some(u), true) => Some(lib(tbl.column("U_flow_m3_s")?.values_in(u))?),
                 _ => None,
             };
             let key = df.get_column_names()[0].to_string();
@@ -174,7 +174,7 @@ fn trend_charts_and_output(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Layout",
         "chart",
         &Doc::new("layout.chart() -> Plot", "The cross-section with its traverse lines, ports and numbered points.")
-            .example("let p = traverse_layout(round_duct(1.2.m), #{points: 8, diameters: 2}).chart();\nprint(p);")
+            .example("let p = traverse_layout(round_section(1.2.m), #{points: 8, diameters: 2}).chart();\nprint(p);")
             .source("positions as in traverse_layout"),
         |l: &mut TraverseLayout| Plot::Layout(Box::new(l.clone())),
     );
@@ -182,7 +182,7 @@ fn trend_charts_and_output(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Plot",
         "svg",
         &Doc::new("plot.svg() -> string", "The plot as SVG text.")
-            .example("print(traverse_layout(round_duct(1.m), #{points: 4}).chart().svg().len() > 0);")
+            .example("print(traverse_layout(round_section(1.m), #{points: 4}).chart().svg().len() > 0);")
             .source("SVG 1.1 (W3C)"),
         |p: &mut Plot| -> Res<String> { lib(p.svg()) },
     );
@@ -191,7 +191,7 @@ fn trend_charts_and_output(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Plot",
         "save",
         &Doc::new("plot.save(path)", "Writes the plot as .svg or .png (by extension) through a temporary file and a rename; in a batch run relative paths go to the output folder.")
-            .example("traverse_layout(round_duct(1.m), #{points: 4}).chart().save(\"example-layout.svg\");")
+            .example("traverse_layout(round_section(1.m), #{points: 4}).chart().save(\"example-layout.svg\");")
             .source("SVG 1.1 (W3C); PNG (ISO/IEC 15948)"),
         move |p: &mut Plot, path: &str| -> Res<()> {
             let target = out_path(&pp, path)?;

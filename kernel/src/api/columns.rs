@@ -114,7 +114,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.group("Columns");
     arithmetic(r, prefs);
     conversions(r, prefs);
-    statistics(r);
+    statistics(r, prefs);
 }
 
 /// Showing columns, and arithmetic between columns and quantities.
@@ -225,7 +225,7 @@ fn conversions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 }
 
 /// Statistics of a column and distinct values of a table column.
-fn statistics(r: &mut Registrar<'_>) {
+fn statistics(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     type Stat = fn(&[f64]) -> f64;
     let stats: [(&str, &str, Stat); 5] = [
         ("mean", "Arithmetic mean, as a quantity.", |v| v.iter().sum::<f64>() / v.len() as f64),
@@ -295,11 +295,23 @@ fn statistics(r: &mut Registrar<'_>) {
     );
     r.method(
         "Column",
-        "sqrt_mean",
-        &Doc::new("column.sqrt_mean(unit) -> number", "Mean of the square roots of the values expressed in `unit` (the average √Δp of US EPA Method 2, with Δp in mm H₂O or in. H₂O). Negative values are refused with their row.")
-            .example("let t = table_from(#{dp: [100.0, 121.0]}).unit(\"dp\", \"Pa\");\nprint(t[\"dp\"].sqrt_mean(\"mmH2O\"));")
+        "mean_of_sqrt",
+        &Doc::new("column.mean_of_sqrt(unit) -> number", "Mean of the square roots of the values expressed in `unit` (the average √Δp of US EPA Method 2, with Δp in mm H₂O or in. H₂O), not the root of the mean. Negative values are refused with their row.")
+            .example("let t = table_from(#{dp: [100.0, 121.0]}).unit(\"dp\", \"Pa\");\nprint(t[\"dp\"].mean_of_sqrt(\"mmH2O\"));")
             .source("US EPA Method 2 (40 CFR 60 App. A-1) Eq. 2-7"),
         |c: &mut Col, unit: &str| -> Res<f64> { lib(stagna::methods::us_epa::mean_sqrt_dp(&lib(c.values_in(unit))?)) },
+    );
+    let p = prefs.clone();
+    r.method(
+        "Column",
+        "sqrt_mean",
+        &Doc::new("column.sqrt_mean(unit) -> number", "Deprecated spelling of column.mean_of_sqrt(unit) (the name read as the root of the mean); works for this release, with a warning.")
+            .example("let t = table_from(#{dp: [100.0, 121.0]}).unit(\"dp\", \"Pa\");\nprint(t[\"dp\"].mean_of_sqrt(\"mmH2O\"));")
+            .source("US EPA Method 2 (40 CFR 60 App. A-1) Eq. 2-7"),
+        move |c: &mut Col, unit: &str| -> Res<f64> {
+            super::warn_once(&p, "column.sqrt_mean is deprecated and will be removed in the next release; write column.mean_of_sqrt (the mean of the square roots)");
+            lib(stagna::methods::us_epa::mean_sqrt_dp(&lib(c.values_in(unit))?))
+        },
     );
     r.method(
         "Table",

@@ -21,7 +21,7 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "flow",
         &Doc::new("flow(mean_velocity, conduit, state, options) -> Flow", "Volume and mass flow from a section-mean velocity; options: reference (\"normal\" 0 °C and 101.325 kPa, \"standard\" 15 °C and 101.325 kPa, \"epa\" 20 °C and 760 mmHg, \"us\" 60 °F and 14.696 psi), moisture (B_ws for the dry-basis flow), wall_factor (a number, US EPA Method 2H).")
-            .example("let air = humid_air(0.4).state(101.kPa, 22.degC);\nlet f = flow(6.9.m_s, round_duct(600.mm), air, #{reference: \"normal\"});\nprint(f);")
+            .example("let air = humid_air(0.4).state(101.kPa, 22.degC);\nlet f = flow(6.9.m_s, round_section(600.mm), air, #{reference: \"normal\"});\nprint(f);")
             .source("Q = U A; ṁ = ρ Q; ideal-gas correction to the reference condition; US EPA Method 2H for wall factors"),
         |v: Dynamic, c: Conduit, s: State, o: Map| -> Res<FlowResult> {
             let opts = flow_options(&o)?;
@@ -54,7 +54,7 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             "Flow",
             name,
             &Doc::new(&format!("flow.{name} -> Quantity"), summary)
-                .example(&format!("let air = dry_air().state(101.kPa, 20.degC);\nprint(flow(5.m_s, round_duct(1.m), air, #{{reference: \"normal\", moisture: 0.0}}).{name});"))
+                .example(&format!("let air = dry_air().state(101.kPa, 20.degC);\nprint(flow(5.m_s, round_section(1.m), air, #{{reference: \"normal\", moisture: 0.0}}).{name});"))
                 .source("Q = U A; ideal-gas reference correction"),
             move |f: &mut FlowResult| -> Dynamic {
                 let (v, dim) = match name {
@@ -73,7 +73,7 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("section_mean(wall_distance, velocity, conduit, options) -> Quantity", "Mean velocity of a round section from points on one or more diameters: the arithmetic mean (what equal-area and log-linear layouts are for) or numerical integration with a power-law wall region. Options: averaging (\"arithmetic\" or a wall exponent m, e.g. 7), line (a column of diameter numbers, when there are several).")
             .param("wall_distance", "distance of each point from the port-side wall (length column)")
             .param("velocity", "point velocities (velocity column)")
-            .example("let t = table_from(#{y: [40.0, 140.0, 460.0, 560.0], v: [10.1, 11.8, 11.7, 10.0]}).units(#{y: \"mm\", v: \"m/s\"});\nprint(section_mean(t[\"y\"], t[\"v\"], round_duct(600.mm), #{averaging: 7}));")
+            .example("let t = table_from(#{y: [40.0, 140.0, 460.0, 560.0], v: [10.1, 11.8, 11.7, 10.0]}).units(#{y: \"mm\", v: \"m/s\"});\nprint(section_mean(t[\"y\"], t[\"v\"], round_section(600.mm), #{averaging: 7}));")
             .source("ISO 3966:2008 §9–10 (velocity-area integration)"),
         |y: Col, v: Col, c: Conduit, o: Map| -> Res<Q> {
             check_keys(&o, &["averaging", "line"], "section_mean")?;

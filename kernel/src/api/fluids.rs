@@ -21,14 +21,14 @@ pub struct State {
 pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Fluid>("Fluid").register_type_with_name::<State>("FluidState");
     r.group("Fluids");
-    constructors(r);
+    constructors(r, prefs);
     gas_constructors(r);
     fluid_members(r, prefs);
     state_members(r, prefs);
 }
 
 /// Water and humid air.
-fn constructors(r: &mut Registrar<'_>) {
+fn constructors(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "water",
         &Doc::new("water() -> Fluid", "Liquid water: density by IAPWS-IF97 region 1, viscosity by IAPWS 2008.")
@@ -47,12 +47,27 @@ fn constructors(r: &mut Registrar<'_>) {
         |rh: Dynamic| -> Res<Fluid> { Ok(Fluid::HumidAir(lib(HumidAir::relative(fraction(&rh, "relative humidity")?))?)) },
     );
     r.func(
-        "humid_air_dew_point",
-        &Doc::new("humid_air_dew_point(dew_point) -> Fluid", "Moist air by CIPM-2007 from its dew-point temperature.")
-            .param("dew_point", "absolute temperature, e.g. 9.degC")
-            .example("print(humid_air_dew_point(9.degC).density(101.kPa, 20.degC));")
-            .source("CIPM-2007: Picard et al., Metrologia 45 (2008) 149–155"),
+        "humid_air_from_dew_point",
+        &Doc::new(
+            "humid_air_from_dew_point(dew_point) -> Fluid",
+            "Moist air by CIPM-2007 from its dew-point temperature.",
+        )
+        .param("dew_point", "absolute temperature, e.g. 9.degC")
+        .example("print(humid_air_from_dew_point(9.degC).density(101.kPa, 20.degC));")
+        .source("CIPM-2007: Picard et al., Metrologia 45 (2008) 149–155"),
         |td: Dynamic| -> Res<Fluid> { Ok(Fluid::HumidAir(lib(HumidAir::dew_point(temperature(&td, "dew point")?))?)) },
+    );
+    let pd = prefs.clone();
+    r.func(
+        "humid_air_dew_point",
+        &Doc::new("humid_air_dew_point(dew_point) -> Fluid", "Deprecated spelling of humid_air_from_dew_point (it returns the air, not a dew point); works for this release, with a warning.")
+            .param("dew_point", "absolute temperature, e.g. 9.degC")
+            .example("print(humid_air_from_dew_point(9.degC).density(101.kPa, 20.degC));")
+            .source("CIPM-2007: Picard et al., Metrologia 45 (2008) 149–155"),
+        move |td: Dynamic| -> Res<Fluid> {
+            super::warn_once(&pd, "humid_air_dew_point is deprecated and will be removed in the next release; write humid_air_from_dew_point");
+            Ok(Fluid::HumidAir(lib(HumidAir::dew_point(temperature(&td, "dew point")?))?))
+        },
     );
     r.func(
         "humid_air_density",

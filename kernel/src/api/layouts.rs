@@ -24,7 +24,7 @@ fn layouts(r: &mut Registrar<'_>) {
     r.func(
         "traverse_layout",
         &Doc::new("traverse_layout(conduit, options) -> Layout", "Traverse point positions and insertion depths. Round conduits: rule (\"equal-area\", \"log-linear\", \"log-chebyshev\"), points (per diameter, even), diameters (1–8), port_length. Rectangular: rule (\"equal-area\" or \"log-chebyshev\"), columns and rows (or total for the US EPA matrix), port_length.")
-            .example("let l = traverse_layout(round_duct(600.mm), #{rule: \"log-linear\", points: 10, diameters: 2, port_length: 80.mm});\nprint(l.field_sheet());")
+            .example("let l = traverse_layout(round_section(600.mm), #{rule: \"log-linear\", points: 10, diameters: 2, port_length: 80.mm});\nprint(l.field_sheet());")
             .source("ISO 3966:2008 §9 (log-linear, log-Chebyshev); US EPA Method 1 (equal-area, wall distances)"),
         |c: Conduit, o: Map| -> Res<TraverseLayout> {
             check_keys(&o, &["rule", "points", "diameters", "columns", "rows", "total", "port_length"], "traverse_layout")?;
@@ -59,7 +59,7 @@ fn layouts(r: &mut Registrar<'_>) {
         "Layout",
         "field_sheet",
         &Doc::new("layout.field_sheet() -> string", "The field sheet: one line per point with its label, wall distance and insertion depth (port length added).")
-            .example("print(traverse_layout(round_duct(1.2.m), #{points: 8}).field_sheet());")
+            .example("print(traverse_layout(round_section(1.2.m), #{points: 8}).field_sheet());")
             .source("US EPA Method 1 Table 1-1 / ISO 3966 §9 positions"),
         |l: &mut TraverseLayout| l.field_table(),
     );
@@ -67,7 +67,7 @@ fn layouts(r: &mut Registrar<'_>) {
         "Layout",
         "warnings",
         &Doc::new("layout.warnings -> array", "Remarks (points moved away from the wall, ...).")
-            .example("print(traverse_layout(round_duct(250.mm), #{points: 12}).warnings);")
+            .example("print(traverse_layout(round_section(250.mm), #{points: 12}).warnings);")
             .source("US EPA Method 1 §11.3"),
         |l: &mut TraverseLayout| warnings_of(&l.warnings),
     );
@@ -75,14 +75,14 @@ fn layouts(r: &mut Registrar<'_>) {
         "Layout",
         "count",
         &Doc::new("layout.count -> integer", "Number of points.")
-            .example("print(traverse_layout(round_duct(1.m), #{points: 8, diameters: 2}).count);")
+            .example("print(traverse_layout(round_section(1.m), #{points: 8, diameters: 2}).count);")
             .source("common practice, no source"),
         |l: &mut TraverseLayout| l.points.len() as i64,
     );
     r.func(
         "epa_min_points",
         &Doc::new("epa_min_points(conduit, straight_upstream_D, straight_downstream_D) -> integer", "Minimum number of traverse points by US EPA Method 1 §11.2 for a site with the given straight lengths, in diameters: before the ports (from the nearest disturbance upstream, what the method calls the distance downstream of a disturbance) and after them (to the nearest disturbance downstream).")
-            .example("print(epa_min_points(round_duct(1.5.m), 6.0, 1.5));")
+            .example("print(epa_min_points(round_section(1.5.m), 6.0, 1.5));")
             .source("US EPA Method 1 (40 CFR 60 App. A-1) §11.2, Figure 1-1 (breakpoints from memory)"),
         |c: Conduit, down: Dynamic, up: Dynamic| -> Res<i64> {
             let m = lib(stagna::section::layout::epa_method1_points(
@@ -106,7 +106,7 @@ fn points_table(r: &mut Registrar<'_>) {
             "The layout as a table: line, point, wall distance and insertion depth (mm), normalised position.",
         )
         .example(
-            "print(traverse_layout(round_duct(800.mm), #{points: 6, diameters: 2, port_length: 100.mm}).points());",
+            "print(traverse_layout(round_section(800.mm), #{points: 6, diameters: 2, port_length: 100.mm}).points());",
         )
         .source("US EPA Method 1 Table 1-1 / ISO 3966 §9 positions"),
         |l: &mut TraverseLayout| -> Res<Tbl> { layout_table(l) },

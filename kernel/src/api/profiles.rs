@@ -94,7 +94,7 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "single_point",
         &Doc::new("single_point(centreline_velocity, state, conduit, options) -> SinglePoint", "Mean velocity and flow from one centreline velocity, iterating the Reynolds number with the profile model. Assumes fully developed, swirl-free flow in a straight round pipe; options: family (\"power-law\" default or \"log-law\"), straight_upstream_D and straight_downstream_D (the straight lengths before and after the measuring section in the flow direction, in diameters, for warnings; the earlier upstream_D and downstream_D still work, with a deprecation warning).")
-            .example("let w = water().state(350.kPa, 11.degC);\nlet sp = single_point(1.62.m_s, w, round_duct(400.mm).roughness(0.05.mm), #{straight_upstream_D: 30, straight_downstream_D: 8});\nprint(sp);")
+            .example("let w = water().state(350.kPa, 11.degC);\nlet sp = single_point(1.62.m_s, w, round_section(400.mm).roughness(0.05.mm), #{straight_upstream_D: 30, straight_downstream_D: 8});\nprint(sp);")
             .source("ISO 3966:2008 / ISO 7145:1982 (single point at the centre); profile models as in profile_for"),
         move |v: Dynamic, s: State, c: Conduit, o: Map| -> Res<SinglePointResult> {
             check_keys_or_old(&o, &["family", "straight_upstream_D", "straight_downstream_D"], &["upstream_D", "downstream_D"], "single_point")?;
@@ -134,25 +134,25 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.property(
         "SinglePoint",
         "mean_velocity",
-        &Doc::new("result.mean_velocity -> Quantity", "Mean velocity.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{}).mean_velocity);").source("single-point method"),
+        &Doc::new("result.mean_velocity -> Quantity", "Mean velocity.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_section(400.mm), #{}).mean_velocity);").source("single-point method"),
         |s: &mut SinglePointResult| Q::si(s.mean_velocity.si(), D::VELOCITY),
     );
     r.property(
         "SinglePoint",
         "volume_flow",
-        &Doc::new("result.volume_flow -> Quantity", "Volume flow at the measuring conditions.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{}).volume_flow.to(\"L/s\"));").source("Q = U A"),
+        &Doc::new("result.volume_flow -> Quantity", "Volume flow at the measuring conditions.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_section(400.mm), #{}).volume_flow.to(\"L/s\"));").source("Q = U A"),
         |s: &mut SinglePointResult| Q::si(s.volume_flow.si(), D::VOLUME_FLOW),
     );
     r.property(
         "SinglePoint",
         "ratio",
-        &Doc::new("result.ratio -> number", "U/U_c used.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{}).ratio);").source("profile model"),
+        &Doc::new("result.ratio -> number", "U/U_c used.").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_section(400.mm), #{}).ratio);").source("profile model"),
         |s: &mut SinglePointResult| s.ratio,
     );
     r.property(
         "SinglePoint",
         "warnings",
-        &Doc::new("result.warnings -> array", "Remarks (straight lengths, regime).").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_duct(400.mm), #{straight_upstream_D: 10, straight_downstream_D: 3}).warnings);").source("common practice, no source (25 D / 5 D)"),
+        &Doc::new("result.warnings -> array", "Remarks (straight lengths, regime).").example("let w = water().state(350.kPa, 11.degC);\nprint(single_point(1.6.m_s, w, round_section(400.mm), #{straight_upstream_D: 10, straight_downstream_D: 3}).warnings);").source("common practice, no source (25 D / 5 D)"),
         |s: &mut SinglePointResult| warnings_of(&s.warnings),
     );
 }

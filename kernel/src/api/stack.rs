@@ -435,9 +435,9 @@ fn checks(r: &mut Registrar<'_>) {
     r.func(
         "method1a_site",
         &Doc::new("method1a_site(conduit, options) -> Array", "US EPA Method 1A checks of a small stack or duct (0.10 m to under 0.30 m across, or 0.0081 m² to under 0.071 m²): the size range, the straight lengths before and after the particulate site (preferred: 8 D before and 10 D after; alternative: 2 D and 2.5 D) and where the standard pitot's velocity site stands (8 D, or 2 D at the alternative location, after the particulate site). Distances in equivalent diameters along the flow.")
-            .param("conduit", "the stack or duct (round_duct or rect_duct)")
+            .param("conduit", "the stack or duct (round_section or rect_section)")
             .param("options", "map: straight_upstream_D (straight length from the nearest disturbance before the site to the site), straight_downstream_D (from the site to the nearest disturbance after it), velocity_site_D (optional: velocity site after the particulate site)")
-            .example("for c in method1a_site(round_duct(200.mm), #{straight_upstream_D: 9, straight_downstream_D: 11, velocity_site_D: 8}) { print(c); }")
+            .example("for c in method1a_site(round_section(200.mm), #{straight_upstream_D: 9, straight_downstream_D: 11, velocity_site_D: 8}) { print(c); }")
             .source("US EPA Method 1A §1.2 (size range, read in the published text); §11.1.1 site distances from memory, unverified"),
         |c: stagna::Conduit, o: Map| -> Res<Array> {
             check_keys(&o, &["straight_upstream_D", "straight_downstream_D", "velocity_site_D"], "method1a_site")?;

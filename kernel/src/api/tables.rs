@@ -22,6 +22,16 @@ pub struct Tbl {
     pub units: BTreeMap<String, String>,
 }
 
+/// Result columns renamed in this release (old → new), named in the error when an old
+/// name is asked for.
+const RENAMED_COLUMNS: &[(&str, &str)] = &[
+    ("relative_u_pct", "u_rel_flow_pct"),
+    ("coverage_factor", "k"),
+    ("expanded_flow_m3_s", "U_flow_m3_s"),
+    ("reference_flow_m3_s", "flow_<condition>_m3_s, e.g. flow_0C_101.325kPa_m3_s"),
+    ("dry_reference_flow_m3_s", "dry_flow_<condition>_m3_s, e.g. dry_flow_20C_760mmHg_m3_s"),
+];
+
 /// A group-by in progress.
 #[derive(Debug, Clone)]
 pub struct Grouped {
@@ -91,6 +101,14 @@ impl Tbl {
 
     /// A numeric column as a `Col` in SI.
     pub fn column(&self, name: &str) -> Res<Col> {
+        if !self.df.get_column_names().iter().any(|c| c.as_str() == name)
+            && let Some((_, new)) = RENAMED_COLUMNS.iter().find(|(old, _)| *old == name)
+        {
+            return Err(rt(format!(
+                "column '{name}' was renamed '{new}' (u_ is a standard uncertainty, U_ an expanded one with its k; \
+                 reference flows name their condition)"
+            )));
+        }
         let raw = lib(stagna::io::table::float_column(&self.df, name))?;
         match self.units.get(name) {
             Some(u) => {
@@ -271,10 +289,18 @@ pub(super) fn numeric_column(df: &DataFrame, name: &str) -> Res<()> {
 }
 
 fn unit_for_result_column(name: &str) -> Option<&'static str> {
-    [("_m3_s", "m^3/s"), ("_m_s", "m/s"), ("_kg_s", "kg/s"), ("_kg_m3", "kg/m^3"), ("_pa", "Pa"), ("_pct", "%")]
-        .iter()
-        .find(|(suffix, _)| name.ends_with(suffix))
-        .map(|(_, u)| *u)
+    [
+        ("_m3_s", "m^3/s"),
+        ("_m3_h", "m^3/h"),
+        ("_m_s", "m/s"),
+        ("_kg_s", "kg/s"),
+        ("_kg_m3", "kg/m^3"),
+        ("_pa", "Pa"),
+        ("_pct", "%"),
+    ]
+    .iter()
+    .find(|(suffix, _)| name.ends_with(suffix))
+    .map(|(_, u)| *u)
 }
 
 /// A result table with the units its column-name suffixes declare (`_m_s`, `_m3_s`, ...).

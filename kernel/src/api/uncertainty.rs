@@ -41,20 +41,23 @@ fn dps_of(d: &Dynamic) -> Res<Vec<f64>> {
 pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Budget>("Budget");
     r.group("Uncertainty");
-    budgets(r);
+    budgets(r, prefs);
     budget_members(r, prefs);
 }
 
 /// Budgets of point velocities and traverses.
-fn budgets(r: &mut Registrar<'_>) {
+fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    let tb_prefs = prefs.clone();
     r.func(
         "traverse_budget",
-        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); dp_rel (relative u of each Δp, default 0.005), dp_abs (absolute u of each Δp, default 0.5 Pa); transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and dp_rel and dp_abs count only when given); sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
+        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); u_rel_dp (relative standard uncertainty of each Δp, a fraction, default 0.005) and u_dp (absolute standard uncertainty of each Δp, default 0.5 Pa), combined in quadrature; transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and u_rel_dp and u_dp count only when given). The earlier dp_rel and dp_abs still work, with a deprecation warning; sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
             .param("dp", "pressure column or array of pressures, one per point (all > 0)")
-            .example("let dps = [98.Pa, 112.Pa, 118.Pa, 115.Pa, 101.Pa, 95.Pa];\nlet b = traverse_budget(dps, #{coefficient: 0.998, u_coefficient: 0.0025, density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, dp_rel: 0.005, dp_abs: 0.4.Pa});\nprint(b);")
+            .example("let dps = [98.Pa, 112.Pa, 118.Pa, 115.Pa, 101.Pa, 95.Pa];\nlet b = traverse_budget(dps, #{coefficient: 0.998, u_coefficient: 0.0025, density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, u_rel_dp: 0.005, u_dp: 0.4.Pa});\nprint(b);")
             .source("JCGM 100:2008 (GUM) §5, §G; method terms as documented in the library (ISO 3966 §10 and common practice)"),
-        |d: Dynamic, o: Map| -> Res<Budget> {
-            check_keys(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "dp_rel", "dp_abs", "transducer", "sources", "rule", "coverage", "output"], "traverse_budget")?;
+        move |d: Dynamic, o: Map| -> Res<Budget> {
+            check_keys_or_old(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "u_rel_dp", "u_dp", "transducer", "sources", "rule", "coverage", "output"], &["dp_rel", "dp_abs"], "traverse_budget")?;
+            let rel_dp = renamed_option(&o, "u_rel_dp", "dp_rel", &tb_prefs, "traverse_budget");
+            let abs_dp = renamed_option(&o, "u_dp", "dp_abs", &tb_prefs, "traverse_budget");
             let sources: Map = match field(&o, "sources") {
                 None => Map::new(),
                 Some(m) => m.clone().try_cast().ok_or_else(|| rt("traverse_budget: 'sources' must be a map, e.g. #{coefficient: \"calibration certificate 2291\"}"))?,
@@ -79,15 +82,15 @@ fn budgets(r: &mut Registrar<'_>) {
             // With a calibrated transducer its calibration is the measured Δp term; the
             // other terms count only when given.
             let (rel_default, abs_default) = if transducer.is_some() { (0.0, 0.0) } else { (0.005, 0.5) };
-            let defaulted = transducer.is_none() && (field(&o, "dp_rel").is_none() || field(&o, "dp_abs").is_none());
-            let dp_rel = field(&o, "dp_rel").map(|x| number(x, "dp_rel")).transpose()?.unwrap_or(rel_default);
-            let dp_abs = field(&o, "dp_abs").map(|x| si_of(x, D::PRESSURE, "dp_abs")).transpose()?.unwrap_or(abs_default);
+            let defaulted = transducer.is_none() && (rel_dp.is_none() || abs_dp.is_none());
+            let dp_rel = rel_dp.map(|x| number(x, "u_rel_dp")).transpose()?.unwrap_or(rel_default);
+            let dp_abs = abs_dp.map(|x| si_of(x, D::PRESSURE, "u_dp")).transpose()?.unwrap_or(abs_default);
             let dp_source = source_of(
                 "dp",
                 if defaulted {
-                    "default u(Δp) = 0.5 % of Δp with 0.5 Pa (common practice, no source): give dp_rel and dp_abs"
+                    "default u(Δp) = 0.5 % of Δp with 0.5 Pa (common practice, no source): give u_rel_dp and u_dp"
                 } else {
-                    "dp_rel and dp_abs as given in the script (no source stated)"
+                    "u_rel_dp and u_dp as given in the script (no source stated)"
                 },
             )?;
             let coverage = field(&o, "coverage").map(|x| number(x, "coverage")).transpose()?.unwrap_or(0.95);
@@ -126,11 +129,18 @@ fn budgets(r: &mut Registrar<'_>) {
     r.engine.register_fn("to_string", |b: &mut Budget| format!("Budget (output in {}):\n{}", b.unit, b.g));
     for (name, summary) in [
         ("value", "The output estimate y (SI: m³/s or m/s)."),
-        ("u", "Combined standard uncertainty u_c(y)."),
-        ("expanded", "Expanded uncertainty U = k u_c."),
-        ("k", "Coverage factor (Student t at the effective degrees of freedom)."),
-        ("relative", "Relative expanded uncertainty U/y, %."),
+        ("u", "Combined standard uncertainty u_c(y) (k = 1), absolute, SI."),
+        ("u_rel_pct", "Relative combined standard uncertainty u_c/y, %."),
+        ("U", "Expanded uncertainty U = k u_c, absolute, SI (its coverage factor in .k)."),
+        ("U_rel_pct", "Relative expanded uncertainty U/y, %."),
+        ("k", "Coverage factor of U (Student t at the effective degrees of freedom)."),
+        ("expanded", "Deprecated: write .U (expanded uncertainty); works for this release, with a warning."),
+        (
+            "relative",
+            "Deprecated: write .U_rel_pct (relative expanded uncertainty, %); works for this release, with a warning.",
+        ),
     ] {
+        let p = prefs.clone();
         r.property(
             "Budget",
             name,
@@ -140,8 +150,17 @@ fn budgets(r: &mut Registrar<'_>) {
             move |b: &mut Budget| match name {
                 "value" => b.g.value,
                 "u" => b.g.u,
-                "expanded" => b.g.expanded,
+                "u_rel_pct" => 100.0 * b.g.u / b.g.value,
+                "U" => b.g.expanded,
                 "k" => b.g.k,
+                "expanded" => {
+                    super::warn_once(&p, "budget.expanded is deprecated and will be removed in the next release; write budget.U");
+                    b.g.expanded
+                }
+                "relative" => {
+                    super::warn_once(&p, "budget.relative is deprecated and will be removed in the next release; write budget.U_rel_pct");
+                    100.0 * b.g.expanded / b.g.value
+                }
                 _ => 100.0 * b.g.expanded / b.g.value,
             },
         );

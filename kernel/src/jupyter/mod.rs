@@ -695,7 +695,7 @@ mod tests {
 
     #[test]
     fn globs_and_offsets() {
-        assert!(glob("*duct*", "let d = round_duct(600.mm)"));
+        assert!(glob("*section*", "let d = round_section(600.mm)"));
         assert!(glob("le?", "let"));
         assert!(!glob("x*", "let"));
         // Regression (issue 15): a `*` in the pattern beside a `*` in the input.

@@ -237,10 +237,12 @@ pub struct CampaignResult {
     /// One row per reduced traverse: the key column, `points`,
     /// `mean_velocity_m_s`, `volume_flow_m3_s`, `mass_flow_kg_s`,
     /// `mean_density_kg_m3`, `max_velocity_m_s`, `flatness`, `reversed_points`, and
-    /// with a reference condition `reference_flow_m3_s` (and `dry_reference_flow_m3_s`
-    /// with a moisture fraction). A wall factor scales the mean velocity and the flows.
-    /// With an uncertainty spec: `u_flow_m3_s`, `relative_u_pct`, `coverage_factor`,
-    /// `expanded_flow_m3_s`, `effective_dof` (NaN where a point has Δp ≤ 0, which the
+    /// with a reference condition `flow_{tag}_m3_s` (and `dry_flow_{tag}_m3_s` with a
+    /// moisture fraction), the condition written in the name by
+    /// [`crate::ReferenceCondition::tag`], e.g. `flow_0C_101.325kPa_m3_s`. A wall factor scales the mean velocity and the flows.
+    /// With an uncertainty spec (names: `u_` a standard uncertainty, k = 1; `U_` an
+    /// expanded one with its coverage factor in `k`; `_rel_..._pct` relative, in %):
+    /// `u_flow_m3_s`, `u_rel_flow_pct`, `k`, `U_flow_m3_s`, `effective_dof` (NaN where a point has Δp ≤ 0, which the
     /// velocity-area model cannot take).
     pub traverses: DataFrame,
     /// Traverses that failed, with the reason.
@@ -895,20 +897,18 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
     .map_err(table_err)?;
     if spec.uncertainty.is_some() {
         let col = |k: usize| outs.iter().map(|o| o.unc.map_or(f64::NAN, |u| u[k])).collect::<Vec<f64>>();
-        for (k, name) in ["u_flow_m3_s", "relative_u_pct", "coverage_factor", "expanded_flow_m3_s", "effective_dof"]
-            .iter()
-            .enumerate()
-        {
+        for (k, name) in ["u_flow_m3_s", "u_rel_flow_pct", "k", "U_flow_m3_s", "effective_dof"].iter().enumerate() {
             traverses.with_column(f(name, col(k))).map_err(table_err)?;
         }
     }
-    if let Some((t_ref, p_ref)) = reference {
+    if let (Some((t_ref, p_ref)), Some(cond)) = (reference, spec.flow.reference) {
+        let tag = cond.tag();
         let q_ref: Vec<f64> = outs.iter().map(|o| o.q * (o.p / p_ref.si()) * (t_ref.k() / o.t_mean)).collect();
         if outs.iter().any(|o| o.dry.is_some()) {
             let dry_q = q_ref.iter().zip(&outs).map(|(q, o)| o.dry.map_or(f64::NAN, |k| q * k)).collect();
-            traverses.with_column(f("dry_reference_flow_m3_s", dry_q)).map_err(table_err)?;
+            traverses.with_column(f(&format!("dry_flow_{tag}_m3_s"), dry_q)).map_err(table_err)?;
         }
-        traverses.with_column(f("reference_flow_m3_s", q_ref)).map_err(table_err)?;
+        traverses.with_column(f(&format!("flow_{tag}_m3_s"), q_ref)).map_err(table_err)?;
     }
     if let Some(route) = &spec.method2 {
         if gamma.is_none() {
@@ -1282,7 +1282,9 @@ mod tests {
             [(0..4, 99_000.0, gas(10.0, 0.10), 0.10), (4..8, 97_500.0, gas(12.0, 0.14), 0.14)].into_iter().enumerate()
         {
             let alone = one(rows, p, f, b);
-            for c in ["mean_velocity_m_s", "mean_density_kg_m3", "reference_flow_m3_s", "dry_reference_flow_m3_s"] {
+            for c in
+                ["mean_velocity_m_s", "mean_density_kg_m3", "flow_0C_101.325kPa_m3_s", "dry_flow_0C_101.325kPa_m3_s"]
+            {
                 let a = r.traverses.column(c).unwrap().f64().unwrap().get(k).unwrap();
                 let b = alone.column(c).unwrap().f64().unwrap().get(0).unwrap();
                 assert!((a - b).abs() <= 1e-12 * b.abs(), "traverse {}: {c} {a} vs {b}", k + 1);
@@ -1356,8 +1358,8 @@ mod tests {
         let unscaled = col("mean_velocity_m_s") / 0.995;
         let s = crate::section::flow::flow(crate::Velocity::m_s(unscaled), &conduit, &state, &spec.flow).unwrap();
         assert!((col("mean_velocity_m_s") - s.mean_velocity.si()).abs() < 1e-12);
-        assert!((col("reference_flow_m3_s") - s.reference_flow.unwrap().si()).abs() < 1e-12);
-        assert!((col("dry_reference_flow_m3_s") - s.dry_reference_flow.unwrap().si()).abs() < 1e-12);
+        assert!((col("flow_0C_101.325kPa_m3_s") - s.reference_flow.unwrap().si()).abs() < 1e-12);
+        assert!((col("dry_flow_0C_101.325kPa_m3_s") - s.dry_reference_flow.unwrap().si()).abs() < 1e-12);
     }
 
     // The per-traverse columns equal a direct GUM budget of the same traverse
@@ -1400,9 +1402,9 @@ mod tests {
         )
         .unwrap();
         let g = t.gum(0.95).unwrap();
-        assert!((col("u_flow_m3_s") - g.u).abs() < 1e-15 && (col("expanded_flow_m3_s") - g.expanded).abs() < 1e-15);
-        assert!((col("relative_u_pct") - g.u / g.value * 100.0).abs() < 1e-12);
-        assert!(col("relative_u_pct") > 0.8 && col("relative_u_pct") < 2.0, "{}", col("relative_u_pct"));
+        assert!((col("u_flow_m3_s") - g.u).abs() < 1e-15 && (col("U_flow_m3_s") - g.expanded).abs() < 1e-15);
+        assert!((col("u_rel_flow_pct") - g.u / g.value * 100.0).abs() < 1e-12);
+        assert!(col("u_rel_flow_pct") > 0.8 && col("u_rel_flow_pct") < 2.0, "{}", col("u_rel_flow_pct"));
     }
 
     // A 1000 × 500 mm duct on the US EPA Method 1 Table 1-2 12-point grid (4 lines × 3 points,

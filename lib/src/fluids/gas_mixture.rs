@@ -132,6 +132,22 @@ impl ReferenceCondition {
         }
     }
 
+    /// The condition as a column-name tag: `0C_101.325kPa`, `15C_101.325kPa`,
+    /// `20C_760mmHg`, `60F_14.696psia`, or `{t}C_{p}kPa` for another pair.
+    pub fn tag(self) -> String {
+        match self {
+            Self::Normal0C => "0C_101.325kPa".into(),
+            Self::Iso15C => "15C_101.325kPa".into(),
+            Self::Epa20C => "20C_760mmHg".into(),
+            Self::Us60F => "60F_14.696psia".into(),
+            Self::Custom { temperature, pressure } => format!(
+                "{}C_{}kPa",
+                crate::units::quantity::format_number(temperature.c()),
+                crate::units::quantity::format_number(pressure.si() / 1000.0)
+            ),
+        }
+    }
+
     /// Parses a name: `normal_0C`, `iso_15C`, `epa_20C`, `us_60F`.
     pub fn parse(s: &str) -> Result<Self> {
         match s.trim().to_ascii_lowercase().as_str() {
