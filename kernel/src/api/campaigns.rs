@@ -19,6 +19,8 @@ use stagna::uncertainty::flow_models::MethodTerm;
 pub struct Campaign {
     /// The library result.
     pub res: CampaignResult,
+    /// Coverage probability of the expanded uncertainties, when asked for.
+    pub coverage: Option<f64>,
 }
 
 /// Builds a campaign spec from a script map and the table's declared units.
@@ -353,7 +355,8 @@ fn reductions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         move |t: Tbl, o: Map| -> Res<Campaign> {
             let mut spec = campaign_spec(&t, &o, &pp)?;
             spec.progress = super::progress_for(&pp, "reduce_campaign: traverses");
-            Ok(Campaign { res: lib(stagna::campaign::reduce_campaign(&t.df, &spec))? })
+            let coverage = spec.uncertainty.as_ref().map(|u| u.coverage);
+            Ok(Campaign { res: lib(stagna::campaign::reduce_campaign(&t.df, &spec))?, coverage })
         },
     );
     let pv = prefs.clone();

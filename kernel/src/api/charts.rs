@@ -59,10 +59,15 @@ fn column_values(t: &Tbl, name: &str, display: &DisplayUnits) -> Res<(Vec<f64>, 
     }
 }
 
+/// An axis title from a column: the quantity in words (the column name without its
+/// unit suffix, underscores as spaces) and the unit it is drawn in.
 fn axis_label(name: &str, unit: &Option<String>) -> String {
+    const SUFFIXES: [&str; 10] = ["_m3_s", "_m3_h", "_m_s", "_kg_s", "_kg_m3", "_pa", "_pct", "_mm", "_m", "_c"];
+    let words = SUFFIXES.iter().find_map(|s| name.strip_suffix(s)).unwrap_or(name).replace('_', " ");
+    let words = words.replace(" 20C 760mmHg", " at 20 °C, 760 mmHg").replace(" 0C 101.325kPa", " at 0 °C, 101.325 kPa");
     match unit {
-        Some(u) => format!("{name} ({})", pretty_unit(u)),
-        None => name.to_string(),
+        Some(u) => format!("{words} ({})", pretty_unit(u)),
+        None => words,
     }
 }
 
@@ -141,11 +146,15 @@ fn trend_charts_and_output(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let p = prefs.clone();
     r.func(
         "trend_chart",
-        &Doc::new("trend_chart(campaign, options) -> Plot", "A campaign's flow (or another column of its traverses table) per traverse, with ± expanded-uncertainty bars when the reduction had an uncertainty spec. Options: y (column, default volume_flow_m3_s), title.")
+        &Doc::new("trend_chart(campaign, options) -> Plot", "A campaign's flow (or another column of its traverses table) per traverse, with ±U bars (expanded uncertainty, labelled with its coverage factor and probability under the chart) when the reduction had an uncertainty spec. Options: y (column, default volume_flow_m3_s), title, from_zero (start the value axis at zero; default false).")
             .example("// after let c = reduce_campaign(t, spec):\n// trend_chart(c, #{title: \"AHU-2 supply\"}).save(\"trend.svg\");\nprint(\"see reduce_campaign\");")
             .source("common practice, no source"),
         move |c: Campaign, o: Map| -> Res<Plot> {
-            check_keys(&o, &["y", "title"], "trend_chart")?;
+            check_keys(&o, &["y", "title", "from_zero"], "trend_chart")?;
+            let from_zero = match field(&o, "from_zero") {
+                None => false,
+                Some(d) => d.as_bool().map_err(|_| rt("trend_chart: from_zero must be true or false"))?,
+            };
             let display = super::display_of(&p);
             let df = &c.res.traverses;
             let y = field(&o, "y").map(|d| text(d, "y")).transpose()?.unwrap_or_else(|| "volume_flow_m3_s".into());
@@ -167,7 +176,24 @@ fn trend_charts_and_output(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                 .map(|s| s.unwrap_or("").to_string())
                 .collect();
             let title = field(&o, "title").map(|d| text(d, "title")).transpose()?.unwrap_or_else(|| "flow per traverse".into());
-            Ok(Plot::Chart(Chart::Trend { title, y_label: axis_label(&y, &yu), labels, values, errors }))
+            // What the bars are: ±U with the coverage factor(s) of the traverses.
+            let error_label = match (&errors, df.column("k")) {
+                (Some(_), Ok(k)) => {
+                    let ks: Vec<f64> = k.f64().map_err(|e| rt(e.to_string()))?.into_no_null_iter().filter(|v| v.is_finite()).collect();
+                    let (lo, hi) = ks.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+                    let k = if ks.is_empty() {
+                        "k as reduced".to_string()
+                    } else if hi - lo < 0.005 {
+                        format!("k = {lo:.2}")
+                    } else {
+                        format!("k = {lo:.2} to {hi:.2}")
+                    };
+                    let coverage = c.coverage.map(|p| format!(", {} % coverage", stagna::units::quantity::format_number(p * 100.0))).unwrap_or_default();
+                    Some(format!("±U, expanded uncertainty of each traverse's flow ({k}{coverage}, GUM)"))
+                }
+                _ => None,
+            };
+            Ok(Plot::Chart(Chart::Trend { title, y_label: axis_label(&y, &yu), labels, values, errors, error_label, from_zero }))
         },
     );
     r.method(

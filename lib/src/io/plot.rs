@@ -97,6 +97,11 @@ pub enum Chart {
         values: Vec<f64>,
         /// Half-widths of the error bars, if any.
         errors: Option<Vec<f64>>,
+        /// What the error bars are (e.g. "±U, expanded, k = 2, 95 % coverage"), printed
+        /// under the chart; required wherever bars are drawn.
+        error_label: Option<String>,
+        /// Start the value axis at zero (so small changes are not exaggerated).
+        from_zero: bool,
     },
     /// An uncertainty budget: each input's share of the variance, as horizontal bars.
     Budget {
@@ -129,10 +134,42 @@ fn span(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
     Some((lo - pad, hi + pad))
 }
 
+/// A tick label: at most 4 significant figures, trailing zeros dropped, and never "-0".
+fn tick(v: &f64) -> String {
+    // Axis steps computed in floating point land a hair off zero (−1e−17): that is zero.
+    if v.abs() < 1e-12 {
+        return "0".into();
+    }
+    let s = crate::units::quantity::format_sig(*v, 4);
+    let s = if s.contains('.') { s.trim_end_matches('0').trim_end_matches('.').to_string() } else { s };
+    if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') { s[1..].to_string() } else { s }
+}
+
+/// Shares below this fraction of the combined variance are drawn as one bar.
+const NEGLIGIBLE_SHARE: f64 = 0.01;
+
 impl Chart {
-    /// A budget chart from a GUM result.
+    /// A budget chart from a GUM result: inputs below 1 % of the variance are grouped in
+    /// one bar named with their count.
     pub fn budget(title: &str, g: &GumResult) -> Self {
-        Chart::Budget { title: title.to_string(), shares: g.budget.iter().map(|b| (b.name.clone(), b.share)).collect() }
+        let mut shares: Vec<(String, f64)> = Vec::new();
+        let (mut rest, mut n_rest) = (0.0, 0);
+        for b in &g.budget {
+            if b.share < NEGLIGIBLE_SHARE {
+                rest += b.share;
+                n_rest += 1;
+            } else {
+                shares.push((b.name.clone(), b.share));
+            }
+        }
+        match n_rest {
+            0 => {}
+            1 => {
+                shares.extend(g.budget.iter().filter(|b| b.share < NEGLIGIBLE_SHARE).map(|b| (b.name.clone(), b.share)))
+            }
+            _ => shares.push((format!("{n_rest} other inputs, each < 1 %"), rest)),
+        }
+        Chart::Budget { title: title.to_string(), shares }
     }
 
     /// Pixel size used for this chart.
@@ -172,6 +209,8 @@ impl Chart {
                     .configure_mesh()
                     .x_desc(x_label.as_str())
                     .y_desc(y_label.as_str())
+                    .x_label_formatter(&tick)
+                    .y_label_formatter(&tick)
                     .light_line_style(RGBColor(235, 235, 235))
                     .draw()
                     .map_err(draw_err)?;
@@ -207,15 +246,37 @@ impl Chart {
                     .draw()
                     .map_err(draw_err)?;
             }
-            Chart::Trend { title, y_label, labels, values, errors } => {
+            Chart::Trend { title, y_label, labels, values, errors, error_label, from_zero } => {
                 let n = values.len();
                 if n == 0 {
                     return Err(draw_err("no values to plot"));
                 }
+                if errors.is_some() && error_label.is_none() {
+                    return Err(draw_err("error bars need a label saying what they are (±U, k, coverage)"));
+                }
                 let err_at = |i: usize| errors.as_ref().and_then(|e| e.get(i).copied()).unwrap_or(0.0);
-                let (y0, y1) = span((0..n).flat_map(|i| [values[i] - err_at(i), values[i] + err_at(i)]))
+                let extra = if *from_zero { Some(0.0) } else { None };
+                let (y0, y1) = span((0..n).flat_map(|i| [values[i] - err_at(i), values[i] + err_at(i)]).chain(extra))
                     .ok_or_else(|| draw_err("no finite values to plot"))?;
-                let mut chart = ChartBuilder::on(root)
+                let y0 = if *from_zero && y0 < 0.0 && values.iter().all(|v| *v >= 0.0) { 0.0 } else { y0 };
+                let (root, note) = match error_label {
+                    Some(_) => {
+                        let (w, h) = root.dim_in_pixel();
+                        let (top, bottom) = root.split_vertically(h.saturating_sub(24));
+                        let _ = w;
+                        (top, Some(bottom))
+                    }
+                    None => (root.clone(), None),
+                };
+                if let (Some(area), Some(label)) = (&note, error_label) {
+                    area.draw(&Text::new(
+                        format!("error bars: {label}"),
+                        (12, 4),
+                        ("sans-serif", 13).into_font().color(&RGBColor(60, 60, 60)),
+                    ))
+                    .map_err(draw_err)?;
+                }
+                let mut chart = ChartBuilder::on(&root)
                     .caption(title, ("sans-serif", 18))
                     .margin(12)
                     .x_label_area_size(40)
@@ -235,6 +296,7 @@ impl Chart {
                     .configure_mesh()
                     .x_labels(n.clamp(2, 12) * 2 + 1)
                     .x_label_formatter(&label_of)
+                    .y_label_formatter(&tick)
                     .y_desc(y_label.as_str())
                     .disable_x_mesh()
                     .light_line_style(RGBColor(235, 235, 235))
@@ -332,16 +394,34 @@ mod tests {
             labels: vec!["T1".into(), "T2".into()],
             values: vec![1.0, 1.1],
             errors: Some(vec![0.02, 0.03]),
+            error_label: Some("±U, expanded, k = 2, 95 % coverage".into()),
+            from_zero: true,
         };
-        assert!(t.to_svg().unwrap().contains("T2"));
+        let svg = t.to_svg().unwrap();
+        assert!(svg.contains("T2") && svg.contains("error bars: ±U, expanded, k = 2, 95 % coverage"), "{svg}");
+        // Bars without saying what they are are refused.
+        let unlabelled = match t.clone() {
+            Chart::Trend { title, y_label, labels, values, errors, .. } => {
+                Chart::Trend { title, y_label, labels, values, errors, error_label: None, from_zero: false }
+            }
+            other => other,
+        };
+        assert!(unlabelled.to_svg().unwrap_err().to_string().contains("need a label"));
         let b = Chart::Budget { title: "budget".into(), shares: vec![("C".into(), 0.7), ("ρ".into(), 0.3)] };
         assert!(b.to_png().unwrap().len() > 1000);
     }
 
     #[test]
     fn empty_charts_are_errors_not_panics() {
-        let e =
-            Chart::Trend { title: String::new(), y_label: String::new(), labels: vec![], values: vec![], errors: None };
+        let e = Chart::Trend {
+            title: String::new(),
+            y_label: String::new(),
+            labels: vec![],
+            values: vec![],
+            errors: None,
+            error_label: None,
+            from_zero: false,
+        };
         assert!(e.to_svg().is_err());
         let p = Chart::Profile {
             title: String::new(),
@@ -351,5 +431,37 @@ mod tests {
             curves: vec![],
         };
         assert!(p.to_svg().is_err());
+    }
+
+    // Tick labels: 4 significant figures, no "-0" (an axis crossing zero in floating point).
+    #[test]
+    fn ticks_never_print_minus_zero() {
+        assert_eq!(tick(&-0.0), "0");
+        assert_eq!(tick(&-1e-17), "0");
+        assert_eq!(tick(&2.5), "2.5");
+        assert_eq!(tick(&12.0), "12");
+        assert_eq!(tick(&0.000123456), "0.0001235");
+    }
+
+    #[test]
+    fn budget_charts_group_negligible_terms() {
+        use crate::uncertainty::{Correlations, Input, Model, Real, gum};
+        struct Sum;
+        impl Model for Sum {
+            fn eval<R: Real>(&self, x: &[R]) -> R {
+                x[0] + x[1] + x[2] + x[3]
+            }
+        }
+        let inputs = vec![
+            Input::normal("a", "1", 1.0, 0.1).unwrap(),
+            Input::normal("b", "1", 1.0, 0.05).unwrap(),
+            Input::normal("c", "1", 1.0, 0.001).unwrap(),
+            Input::normal("d", "1", 1.0, 0.001).unwrap(),
+        ];
+        let g = gum(&Sum, &inputs, &Correlations::none(), 0.95).unwrap();
+        let Chart::Budget { shares, .. } = Chart::budget("b", &g) else { panic!("a budget chart") };
+        let names: Vec<&str> = shares.iter().map(|s| s.0.as_str()).collect();
+        assert_eq!(names, ["a", "b", "2 other inputs, each < 1 %"]);
+        assert!((shares.iter().map(|s| s.1).sum::<f64>() - 1.0).abs() < 1e-12);
     }
 }

@@ -428,10 +428,47 @@ impl TraverseLayout {
                 if p.moved { "moved to minimum wall distance" } else { "" }
             ));
         }
+        if let Some(ports) = self.port_positions() {
+            s.push_str(&ports);
+            s.push('\n');
+        }
         for w in &self.warnings {
             s.push_str(&format!("{w}\n"));
         }
         s
+    }
+
+    /// Where the ports are: along the width of a rectangle (from its left-hand corner,
+    /// looking at the port side), or round the circumference of a circle.
+    pub fn port_positions(&self) -> Option<String> {
+        let mut seen = Vec::new();
+        match self.conduit.section {
+            Section::Rectangular { width, .. } => {
+                for p in &self.points {
+                    if let Position::Grid { x_over_w, .. } = p.position
+                        && !seen.iter().any(|(l, _)| *l == p.line)
+                    {
+                        seen.push((p.line, x_over_w * width.si() * 1e3));
+                    }
+                }
+                let list: Vec<String> = seen
+                    .iter()
+                    .map(|(l, x)| format!("{} at {} mm", line_letter(*l), format_number((x * 10.0).round() / 10.0)))
+                    .collect();
+                Some(format!(
+                    "ports along the {} mm side, from its left-hand corner: {}",
+                    format_number(width.si() * 1e3),
+                    list.join(", ")
+                ))
+            }
+            Section::Circular { .. } if self.lines > 1 => {
+                let list: Vec<String> = (0..self.lines)
+                    .map(|l| format!("{} at {}°", line_letter(l), format_number(180.0 * l as f64 / self.lines as f64)))
+                    .collect();
+                Some(format!("ports round the circumference: {}", list.join(", ")))
+            }
+            _ => None,
+        }
     }
 
     /// The cross-section with its traverse lines, ports and numbered points, as SVG.
@@ -464,6 +501,16 @@ impl TraverseLayout {
             let font = ("sans-serif", 12).into_font().color(&BLACK);
             let title = format!("{} layout, {} line(s) × {} points", self.rule, self.lines, self.per_line);
             root.draw(&Text::new(title, (10, 10), ("sans-serif", 14).into_font())).map_err(|e| err(e.to_string()))?;
+            let dims = match self.conduit.section {
+                Section::Circular { diameter } => format!("D = {} mm", format_number(diameter.si() * 1e3)),
+                Section::Rectangular { width, height } => format!(
+                    "W = {} mm (port side) × H = {} mm",
+                    format_number(width.si() * 1e3),
+                    format_number(height.si() * 1e3)
+                ),
+            };
+            root.draw(&Text::new(dims, (10, size - 22), ("sans-serif", 12).into_font()))
+                .map_err(|e| err(e.to_string()))?;
             let d = |e: DrawingAreaErrorKind<_>| err(e.to_string());
             match self.conduit.section {
                 Section::Circular { .. } => {
@@ -500,7 +547,14 @@ impl TraverseLayout {
                             if p.index == 0 {
                                 root.draw(&Text::new(
                                     format!("port {}", line_letter(p.line)),
-                                    px(x - 14.0, -h / 2.0 - 18.0),
+                                    px(x - 14.0, -h / 2.0 - 30.0),
+                                    font.clone(),
+                                ))
+                                .map_err(d)?;
+                                // Its position along the port side, mm from the left-hand corner.
+                                root.draw(&Text::new(
+                                    format_number((x_over_w * width.si() * 1e4).round() / 10.0),
+                                    px(x - 10.0, -h / 2.0 - 16.0),
                                     font.clone(),
                                 ))
                                 .map_err(d)?;
