@@ -25,6 +25,7 @@ mod demo;
 mod jupyter;
 mod layout_cmd;
 mod repl;
+mod report;
 mod run;
 mod session;
 

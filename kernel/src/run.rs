@@ -43,6 +43,10 @@ pub struct RunArgs {
     /// Parallel jobs (default: one per core).
     #[arg(long, short = 'j', value_name = "N")]
     pub jobs: Option<usize>,
+    /// Also write a self-contained HTML report of each run (everything the script showed,
+    /// with the cautions) under this name in the output folder (one per input file).
+    #[arg(long, value_name = "FILE.html")]
+    pub report: Option<String>,
 }
 
 /// A `--set` value as a script value.
@@ -112,6 +116,17 @@ fn run_one(
     }
     let name = args.script.display().to_string();
     let result = session.eval(script);
+    let report_error = args.report.as_ref().and_then(|r| {
+        let title = match file {
+            Some(f) => format!("{} on {}", args.script.file_stem().unwrap_or_default().to_string_lossy(), f.display()),
+            None => args.script.file_stem().unwrap_or_default().to_string_lossy().to_string(),
+        };
+        let html = session.report_html(&title, Some(&name));
+        let target = out_dir.join(r);
+        stagna::io::table::write_atomically(&target, |f| std::io::Write::write_all(f, html.as_bytes()))
+            .err()
+            .map(|e| format!("{}: the report could not be written: {e}", target.display()))
+    });
     let mut lines = match printed.lock() {
         Ok(v) => v.clone(),
         Err(e) => e.into_inner().clone(),
@@ -121,7 +136,7 @@ fn run_one(
             if let Some(v) = out.value {
                 lines.push(v.text);
             }
-            RunResult { printed: lines, error: None }
+            RunResult { printed: lines, error: report_error }
         }
         Err(e) => RunResult { printed: lines, error: Some(e.render(&name, script, false)) },
     }
@@ -191,6 +206,15 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     for kv in &args.set {
         if !kv.contains('=') {
             return Err(format!("--set {kv}: write NAME=VALUE").into());
+        }
+    }
+    if let Some(r) = &args.report {
+        let ok = std::path::Path::new(r).components().count() == 1
+            && (r.to_ascii_lowercase().ends_with(".html") || r.to_ascii_lowercase().ends_with(".htm"));
+        if !ok {
+            return Err(
+                format!("--report {r}: give a file name ending in .html (it is written in the output folder)").into()
+            );
         }
     }
     let limits = args.limits.limits()?;

@@ -284,6 +284,18 @@ fn stdout_sink() -> Sink {
     })
 }
 
+/// A sink that keeps each event in the session's record before passing it on.
+fn recording(prefs: &SharedPrefs, f: Sink) -> Sink {
+    let rec = api::prefs(prefs).record;
+    Arc::new(move |e: Event| {
+        match rec.lock() {
+            Ok(mut g) => g.push(&e),
+            Err(p) => p.into_inner().push(&e),
+        }
+        f(e)
+    })
+}
+
 fn send(sink: &Arc<RwLock<Sink>>, e: Event) {
     let f = match sink.read() {
         Ok(f) => f.clone(),
@@ -360,7 +372,7 @@ impl Session {
                 None
             }
         });
-        let sink: Arc<RwLock<Sink>> = Arc::new(RwLock::new(stdout_sink()));
+        let sink: Arc<RwLock<Sink>> = Arc::new(RwLock::new(recording(&prefs, stdout_sink())));
         let s1 = sink.clone();
         engine.on_print(move |s| send(&s1, Event::Stdout(s.to_string())));
         let s2 = sink.clone();
@@ -443,12 +455,24 @@ impl Session {
         });
     }
 
-    /// Where every output event goes (the Jupyter kernel).
+    /// Where every output event goes (the Jupyter kernel). The session's record (its
+    /// report) sees every event first.
     pub fn set_events(&self, f: impl Fn(Event) + Send + Sync + 'static) {
+        let f = recording(&self.prefs, Arc::new(f));
         match self.sink.write() {
-            Ok(mut s) => *s = Arc::new(f),
-            Err(p) => *p.into_inner() = Arc::new(f),
+            Ok(mut s) => *s = f,
+            Err(p) => *p.into_inner() = f,
         }
+    }
+
+    /// Writes the session's report (everything shown so far) as one HTML page.
+    pub fn report_html(&self, title: &str, script: Option<&str>) -> String {
+        let rec = api::prefs(&self.prefs).record;
+        let r = match rec.lock() {
+            Ok(g) => g.clone(),
+            Err(e) => e.into_inner().clone(),
+        };
+        crate::report::html(&r, title, script)
     }
 
     /// How `input(prompt)` is answered; none by default (an error in scripts).
@@ -509,7 +533,15 @@ impl Session {
             }
         };
         self.functions = self.functions.merge(&fns);
-        Ok(Outcome { value: self.render(&value) })
+        let value = self.render(&value);
+        if let Some(b) = &value {
+            let rec = api::prefs(&self.prefs).record;
+            match rec.lock() {
+                Ok(mut g) => g.push_value(b),
+                Err(e) => e.into_inner().push_value(b),
+            }
+        }
+        Ok(Outcome { value })
     }
 
     /// Renders a value as a MIME bundle; `None` for unit.

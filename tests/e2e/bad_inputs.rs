@@ -441,6 +441,8 @@ fn bad_command_lines_are_refused_naming_the_option() {
         (&["run", missing.to_str().unwrap_or_default()], &["missing.rhai", "cannot read the script"]),
         (&["run", s, missing_input.to_str().unwrap_or_default()], &["missing-input.csv", "no such input file"]),
         (&["run", s, "--max-operations", "many"], &["invalid value 'many'"]),
+        (&["run", s, "--report", "../escape.html"], &["--report ../escape.html", "ending in .html"]),
+        (&["run", s, "--report", "report.pdf"], &["--report report.pdf", "ending in .html"]),
         (&["kernel"], &["--connection-file"]),
         (&["--max-memory", "1GiB", "run", s], &["give them after `run` or `kernel`"]),
         (

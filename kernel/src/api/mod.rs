@@ -29,6 +29,7 @@ pub mod layouts;
 pub mod probes;
 pub mod profiles;
 pub mod quantities;
+pub mod reports;
 pub mod sections;
 pub mod setups;
 pub mod stack;
@@ -196,6 +197,8 @@ pub struct Prefs {
     pub warn: Option<WarnHook>,
     /// Warnings already given this session (given once).
     pub warned: std::collections::BTreeSet<String>,
+    /// Everything the session has shown, for its report.
+    pub record: Arc<std::sync::Mutex<crate::report::Record>>,
 }
 
 impl Default for Prefs {
@@ -212,6 +215,7 @@ impl Default for Prefs {
             table: table_view::TableView::default(),
             warn: None,
             warned: Default::default(),
+            record: Arc::default(),
         }
     }
 }
@@ -407,4 +411,5 @@ pub fn register_all(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     uncertainty::register(r, prefs);
     stack::register(r, prefs);
     setups::register(r, prefs);
+    reports::register(r, prefs);
 }

@@ -3,7 +3,6 @@
 
 use rhai::Dynamic;
 use stagna::units::dimension::Dimension as D;
-use stagna::units::quantity::format_number;
 use stagna::*;
 
 use super::fluids::State;
@@ -148,9 +147,9 @@ fn velocity(r: &mut Registrar<'_>) {
 fn results(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let p = prefs.clone();
     r.engine.register_fn("to_string", move |v: &mut PointVelocity| {
-        let mut s = format!("PointVelocity: {} ({:?})", show_q(v.velocity.si(), D::VELOCITY, &p), v.direction);
+        let mut s = format!("point velocity {} ({})", show_q(v.velocity.si(), D::VELOCITY, &p), v.direction);
         if let Some(m) = v.mach {
-            s.push_str(&format!(", Mach {}", format_number(m)));
+            s.push_str(&format!(", Mach number {}", stagna::units::quantity::format_sig(m, 3)));
         }
         if v.compressible {
             s.push_str(", isentropic correction applied");

@@ -85,6 +85,16 @@ pub enum FlowDirection {
     Reverse,
 }
 
+impl std::fmt::Display for FlowDirection {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Self::Forward => "flow towards the probe",
+            Self::NoFlow => "no flow (Δp = 0)",
+            Self::Reverse => "reverse flow (Δp < 0)",
+        })
+    }
+}
+
 /// A probe with its coefficient.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Probe {

@@ -61,32 +61,24 @@ impl GumResult {
         block("text/plain", &self.to_string()) + &block("text/html", &self.to_html())
     }
 
-    /// The budget as an HTML table with the result line below it.
+    /// The budget as an HTML table with the result line below it: the same columns and
+    /// figures as the text form.
     pub fn to_html(&self) -> String {
-        let mut h = String::from(
-            "<table><thead><tr><th>input</th><th>value</th><th>u</th><th>c</th><th>c·u</th><th>share</th><th>source</th></tr></thead><tbody>",
-        );
-        for l in &self.budget {
-            h.push_str(&format!(
-                "<tr><td>{} ({})</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{:.1} %</td><td>{}</td></tr>",
-                esc(&l.name),
-                esc(&l.unit),
-                format_number(l.value),
-                format_number(l.u),
-                format_number(l.sensitivity),
-                format_number(l.contribution),
-                100.0 * l.share,
-                esc(&l.source)
-            ));
+        let mut h = String::from("<table class=\"stagna-table\"><thead><tr>");
+        for (k, head) in Self::HEADS.iter().enumerate() {
+            let align = if matches!(k, 0 | 3 | 7) { "" } else { " style=\"text-align:right\"" };
+            h.push_str(&format!("<th{align}>{}</th>", esc(head)));
         }
-        h.push_str(&format!(
-            "</tbody></table><p>y = {}, u<sub>c</sub> = {}, k = {:.3}, U({:.0} %) = {}</p>",
-            format_number(self.value),
-            format_number(self.u),
-            self.k,
-            100.0 * self.coverage,
-            format_number(self.expanded)
-        ));
+        h.push_str("</tr></thead><tbody>");
+        for r in self.rows() {
+            h.push_str("<tr>");
+            for (k, c) in r.iter().enumerate() {
+                let align = if matches!(k, 0 | 3 | 7) { "" } else { " style=\"text-align:right\"" };
+                h.push_str(&format!("<td{align}>{}</td>", esc(c)));
+            }
+            h.push_str("</tr>");
+        }
+        h.push_str(&format!("</tbody></table><p>{}</p>", esc(&self.result_line())));
         h
     }
 }
@@ -101,7 +93,7 @@ impl Steps {
 impl PointVelocity {
     /// The velocity and its steps.
     pub fn evcxr_blocks(&self) -> String {
-        let head = format!("v = {} m/s ({:?})", format_number(self.velocity.si()), self.direction);
+        let head = format!("v = {} m/s ({})", format_number(self.velocity.si()), self.direction);
         block("text/html", &format!("<p>{}</p><pre>{}</pre>", esc(&head), esc(&self.steps().to_string())))
     }
 }
@@ -124,6 +116,7 @@ impl FlowResult {
 
 #[cfg(test)]
 mod tests {
+    use super::{GumResult, esc};
     use crate::section::layout::{LayoutRule, TraverseLayout};
     use crate::*;
 
@@ -152,6 +145,14 @@ mod tests {
         .unwrap();
         let g = t.gum(0.95).unwrap();
         let html = g.evcxr_blocks();
-        assert!(html.contains("EVCXR_BEGIN_CONTENT text/html\n<table>") && html.contains("<td>C (1)</td>"));
+        assert!(
+            html.contains("EVCXR_BEGIN_CONTENT text/html\n<table class=\"stagna-table\">")
+                && html.contains("<td>C</td>")
+        );
+        // Text and HTML carry the same columns and the same result line.
+        for head in GumResult::HEADS {
+            assert!(html.contains(&format!(">{}</th>", esc(head))), "{head}");
+        }
+        assert!(html.contains(&esc(&g.result_line())));
     }
 }

@@ -508,22 +508,26 @@ pub fn gum<M: Model>(model: &M, inputs: &[Input], correlations: &Correlations, p
     Ok(GumResult { value: y, u: uc, dof, coverage: p, k, expanded: k * uc, budget })
 }
 
-impl fmt::Display for GumResult {
-    /// The budget as a table (value and u per GUM 7.2.6, sensitivities to three and
-    /// contributions to two significant figures, shares, sources) and the result line:
-    /// y with u_c (standard, k = 1) and U (expanded, with its k and coverage).
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+impl GumResult {
+    /// The budget's column heads, as printed in text and HTML alike.
+    pub const HEADS: [&'static str; 8] =
+        ["input", "value", "u (k = 1)", "type", "sensitivity c", "c·u", "share", "source"];
+
+    /// The budget lines as printed: value and u per GUM 7.2.6, sensitivities to three and
+    /// contributions to two significant figures, shares, sources.
+    pub fn rows(&self) -> Vec<[String; 8]> {
         use crate::units::quantity::{format_sig, format_with_uncertainty};
-        let label = |l: &BudgetLine| {
-            if l.unit == "1" || l.unit.is_empty() { l.name.clone() } else { format!("{} ({})", l.name, l.unit) }
-        };
-        let rows: Vec<[String; 8]> = self
-            .budget
+        self.budget
             .iter()
             .map(|l| {
+                let label = if l.unit == "1" || l.unit.is_empty() {
+                    l.name.clone()
+                } else {
+                    format!("{} ({})", l.name, l.unit)
+                };
                 let (v, u) = format_with_uncertainty(l.value, l.u);
                 [
-                    label(l),
+                    label,
                     v,
                     u,
                     if l.evaluation == Evaluation::TypeA { "A" } else { "B" }.to_string(),
@@ -533,8 +537,30 @@ impl fmt::Display for GumResult {
                     l.source.clone(),
                 ]
             })
-            .collect();
-        let head = ["input", "value", "u (k = 1)", "type", "sensitivity c", "c·u", "share", "source"];
+            .collect()
+    }
+
+    /// The result line: y with u_c (standard, k = 1) and U (expanded, with its k and
+    /// coverage), rounded per GUM 7.2.6.
+    pub fn result_line(&self) -> String {
+        use crate::units::quantity::{format_sig, format_with_uncertainty};
+        let dof = if self.dof.is_finite() { format!("{:.1}", self.dof) } else { "∞".into() };
+        let (y, u) = format_with_uncertainty(self.value, self.u);
+        let (_, big_u) = format_with_uncertainty(self.value, self.expanded);
+        format!(
+            "y = {y}, u_c = {u} (standard, k = 1; {} % of y), ν_eff = {dof}; U = {big_u} (expanded, k = {:.2}, {:.0} % coverage)",
+            format_sig(self.u / self.value.abs() * 100.0, 2),
+            self.k,
+            self.coverage * 100.0,
+        )
+    }
+}
+
+impl fmt::Display for GumResult {
+    /// The budget as a table (see [`GumResult::rows`]) and the result line.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let rows = self.rows();
+        let head = Self::HEADS;
         let mut w = head.map(|h| h.chars().count());
         for r in &rows {
             for (k, c) in r.iter().enumerate() {
@@ -562,16 +588,7 @@ impl fmt::Display for GumResult {
         for r in &rows {
             writeln!(f, "{}", line(r))?;
         }
-        let dof = if self.dof.is_finite() { format!("{:.1}", self.dof) } else { "∞".into() };
-        let (y, u) = format_with_uncertainty(self.value, self.u);
-        let (_, big_u) = format_with_uncertainty(self.value, self.expanded);
-        writeln!(
-            f,
-            "y = {y}, u_c = {u} (standard, k = 1; {} % of y), ν_eff = {dof}; U = {big_u} (expanded, k = {:.2}, {:.0} % coverage)",
-            format_sig(self.u / self.value.abs() * 100.0, 2),
-            self.k,
-            self.coverage * 100.0,
-        )
+        writeln!(f, "{}", self.result_line())
     }
 }
 
