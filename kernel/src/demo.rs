@@ -103,21 +103,36 @@ pub fn reference_markdown(session: &Session) -> String {
 
 /// The unit table as text: names, what each is, SI value and source.
 pub fn units_table() -> String {
-    let mut t = table(&["names", "unit", "SI value", "dimension", "source"]);
-    if let Some(c) = t.column_mut(0) {
-        c.set_cell_alignment(CellAlignment::Left);
+    use crate::api::quantities::{SUFFIX_ALIASES, number_spellings};
+    let mut t = table(&["names", "on a number", "unit", "SI value", "dimension", "source"]);
+    for k in [0, 1] {
+        if let Some(c) = t.column_mut(k) {
+            c.set_cell_alignment(CellAlignment::Left);
+        }
     }
+    let on_number = |names: &[&str]| -> String {
+        number_spellings(names).iter().map(|s| format!("2.{s}")).collect::<Vec<_>>().join(", ")
+    };
     for u in stagna::units::unit::UNITS {
         t.add_row(vec![
             u.names.join(", "),
+            on_number(u.names),
             u.description.to_string(),
             format!("{} {}", format_number(u.factor), stagna::units::quantity::si_symbol(u.dimension)),
             u.dimension.name().unwrap_or("").to_string(),
             u.source.to_string(),
         ]);
     }
+    let compounds: Vec<String> = SUFFIX_ALIASES
+        .iter()
+        .filter(|(_, u)| u.contains(['/', '^', '*']))
+        .map(|(a, u)| format!("2.{a} ({u})"))
+        .collect();
     format!(
-        "{t}\nTemperatures: K, degC (°C), degF (°F), degR (°R) are absolute; delta_K, delta_degC, delta_degF, delta_degR are differences.\n\
-         Compound units: join names with * · or /, powers with ^ or a trailing digit (kg/m^3, m3/h, Pa*s).\n"
+        "{t}\nTemperatures: K, degC (°C), degF (°F), degR (°R) are absolute (20.degC); delta_K, delta_degC, delta_degF, delta_degR are differences (5.delta_K).\n\
+         Compound units on a number: {}.\n\
+         Any other compound in qty(\"...\"): join names with * · or /, powers with ^ or a trailing digit (qty(\"1.2 kg/m^3\")).\n\
+         `in` is a keyword of the script language: write 2.inch for inches.\n",
+        compounds.join(", ")
     )
 }

@@ -662,6 +662,30 @@ impl Session {
             }
             other => ("ScriptError".into(), other.to_string().split(" (line").next().unwrap_or("").to_string(), None),
         };
+        // A number with an unknown unit suffix (`5.foo`): the engine reports a missing getter.
+        if let Some(name) = unknown_suffix(&message) {
+            let units: Vec<String> =
+                self.catalog.entries().filter(|e| e.kind == Kind::Unit).map(|e| e.name.clone()).collect();
+            let mut close: Vec<(usize, &String)> = units
+                .iter()
+                .map(|u| (crate::catalog::edit_distance(&u.to_lowercase(), &name.to_lowercase()), u))
+                .filter(|(d, _)| *d <= 2)
+                .collect();
+            close.sort();
+            let hint = match close.first() {
+                Some(_) => format!(
+                    "did you mean {}? `stagna units` lists every unit with its spelling on a number",
+                    close.iter().take(3).map(|(_, u)| u.as_str()).collect::<Vec<_>>().join(", ")
+                ),
+                None => "`stagna units` lists every unit with its spelling on a number (e.g. 12.5.mm, 20.degC, 3.2.m3_s); `in` is a keyword: write 5.inch".into(),
+            };
+            return ScriptError {
+                kind: "UnitError".into(),
+                message: format!("unknown unit '{name}' on a number"),
+                position,
+                hint: Some(hint),
+            };
+        }
         ScriptError { kind, message, position, hint }
     }
 
@@ -865,6 +889,15 @@ pub const KEYWORDS: &[&str] = &[
 
 fn pos(p: Position) -> Option<(usize, usize)> {
     p.line().map(|l| (l, p.position().unwrap_or(1)))
+}
+
+/// The suffix in the engine's message for `5.foo` (a getter missing on a number).
+fn unknown_suffix(msg: &str) -> Option<String> {
+    let rest = msg.strip_prefix("Unknown property '")?;
+    let (name, tail) = rest.split_once('\'')?;
+    (tail.contains("getter is not registered for type 'i64'")
+        || tail.contains("getter is not registered for type 'f64'"))
+    .then(|| name.to_string())
 }
 
 fn hint_for(msg: &str) -> Option<String> {
@@ -1618,6 +1651,26 @@ mod tests {
         }
         let e = err(&mut s, "table_from(#{u_flow_m3_s: [1.0]})[\"expanded_flow_m3_s\"]");
         assert!(e.message.contains("was renamed 'U_flow_m3_s'"), "{}", e.message);
+    }
+
+    /// Every unit `stagna units` lists is written after a number as the table says, and
+    /// means that unit.
+    #[test]
+    fn every_listed_unit_has_a_number_spelling() {
+        let mut s = Session::new();
+        for u in stagna::units::unit::UNITS {
+            let spellings = crate::api::quantities::number_spellings(u.names);
+            if u.names == ["1"] {
+                continue;
+            }
+            assert!(!spellings.is_empty(), "{:?} has no spelling on a number", u.names);
+            for sp in spellings {
+                let v = eval(&mut s, &format!("(2.{sp}).si"));
+                let want = stagna::Quantity::parse(&format!("2 {}", u.names[0])).map(|q| q.si).unwrap_or(f64::NAN);
+                let got: f64 = v.parse().unwrap_or(f64::NAN);
+                assert!((got - want).abs() <= 1e-12 * want.abs().max(1.0), "2.{sp}: {got} vs {want}");
+            }
+        }
     }
 
     #[test]

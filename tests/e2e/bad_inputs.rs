@@ -298,6 +298,8 @@ const CASES: &[(&str, &[&str])] = &[
     ),
     (r##"gauge_sensitivity([1.mmH2O, -2.mmH2O, 3.mmH2O])"##, &[r##"row 2"##, r##"velocity head must be 0 or more"##]),
     (r##"cyclonic_check([4, 95, 3])"##, &[r##"row 2"##, r##"yaw angle must be within ±90°"##]),
+    (r##"let x = 5.mmH20;"##, &[r##"unknown unit 'mmH20' on a number"##, r##"did you mean mmH2O"##]),
+    (r##"let x = 5.zzqq;"##, &[r##"unknown unit 'zzqq' on a number"##, r##"write 5.inch"##]),
     (
         r##"method1a_site(round_section(200.mm), #{straight_upstream_D: 9})"##,
         &[r##"option 'straight_downstream_D' is required"##],

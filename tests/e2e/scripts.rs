@@ -139,6 +139,11 @@ fn profile_study_across_traverses() {
     let last = number_after(&out, "(first station) to");
     assert!(first < 6.0 && last > 7.5 && last > first, "{out}");
     assert_eq!(out.lines().filter(|l| l.contains(": power-law n = ")).count(), 12);
+    // One rig, one flow: the equal-area means agree along it within the readings' scatter
+    // (mass conservation; the scenario's stations were generated at 10.0 m/s ± 0.3 %).
+    let spread = number_after(&out, ", spread");
+    assert!(spread < 1.0, "mean velocity spread {spread} % along the rig:\n{out}");
+    assert!((number_after(&out, "mean velocity over the stations:") - 10.0).abs() < 0.05, "{out}");
     let png = std::fs::read(dir.join("stations.png")).unwrap_or_default();
     assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n"); // PNG signature (ISO/IEC 15948 §5.2)
     assert!(dir.join("profiles.svg").is_file());

@@ -36,11 +36,12 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             show_q(f.volume_flow.si(), D::VOLUME_FLOW, &p),
             show_q(f.mass_flow.si(), D::MASS_FLOW, &p)
         );
+        let at = f.reference.map(|r| r.label()).unwrap_or_default();
         if let Some(q) = f.reference_flow {
-            s.push_str(&format!(", Q_ref = {}", show_q(q.si(), D::VOLUME_FLOW, &p)));
+            s.push_str(&format!(", Q at {at} = {}", show_q(q.si(), D::VOLUME_FLOW, &p)));
         }
         if let Some(q) = f.dry_reference_flow {
-            s.push_str(&format!(", Q_ref,dry = {}", show_q(q.si(), D::VOLUME_FLOW, &p)));
+            s.push_str(&format!(", dry Q at {at} = {}", show_q(q.si(), D::VOLUME_FLOW, &p)));
         }
         s
     });

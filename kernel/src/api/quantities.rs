@@ -21,6 +21,7 @@ pub const SUFFIX_ALIASES: &[(&str, &str)] = &[
     ("mmHg_0C", "mmHg@0C"),
     ("inHg_32F", "inHg@32F"),
     ("inHg_60F", "inHg@60F"),
+    ("mmHg_60F", "mmHg@60F"),
     ("m_s", "m/s"),
     ("ft_s", "ft/s"),
     ("ft_min", "ft/min"),
@@ -45,11 +46,30 @@ pub const SUFFIX_ALIASES: &[(&str, &str)] = &[
     ("m_s2", "m/s^2"),
 ];
 
-fn is_ident(s: &str) -> bool {
+pub fn is_ident(s: &str) -> bool {
     let mut c = s.chars();
     matches!(c.next(), Some(ch) if ch.is_ascii_alphabetic() || ch == '_')
         && c.all(|ch| ch.is_ascii_alphanumeric() || ch == '_')
         && !matches!(s, "in" | "fn" | "if" | "do" | "let" | "for" | "const")
+}
+
+/// How a unit is written after a number: its name where that is an identifier, else its
+/// alias (`2.mmH2O_4C` for mmH2O@4C, `2.inch` for in). None for the pure number "1".
+pub fn number_spellings(names: &[&str]) -> Vec<String> {
+    let mut v: Vec<String> = Vec::new();
+    for n in names {
+        let s = if is_ident(n) {
+            Some(n.to_string())
+        } else {
+            SUFFIX_ALIASES.iter().find(|(_, u)| u == n).map(|(a, _)| a.to_string())
+        };
+        if let Some(s) = s
+            && !v.contains(&s)
+        {
+            v.push(s);
+        }
+    }
+    v
 }
 
 /// Every suffix name with the unit string it means.

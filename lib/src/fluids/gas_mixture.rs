@@ -132,6 +132,22 @@ impl ReferenceCondition {
         }
     }
 
+    /// The condition in words for printed results: "0 °C, 101.325 kPa",
+    /// "20 °C, 760 mmHg (US EPA)", "60 °F, 14.696 psia".
+    pub fn label(self) -> String {
+        match self {
+            Self::Normal0C => "0 °C, 101.325 kPa".into(),
+            Self::Iso15C => "15 °C, 101.325 kPa".into(),
+            Self::Epa20C => "20 °C, 760 mmHg (US EPA)".into(),
+            Self::Us60F => "60 °F, 14.696 psia".into(),
+            Self::Custom { temperature, pressure } => format!(
+                "{} °C, {} kPa",
+                crate::units::quantity::format_number(temperature.c()),
+                crate::units::quantity::format_number(pressure.si() / 1000.0)
+            ),
+        }
+    }
+
     /// The condition as a column-name tag: `0C_101.325kPa`, `15C_101.325kPa`,
     /// `20C_760mmHg`, `60F_14.696psia`, or `{t}C_{p}kPa` for another pair.
     pub fn tag(self) -> String {

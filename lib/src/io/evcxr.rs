@@ -102,14 +102,21 @@ impl FlowResult {
     /// The flows as a small HTML table.
     pub fn evcxr_blocks(&self) -> String {
         let mut rows = vec![
-            ("mean velocity", format!("{} m/s", format_number(self.mean_velocity.si()))),
-            ("volume flow", format!("{} m³/s", format_number(self.volume_flow.si()))),
-            ("mass flow", format!("{} kg/s", format_number(self.mass_flow.si()))),
+            ("mean velocity".to_string(), format!("{} m/s", format_number(self.mean_velocity.si()))),
+            (
+                "volume flow at the measuring conditions".to_string(),
+                format!("{} m³/s", format_number(self.volume_flow.si())),
+            ),
+            ("mass flow".to_string(), format!("{} kg/s", format_number(self.mass_flow.si()))),
         ];
+        let at = self.reference.map(|r| r.label()).unwrap_or_default();
         if let Some(q) = self.reference_flow {
-            rows.push(("volume flow at the reference condition", format!("{} m³/s", format_number(q.si()))));
+            rows.push((format!("volume flow at {at}"), format!("{} m³/s", format_number(q.si()))));
         }
-        let body: String = rows.iter().map(|(k, v)| format!("<tr><td>{k}</td><td>{v}</td></tr>")).collect();
+        if let Some(q) = self.dry_reference_flow {
+            rows.push((format!("dry volume flow at {at}"), format!("{} m³/s", format_number(q.si()))));
+        }
+        let body: String = rows.iter().map(|(k, v)| format!("<tr><td>{}</td><td>{v}</td></tr>", esc(k))).collect();
         block("text/html", &format!("<table>{body}</table>"))
     }
 }

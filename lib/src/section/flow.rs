@@ -65,6 +65,8 @@ pub struct FlowResult {
     pub reference_flow: Option<VolumeFlow>,
     /// Dry-basis flow at the reference condition, if moisture was given.
     pub dry_reference_flow: Option<VolumeFlow>,
+    /// The reference condition of those flows.
+    pub reference: Option<crate::ReferenceCondition>,
     /// Wall factor applied.
     pub wall_factor: Option<f64>,
     /// Remarks.
@@ -126,6 +128,7 @@ pub fn flow(mean: Velocity, conduit: &Conduit, fluid: &FluidState, options: &Flo
         mass_flow: MassFlow::from_si(fluid.density.si() * q),
         reference_flow,
         dry_reference_flow,
+        reference: options.reference,
         wall_factor: options.wall_factor.map(WallFactor::value),
         warnings,
     })
