@@ -261,7 +261,7 @@ impl Probe {
         if let Some(re) = probe_reynolds.filter(|re| *re < LOW_REYNOLDS_LIMIT && direction != FlowDirection::NoFlow) {
             warnings.push(Warning::new(
                 "low-velocity",
-                format!("probe Reynolds number {re:.0} (head diameter) is below {LOW_REYNOLDS_LIMIT:.0}: viscous effects make the impact reading and so the velocity too high (ISO 3966 limit, from memory)"),
+                format!("probe Reynolds number {re:.0} (head diameter) is below {LOW_REYNOLDS_LIMIT:.0}: viscous effects make the impact reading and so the velocity too high (ISO 3966 limit; unverified, recalled)"),
             ));
         }
         Ok(PointVelocity {

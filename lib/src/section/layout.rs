@@ -657,7 +657,7 @@ pub fn epa_method1_points(
         (
             n,
             format!(
-                "Figure 1-1 ({downstream:.1} D straight before the ports, downstream of the disturbance → {by_down}; {upstream:.2} D after them → {by_up}; figure read from memory)"
+                "Figure 1-1 ({downstream:.1} D straight before the ports, downstream of the disturbance → {by_down}; {upstream:.2} D after them → {by_up}; Figure 1-1 breakpoints unverified: recalled, not read in the published text)"
             ),
         )
     };

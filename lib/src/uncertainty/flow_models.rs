@@ -57,7 +57,7 @@ impl MethodTerm {
             MethodTerm {
                 name: format!("layout/integration ({rule})"),
                 relative_u: layout,
-                source: "layout bias on model profiles, check-values.md §5.4".into(),
+                source: "bias of the layout's arithmetic mean on power-law profiles, n = 6 to 10 (derived: computed in the library's integration tests)".into(),
             },
             MethodTerm { name: "probe positioning".into(), relative_u: 0.0025, source: cp.into() },
             MethodTerm { name: "flow unsteadiness".into(), relative_u: 0.005, source: cp.into() },

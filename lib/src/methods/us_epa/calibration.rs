@@ -76,7 +76,7 @@ fn side(cp_std: f64, pairs: &[CalibrationPair], name: &'static str) -> Result<(V
         return Err(Error::Inconsistent {
             context: CONTEXT,
             message: format!(
-                "side {name} has {} reading(s); Method 2 §10.1.3 asks for at least {MIN_READINGS_PER_SIDE} per side (from memory)",
+                "side {name} has {} reading(s); Method 2 §10.1.3 asks for at least {MIN_READINGS_PER_SIDE} per side (unverified, recalled)",
                 pairs.len()
             ),
         });

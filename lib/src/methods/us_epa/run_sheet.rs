@@ -243,7 +243,7 @@ pub fn run_sheet(r: &StackRun) -> Result<RunSheet> {
     let mut checks = Vec::new();
     let mut warnings = Vec::new();
     let mut notes = vec![
-        "Equation numbers of Methods 2, 3 and 4 are cited from memory; the constants and symbols were read in the methods' published nomenclature (40 CFR 60 App. A).".to_string(),
+        "Equation numbers of Methods 2, 3 and 4 are unverified (recalled, not read in the published text); the constants and symbols were read in the methods' published nomenclature (40 CFR 60 App. A).".to_string(),
     ];
 
     // Probe coefficient.
@@ -446,7 +446,7 @@ pub fn run_sheet(r: &StackRun) -> Result<RunSheet> {
                 m.bws,
                 "",
                 4,
-                "US EPA Method 4 (from memory: lower of the two)",
+                "US EPA Method 4 (lower of the two; unverified, recalled)",
             ));
             checks.extend(m.checks.iter().cloned());
             let b = m.bws;
@@ -807,7 +807,7 @@ mod tests {
         assert!((sh.value("v̄").unwrap() - 14.3892).abs() < 1e-3, "{:?}", sh.value("v̄"));
         assert!(sh.passed(), "{:?}", sh.checks);
         let text = to_text(std::slice::from_ref(&sh));
-        assert!(text.contains("Caution:") && text.contains("eq. 2-7") && text.contains("from memory"), "{text}");
+        assert!(text.contains("Caution:") && text.contains("eq. 2-7") && text.contains("unverified"), "{text}");
         let html = to_html(std::slice::from_ref(&sh));
         assert!(html.contains("<td>Q_sd</td>") && html.contains("Caution"));
         let df = to_frame(&[sh]).unwrap();
