@@ -1641,8 +1641,15 @@ mod tests {
         assert_eq!(eval(&mut s, "round_duct(600.mm).area"), eval(&mut s, "round_section(600.mm).area"));
         eval(&mut s, "round_duct(500.mm); rect_duct(1.m, 2.m); humid_air_dew_point(9.degC)");
         eval(&mut s, "table_from(#{dp: [100.0, 121.0]}).unit(\"dp\", \"Pa\")[\"dp\"].sqrt_mean(\"Pa\")");
+        eval(&mut s, "table_from(#{a: [1.0]}).height + traverse_layout(round_section(1.m), #{points: 4}).count");
+        assert_eq!(
+            eval(&mut s, "table_from(#{a: [1.0, 2.0]}).len + traverse_layout(round_section(1.m), #{points: 4}).len"),
+            "10"
+        );
         let got = lines.lock().map(|v| v.clone()).unwrap_or_default();
-        for name in ["round_duct", "rect_duct", "humid_air_dew_point", "column.sqrt_mean"] {
+        for name in
+            ["round_duct", "rect_duct", "humid_air_dew_point", "column.sqrt_mean", "table.height", "layout.count"]
+        {
             assert_eq!(
                 got.iter().filter(|l| l.contains(&format!("{name} is deprecated"))).count(),
                 1,

@@ -12,15 +12,15 @@ use super::*;
 use crate::catalog::Doc;
 
 /// Registers the package.
-pub fn register(r: &mut Registrar<'_>, _prefs: &SharedPrefs) {
+pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<TraverseLayout>("Layout");
     r.group("Traverse layouts");
-    layouts(r);
+    layouts(r, prefs);
     points_table(r);
 }
 
 /// Layouts of round and rectangular sections and what they give.
-fn layouts(r: &mut Registrar<'_>) {
+fn layouts(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "traverse_layout",
         &Doc::new("traverse_layout(conduit, options) -> Layout", "Traverse point positions and insertion depths. Round conduits: rule (\"equal-area\", \"log-linear\", \"log-chebyshev\"), points (per diameter, even), diameters (1–8), port_length. Rectangular: rule (\"equal-area\" or \"log-chebyshev\"), columns and rows (or total for the US EPA matrix), port_length.")
@@ -73,11 +73,26 @@ fn layouts(r: &mut Registrar<'_>) {
     );
     r.property(
         "Layout",
-        "count",
-        &Doc::new("layout.count -> integer", "Number of points.")
-            .example("print(traverse_layout(round_section(1.m), #{points: 8, diameters: 2}).count);")
-            .source("common practice, no source"),
+        "len",
+        &Doc::new(
+            "layout.len -> integer",
+            "Number of points (how many: `.len` on tables, columns, layouts and arrays alike).",
+        )
+        .example("print(traverse_layout(round_section(1.m), #{points: 8, diameters: 2}).len);")
+        .source("common practice, no source"),
         |l: &mut TraverseLayout| l.points.len() as i64,
+    );
+    let p = prefs.clone();
+    r.property(
+        "Layout",
+        "count",
+        &Doc::new("layout.count -> integer", "Deprecated spelling of layout.len (number of points); works for this release, with a warning.")
+            .example("print(traverse_layout(round_section(1.m), #{points: 8, diameters: 2}).len);")
+            .source("common practice, no source"),
+        move |l: &mut TraverseLayout| {
+            super::warn_once(&p, "layout.count is deprecated and will be removed in the next release; write layout.len (the number of points)");
+            l.points.len() as i64
+        },
     );
     r.func(
         "epa_min_points",

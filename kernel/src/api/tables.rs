@@ -334,7 +334,7 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         .param("path", "file path, relative to the working directory")
         .example(&{
             let ext = if fmt == "CSV" { "csv" } else { "parquet" };
-            format!("table_from(#{{h: [12.5, 14.0]}}).write(\"readings.{ext}\");\nlet t = {fname}(\"readings.{ext}\");\nprint(t.height);")
+            format!("table_from(#{{h: [12.5, 14.0]}}).write(\"readings.{ext}\");\nlet t = {fname}(\"readings.{ext}\");\nprint(t.len);")
         })
         .source("polars readers (Apache Parquet, RFC 4180 CSV)")
     };
@@ -344,7 +344,7 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "read_csv",
         &Doc::new("read_csv(path, options) -> Table", "Reads a CSV file laid out otherwise: options separator (one character, e.g. \";\" or \"\\t\") and decimal_comma (true where numbers are written 12,5).")
-            .example("table_from(#{h: [12.5, 14.0]}).write(\"readings.csv\");\nlet t = read_csv(\"readings.csv\", #{separator: \",\", decimal_comma: false});\nprint(t.height);")
+            .example("table_from(#{h: [12.5, 14.0]}).write(\"readings.csv\");\nlet t = read_csv(\"readings.csv\", #{separator: \",\", decimal_comma: false});\nprint(t.len);")
             .source("polars CSV reader"),
         |p: &str, o: Map| -> Res<Tbl> {
             check_keys(&o, &["separator", "decimal_comma"], "read_csv")?;
@@ -394,7 +394,7 @@ fn readers(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "demo_table",
         &Doc::new("demo_table(name) -> Table", "One of the bundled demo tables (invented scenarios): \"pretendbury-ahu2-supply\" (a duct traverse), \"neverbrook-main\" (a water main), \"nowhere-vale-kiln2-stack\" (a stack, S-type probe), \"nowhere-vale-kiln-points\" and \"nowhere-vale-kiln-runs\" (a stack test: points with yaw angles, and one row per run) or \"nullford-rig-profiles\" (profiles after a bend).")
-            .example("let t = demo_table(\"neverbrook-main\");\nprint(t.height);")
+            .example("let t = demo_table(\"neverbrook-main\");\nprint(t.len);")
             .source("invented demo data bundled with stagna"),
         move |name: &str| -> Res<Tbl> { Ok(Tbl::new(demo_csv(&pp, name)?)) },
     );
@@ -526,11 +526,26 @@ fn members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     );
     r.property(
         "Table",
-        "height",
-        &Doc::new("t.height -> integer", "Number of rows.")
-            .example("print(demo_table(\"neverbrook-main\").height);")
-            .source("common practice, no source"),
+        "len",
+        &Doc::new(
+            "t.len -> integer",
+            "Number of rows (how many: `.len` on tables, columns, layouts and arrays alike).",
+        )
+        .example("print(demo_table(\"neverbrook-main\").len);")
+        .source("common practice, no source"),
         |t: &mut Tbl| t.df.height() as i64,
+    );
+    let p = prefs.clone();
+    r.property(
+        "Table",
+        "height",
+        &Doc::new("t.height -> integer", "Deprecated spelling of t.len (number of rows); works for this release, with a warning.")
+            .example("print(demo_table(\"neverbrook-main\").len);")
+            .source("common practice, no source"),
+        move |t: &mut Tbl| {
+            super::warn_once(&p, "table.height is deprecated and will be removed in the next release; write table.len (the number of rows)");
+            t.df.height() as i64
+        },
     );
     r.property(
         "Table",
