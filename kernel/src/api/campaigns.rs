@@ -53,7 +53,7 @@ fn campaign_spec(t: &Tbl, o: &Map, p: &SharedPrefs) -> Res<CampaignSpec> {
     let manometer: Manometer = need("manometer")?
         .clone()
         .try_cast()
-        .ok_or_else(|| rt("campaign: 'manometer' must be a Manometer (e.g. u_tube(mercury()))"))?;
+        .ok_or_else(|| rt("campaign: 'manometer' must be a Manometer (e.g. u_tube(gauge_mercury()))"))?;
     let probe: Probe = need("probe")?
         .clone()
         .try_cast()

@@ -15,18 +15,29 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         .register_type_with_name::<Manometer>("Manometer")
         .register_type_with_name::<ManometerResult>("GaugeReading");
     r.group("Gauge liquids and manometers");
-    liquids(r);
+    liquids(r, prefs);
     manometers(r);
     manometer_members(r, prefs);
     readings(r, prefs);
 }
 
 /// Mercury, water and user gauge liquids.
-fn liquids(r: &mut Registrar<'_>) {
+fn liquids(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    let p = prefs.clone();
     r.func(
         "mercury",
-        &Doc::new("mercury() -> GaugeLiquid", "Mercury as a gauge liquid (density with its thermal expansion). Mercury vapour is toxic: follow your site's rules for mercury-filled instruments.")
-            .example("print(mercury().density(20.degC));")
+        &Doc::new("mercury() -> GaugeLiquid", "Deprecated spelling of gauge_mercury() (gauge liquids are all gauge_*); works for this release, with a warning.")
+            .example("print(gauge_mercury().density(20.degC));")
+            .source("density 13 595.08 kg/m³ at 0 °C and expansion: NPL / Bigg 1964 (see lib docs)"),
+        move || {
+            super::warn_once(&p, "mercury() is deprecated and will be removed in the next release; write gauge_mercury()");
+            GaugeLiquid::Mercury
+        },
+    );
+    r.func(
+        "gauge_mercury",
+        &Doc::new("gauge_mercury() -> GaugeLiquid", "Mercury as a gauge liquid (density with its thermal expansion). Mercury vapour is toxic: follow your site's rules for mercury-filled instruments.")
+            .example("print(gauge_mercury().density(20.degC));")
             .source("density 13 595.08 kg/m³ at 0 °C and expansion: NPL / Bigg 1964 (see lib docs)"),
         || GaugeLiquid::Mercury,
     );
@@ -81,7 +92,7 @@ fn liquids(r: &mut Registrar<'_>) {
         "GaugeLiquid",
         "density",
         &Doc::new("liquid.density(temperature) -> Quantity", "Density of the gauge liquid at its temperature.")
-            .example("print(mercury().density(25.degC));")
+            .example("print(gauge_mercury().density(25.degC));")
             .source("the liquid's law (see mercury, gauge_water, gauge_liquid)"),
         |g: &mut GaugeLiquid, t: Dynamic| -> Res<Q> {
             Ok(Q { q: lib(g.density(temperature(&t, "temperature")?))?.into(), unit: Some("kg/m^3".into()) })
@@ -95,7 +106,7 @@ fn manometers(r: &mut Registrar<'_>) {
     r.func(
         "u_tube",
         &Doc::new("u_tube(liquid) -> Manometer", "A vertical U-tube manometer, gauge liquid below the working fluid; standard gravity until .at(latitude, elevation).")
-            .example("let g = u_tube(mercury()).at(53.4, 112.m);\nprint(g);")
+            .example("let g = u_tube(gauge_mercury()).at(53.4, 112.m);\nprint(g);")
             .source("hydrostatics: Δp = (ρ_m − ρ_f) g h"),
         move |l: GaugeLiquid| -> Res<Manometer> { lib(Manometer::new(ManometerKind::UTube, l, std_g)) },
     );
@@ -156,7 +167,7 @@ fn manometer_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         )
         .param("latitude_deg", "geodetic latitude, degrees")
         .param("elevation", "height above sea level, e.g. 112.m")
-        .example("print(u_tube(mercury()).at(53.4, 112.m).gravity);")
+        .example("print(u_tube(gauge_mercury()).at(53.4, 112.m).gravity);")
         .source("NIMA TR8350.2 (WGS 84) normal gravity; free-air gradient 3.086e-6 s⁻²"),
         |m: &mut Manometer, lat: Dynamic, h: Dynamic| -> Res<Manometer> {
             let g = lib(gravity::local(number(&lat, "latitude")?, length(&h, "elevation")?))?;
@@ -167,7 +178,7 @@ fn manometer_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "Manometer",
         "gravity",
         &Doc::new("gauge.gravity -> Quantity", "Gravity used by the manometer.")
-            .example("print(u_tube(mercury()).gravity);")
+            .example("print(u_tube(gauge_mercury()).gravity);")
             .source("standard gravity 9.80665 m/s² (CGPM 1901) or .at()"),
         |m: &mut Manometer| Q::si(m.gravity().si(), D::ACCELERATION),
     );
@@ -192,7 +203,7 @@ fn manometer_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .param("gauge_temperature", "temperature of the gauge liquid (quantity or column)")
             .param("fluid", "density of the fluid above the liquid (quantity, FluidState or column)")
             .returns("GaugeReading (scalar: .dp, .steps()) or a pressure Column")
-            .example("let g = u_tube(mercury());\nlet r = g.dp(85.mm, 18.degC, 999.kg_m3);\nprint(r.dp.to(\"kPa\"));\nprint(r.steps());")
+            .example("let g = u_tube(gauge_mercury());\nlet r = g.dp(85.mm, 18.degC, 999.kg_m3);\nprint(r.dp.to(\"kPa\"));\nprint(r.steps());")
             .source("hydrostatics; liquid densities as documented for each liquid"),
         |m: &mut Manometer, h: Dynamic, tg: Dynamic, f: Dynamic| -> Res<Dynamic> {
             let ha = arg_of(&h, D::LENGTH, "deflection")?;
@@ -248,7 +259,7 @@ fn readings(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "GaugeReading",
         "dp",
         &Doc::new("reading.dp -> Quantity", "The differential pressure.")
-            .example("print(u_tube(mercury()).dp(85.mm, 18.degC, 999.kg_m3).dp);")
+            .example("print(u_tube(gauge_mercury()).dp(85.mm, 18.degC, 999.kg_m3).dp);")
             .source("hydrostatics"),
         |g: &mut ManometerResult| Q::si(g.dp.si(), D::PRESSURE),
     );
@@ -256,7 +267,7 @@ fn readings(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "GaugeReading",
         "warnings",
         &Doc::new("reading.warnings -> array", "Remarks (liquid outside its data range, ...).")
-            .example("print(u_tube(mercury()).dp(85.mm, 18.degC, 999.kg_m3).warnings);")
+            .example("print(u_tube(gauge_mercury()).dp(85.mm, 18.degC, 999.kg_m3).warnings);")
             .source("the liquid's data range"),
         |g: &mut ManometerResult| warnings_of(&g.warnings),
     );
@@ -264,7 +275,7 @@ fn readings(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         "GaugeReading",
         "steps",
         &Doc::new("reading.steps() -> Steps", "How Δp was obtained, with substituted values.")
-            .example("print(u_tube(mercury()).dp(85.mm, 18.degC, 999.kg_m3).steps());")
+            .example("print(u_tube(gauge_mercury()).dp(85.mm, 18.degC, 999.kg_m3).steps());")
             .source("hydrostatics"),
         |g: &mut ManometerResult| g.steps(),
     );

@@ -27,7 +27,7 @@ fn steps(r: &mut Registrar<'_>) {
         "Steps",
         "append",
         &Doc::new("steps.append(other) -> Steps", "The steps followed by another set (e.g. Δp then velocity).")
-            .example("let r = u_tube(mercury()).dp(85.mm, 18.degC, 999.kg_m3);\nlet v = wall_tap_pitot(1.0).velocity(r.dp, 999.kg_m3);\nprint(r.steps().append(v.steps()));")
+            .example("let r = u_tube(gauge_mercury()).dp(85.mm, 18.degC, 999.kg_m3);\nlet v = wall_tap_pitot(1.0).velocity(r.dp, 999.kg_m3);\nprint(r.steps().append(v.steps()));")
             .source("common practice, no source"),
         |s: &mut Steps, o: Steps| {
             let mut out = s.clone();
