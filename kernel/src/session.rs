@@ -1641,7 +1641,10 @@ mod tests {
         assert_eq!(eval(&mut s, "round_duct(600.mm).area"), eval(&mut s, "round_section(600.mm).area"));
         eval(&mut s, "round_duct(500.mm); rect_duct(1.m, 2.m); humid_air_dew_point(9.degC)");
         eval(&mut s, "table_from(#{dp: [100.0, 121.0]}).unit(\"dp\", \"Pa\")[\"dp\"].sqrt_mean(\"Pa\")");
-        eval(&mut s, "table_from(#{a: [1.0]}).height + traverse_layout(round_section(1.m), #{points: 4}).count; mercury()");
+        eval(
+            &mut s,
+            "table_from(#{a: [1.0]}).height + traverse_layout(round_section(1.m), #{points: 4}).count; mercury()",
+        );
         assert_eq!(
             eval(&mut s, "table_from(#{a: [1.0, 2.0]}).len + traverse_layout(round_section(1.m), #{points: 4}).len"),
             "10"

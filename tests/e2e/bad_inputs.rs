@@ -51,7 +51,10 @@ const CASES: &[(&str, &[&str])] = &[
     ),
     (r##"gauge_mercury().density(20.m)"##, &[r##"temperature must be a temperature"##]),
     (r##"gauge_water().density(80.degC)"##, &[r##"80 °c"##, r##"0–40 °c"##, r##"iapws-if97"##]),
-    (r##"u_tube(gauge_mercury()).dp(5.Pa, 20.degC, 1.2.kg_m3)"##, &[r##"deflection must be a length"##, r##"pressure"##]),
+    (
+        r##"u_tube(gauge_mercury()).dp(5.Pa, 20.degC, 1.2.kg_m3)"##,
+        &[r##"deflection must be a length"##, r##"pressure"##],
+    ),
     (
         r##"u_tube(gauge_mercury()).dp(5.mm, 20.degC, 20000.kg_m3)"##,
         &[r##"must exceed the working fluid"##, r##"inverted u-tube"##],
