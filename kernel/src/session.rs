@@ -1643,7 +1643,7 @@ mod tests {
         eval(&mut s, "table_from(#{dp: [100.0, 121.0]}).unit(\"dp\", \"Pa\")[\"dp\"].sqrt_mean(\"Pa\")");
         eval(
             &mut s,
-            "table_from(#{a: [1.0]}).height + traverse_layout(round_section(1.m), #{points: 4}).count; mercury()",
+            "table_from(#{a: [1.0]}).height + traverse_layout(round_section(1.m), #{points: 4}).count; mercury(); u_tube(gauge_water()).at(52.0, 10.m)",
         );
         assert_eq!(
             eval(&mut s, "table_from(#{a: [1.0, 2.0]}).len + traverse_layout(round_section(1.m), #{points: 4}).len"),

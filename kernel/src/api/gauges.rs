@@ -100,12 +100,12 @@ fn liquids(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     );
 }
 
-/// The manometer arrangements (standard gravity until `.at(...)`).
+/// The manometer arrangements (standard gravity until `.at_site(...)`).
 fn manometers(r: &mut Registrar<'_>) {
     let std_g = gravity::standard();
     r.func(
         "u_tube",
-        &Doc::new("u_tube(liquid) -> Manometer", "A vertical U-tube manometer, gauge liquid below the working fluid; standard gravity until .at(latitude, elevation).")
+        &Doc::new("u_tube(liquid) -> Manometer", "A vertical U-tube manometer, gauge liquid below the working fluid; standard gravity until .at_site(latitude, elevation).")
             .example("let g = u_tube(gauge_mercury()).at(53.4, 112.m);\nprint(g);")
             .source("hydrostatics: Δp = (ρ_m − ρ_f) g h"),
         move |l: GaugeLiquid| -> Res<Manometer> { lib(Manometer::new(ManometerKind::UTube, l, std_g)) },
@@ -160,16 +160,32 @@ fn manometers(r: &mut Registrar<'_>) {
 fn manometer_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.method(
         "Manometer",
-        "at",
+        "at_site",
         &Doc::new(
-            "gauge.at(latitude_deg, elevation) -> Manometer",
+            "gauge.at_site(latitude_deg, elevation) -> Manometer",
             "The same manometer with local gravity for the site (WGS 84 normal gravity with the free-air correction).",
         )
         .param("latitude_deg", "geodetic latitude, degrees")
         .param("elevation", "height above sea level, e.g. 112.m")
-        .example("print(u_tube(gauge_mercury()).at(53.4, 112.m).gravity);")
+        .example("print(u_tube(gauge_mercury()).at_site(53.4, 112.m).gravity);")
         .source("NIMA TR8350.2 (WGS 84) normal gravity; free-air gradient 3.086e-6 s⁻²"),
         |m: &mut Manometer, lat: Dynamic, h: Dynamic| -> Res<Manometer> {
+            let g = lib(gravity::local(number(&lat, "latitude")?, length(&h, "elevation")?))?;
+            lib(Manometer::new(m.kind().clone(), m.liquid().clone(), g))
+        },
+    );
+    let p = prefs.clone();
+    r.method(
+        "Manometer",
+        "at",
+        &Doc::new(
+            "gauge.at(latitude_deg, elevation) -> Manometer",
+            "Deprecated spelling of gauge.at_site(latitude_deg, elevation) (column.at(row) reads a row); works for this release, with a warning.",
+        )
+        .example("print(u_tube(gauge_mercury()).at_site(53.4, 112.m).gravity);")
+        .source("NIMA TR8350.2 (WGS 84) normal gravity; free-air gradient 3.086e-6 s⁻²"),
+        move |m: &mut Manometer, lat: Dynamic, h: Dynamic| -> Res<Manometer> {
+            super::warn_once(&p, "gauge.at(latitude, elevation) is deprecated and will be removed in the next release; write gauge.at_site(latitude, elevation)");
             let g = lib(gravity::local(number(&lat, "latitude")?, length(&h, "elevation")?))?;
             lib(Manometer::new(m.kind().clone(), m.liquid().clone(), g))
         },
