@@ -1415,7 +1415,7 @@ mod tests {
         // 0.998·√(2·118/1.2) = 13.9957 m/s (ISO 3966 velocity equation, hand calculation)
         assert!(steps.contains("13.9957 m/s"), "{steps}");
         // Mean of the measured diameters 600.5 and 599.5 mm = 600 mm: A = π·0.3² = 0.282743 m².
-        assert!(eval(&mut s, "s.section(\"ahu2-supply\")").contains("0.282743 m²"));
+        assert!(eval(&mut s, "s.section(\"ahu2-supply\")").contains("A = 0.2827 m²"));
         // The campaign's spec reduces a traverse with the file's probe and gauge.
         let t = "table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [600.0, 600.0, 600.0, 600.0]}).units(#{h: \"mm\", t: \"degC\", d: \"mm\"})";
         let v = eval(

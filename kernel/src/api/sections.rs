@@ -90,7 +90,10 @@ fn conduits(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     );
     let p = prefs.clone();
     r.engine.register_fn("to_string", move |c: &mut Conduit| {
-        format!("Conduit: {c}, A = {}", show_q(c.area().si(), D::AREA, &p))
+        // The area once, in the session's display unit for areas.
+        let text = c.to_string();
+        let head = text.split(", A = ").next().unwrap_or(&text);
+        format!("Conduit: {head}, A = {}", show_q_sig(c.area().si(), D::AREA, &p, 4))
     });
     r.property(
         "Conduit",

@@ -173,7 +173,8 @@ impl fmt::Display for Conduit {
                 format_number(height.si() * 1e3)
             )?,
         }
-        write!(f, ", A = {} m²", format_number(self.area().si()))
+        // Four significant figures: the diameter is rarely known better than 0.1 %.
+        write!(f, ", A = {} m²", crate::units::quantity::format_sig(self.area().si(), 4))
     }
 }
 
