@@ -59,14 +59,19 @@ def render(browser, path, shot):
     return text, sizes, errors
 
 
-def test_run_report_renders_with_results_charts_and_cautions(browser, tmp_path):
+def run_report(script, tmp_path):
+    """`stagna run scripts/SCRIPT.rhai --report report.html`; the report's path."""
     out = tmp_path / "out"
     r = subprocess.run(
-        [stagna_bin(), "run", str(ROOT / "scripts" / "demo.rhai"), "-o", str(out), "--report", "demo-report.html"],
+        [stagna_bin(), "run", str(ROOT / "scripts" / f"{script}.rhai"), "-o", str(out), "--report", "report.html"],
         capture_output=True, text=True, timeout=300,
     )
     assert r.returncode == 0, r.stderr
-    text, sizes, errors = render(browser, out / "demo-report.html", "demo-report.png")
+    return out / "report.html"
+
+
+def test_run_report_renders_with_results_charts_and_cautions(browser, tmp_path):
+    text, sizes, errors = render(browser, run_report("demo", tmp_path), "demo-report.png")
     assert not errors, errors
     # Key results as the terminal prints them (values checked against CoolProp and iapws in
     # the end-to-end demo test): the duct's flow, the budget line per GUM 7.2.6, the main.
@@ -81,13 +86,7 @@ def test_run_report_renders_with_results_charts_and_cautions(browser, tmp_path):
 
 
 def test_stack_run_sheets_render(browser, tmp_path):
-    out = tmp_path / "out"
-    r = subprocess.run(
-        [stagna_bin(), "run", str(ROOT / "scripts" / "stack-s-type.rhai"), "-o", str(out), "--report", "stack.html"],
-        capture_output=True, text=True, timeout=300,
-    )
-    assert r.returncode == 0, r.stderr
-    text, _, errors = render(browser, out / "stack.html", "stack-report.png")
+    text, _, errors = render(browser, run_report("stack-s-type", tmp_path), "stack-report.png")
     assert not errors, errors
     assert "Stack run R2" in text and "all method checks passed: true" in text
     assert "from memory, unverified" in text, "unverified limits say so in the report too"
