@@ -1037,7 +1037,10 @@ fn esc(s: &str) -> String {
 }
 
 fn budget_html(b: &api::uncertainty::Budget) -> String {
-    format!("<p>output in {}</p>\n{}", esc(b.unit), b.g.to_html())
+    let html = b.g.to_html();
+    let plain = format!("<p>{}</p>", esc(&b.g.result_line()));
+    let with_unit = format!("<p>{}</p>", esc(&b.g.result_line_in(b.unit)));
+    format!("<p>output in {}</p>\n{}", esc(b.unit), html.replace(&plain, &with_unit))
 }
 
 #[cfg(test)]

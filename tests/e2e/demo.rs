@@ -97,8 +97,8 @@ fn demo_prints_results_with_units_and_cautions() {
     // GUM 7.2.6: u_c and U to two significant figures, y to the same last digit.
     let y = out.lines().find(|l| l.starts_with("y = ")).expect("result line");
     assert!(
-        y.starts_with("y = 3.742, u_c = 0.038 (standard, k = 1;")
-            && y.contains("U = 0.074 (expanded, k = 1.96, 95 % coverage)"),
+        y.starts_with("y = 3.742 m³/s, u_c = 0.038 m³/s (standard, k = 1;")
+            && y.contains("U = 0.074 m³/s (expanded, k = 1.96, 95 % coverage)"),
         "{y}"
     );
     assert!(out.contains("Monte Carlo (JCGM 101, 200000 trials)"), "{out}");

@@ -32,16 +32,16 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_fn("to_string", move |f: &mut FlowResult| {
         let mut s = format!(
             "Flow: mean velocity {}, Q = {}, ṁ = {}",
-            show_q(f.mean_velocity.si(), D::VELOCITY, &p),
-            show_q(f.volume_flow.si(), D::VOLUME_FLOW, &p),
-            show_q(f.mass_flow.si(), D::MASS_FLOW, &p)
+            show_q_sig(f.mean_velocity.si(), D::VELOCITY, &p, 4),
+            show_q_sig(f.volume_flow.si(), D::VOLUME_FLOW, &p, 4),
+            show_q_sig(f.mass_flow.si(), D::MASS_FLOW, &p, 4)
         );
         let at = f.reference.map(|r| r.label()).unwrap_or_default();
         if let Some(q) = f.reference_flow {
-            s.push_str(&format!(", Q at {at} = {}", show_q(q.si(), D::VOLUME_FLOW, &p)));
+            s.push_str(&format!(", Q at {at} = {}", show_q_sig(q.si(), D::VOLUME_FLOW, &p, 4)));
         }
         if let Some(q) = f.dry_reference_flow {
-            s.push_str(&format!(", dry Q at {at} = {}", show_q(q.si(), D::VOLUME_FLOW, &p)));
+            s.push_str(&format!(", dry Q at {at} = {}", show_q_sig(q.si(), D::VOLUME_FLOW, &p, 4)));
         }
         s
     });

@@ -126,7 +126,12 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             Ok(Budget { g, model: t, unit: if velocity { "m/s" } else { "m³/s" } })
         },
     );
-    r.engine.register_fn("to_string", |b: &mut Budget| format!("Budget (output in {}):\n{}", b.unit, b.g));
+    r.engine.register_fn("to_string", |b: &mut Budget| {
+        // The table, then the result line with the output's unit.
+        let text = b.g.to_string();
+        let table = text.trim_end().rsplit_once('\n').map_or(text.as_str(), |(t, _)| t);
+        format!("Budget (output in {}):\n{table}\n{}", b.unit, b.g.result_line_in(b.unit))
+    });
     for (name, summary) in [
         ("value", "The output estimate y (SI: m³/s or m/s)."),
         ("u", "Combined standard uncertainty u_c(y) (k = 1), absolute, SI."),

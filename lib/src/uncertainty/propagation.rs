@@ -543,12 +543,19 @@ impl GumResult {
     /// The result line: y with u_c (standard, k = 1) and U (expanded, with its k and
     /// coverage), rounded per GUM 7.2.6.
     pub fn result_line(&self) -> String {
+        self.result_line_in("")
+    }
+
+    /// [`GumResult::result_line`] with the output's unit after y, u_c and U
+    /// (e.g. "m³/s"; empty for none).
+    pub fn result_line_in(&self, unit: &str) -> String {
         use crate::units::quantity::{format_sig, format_with_uncertainty};
+        let unit = if unit.is_empty() { String::new() } else { format!(" {unit}") };
         let dof = if self.dof.is_finite() { format!("{:.1}", self.dof) } else { "∞".into() };
         let (y, u) = format_with_uncertainty(self.value, self.u);
         let (_, big_u) = format_with_uncertainty(self.value, self.expanded);
         format!(
-            "y = {y}, u_c = {u} (standard, k = 1; {} % of y), ν_eff = {dof}; U = {big_u} (expanded, k = {:.2}, {:.0} % coverage)",
+            "y = {y}{unit}, u_c = {u}{unit} (standard, k = 1; {} % of y), ν_eff = {dof}; U = {big_u}{unit} (expanded, k = {:.2}, {:.0} % coverage)",
             format_sig(self.u / self.value.abs() * 100.0, 2),
             self.k,
             self.coverage * 100.0,
