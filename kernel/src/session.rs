@@ -467,12 +467,13 @@ impl Session {
 
     /// Writes the session's report (everything shown so far) as one HTML page.
     pub fn report_html(&self, title: &str, script: Option<&str>) -> String {
+        // Rendered under the lock: the record (up to 64 MB) is not copied.
         let rec = api::prefs(&self.prefs).record;
-        let r = match rec.lock() {
-            Ok(g) => g.clone(),
-            Err(e) => e.into_inner().clone(),
+        let guard = match rec.lock() {
+            Ok(g) => g,
+            Err(e) => e.into_inner(),
         };
-        crate::report::html(&r, title, script)
+        crate::report::html(&guard, title, script)
     }
 
     /// How `input(prompt)` is answered; none by default (an error in scripts).

@@ -26,10 +26,10 @@ fn write(p: &SharedPrefs, path: &str, title: &str) -> Res<()> {
     }
     let target = super::tables::out_path(p, path)?;
     let rec = super::prefs(p).record;
-    let r = match rec.lock() {
-        Ok(g) => g.clone(),
-        Err(e) => e.into_inner().clone(),
+    // Rendered under the lock: the record (up to 64 MB) is not copied.
+    let html = match rec.lock() {
+        Ok(g) => crate::report::html(&g, title, None),
+        Err(e) => crate::report::html(&e.into_inner(), title, None),
     };
-    let html = crate::report::html(&r, title, None);
     lib(stagna::io::table::write_atomically(&target, |f| std::io::Write::write_all(f, html.as_bytes())))
 }

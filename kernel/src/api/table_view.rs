@@ -230,7 +230,9 @@ mod tests {
         assert_eq!(lines[0], "3 rows × 4 columns");
         assert_eq!(lines[1], "point     dp  velocity  site");
         assert_eq!(lines[2], "        [Pa]     [m/s]");
-        // 4 significant figures of the largest value: 111.8 → one decimal; 12.97 → two.
+        // Rounding by hand (common practice, no source): 4 significant figures of each
+        // column's largest value, 111.771041 → 111.8 (one decimal), so 83.828235 → 83.8;
+        // 12.971396 → 12.97 (two decimals), so 11.760202 → 11.76 and −0.00001 → 0.00.
         assert_eq!(lines[4], "    1   83.8     11.76  a");
         assert_eq!(lines[6], "    3  111.8      0.00  c", "no -0.00");
         assert!(!s.contains("f64") && !s.contains("---"), "{s}");
@@ -243,6 +245,7 @@ mod tests {
         ])
         .unwrap();
         let t = tbl(df, &[]);
+        // 100 rows shown as the first 5 and the last 5 (rows: 10, TAIL = 5): 90 hidden.
         let s = text(&t, &TableView { digits: 3, rows: 10 });
         assert!(s.contains("90 of 100 rows not shown"), "{s}");
         assert!(s.contains("\n  …\n") || s.contains("…"), "{s}");
@@ -251,9 +254,11 @@ mod tests {
                 && s.lines().any(|l| l.trim() == "4")
                 && !s.lines().any(|l| l.trim() == "5")
         );
+        // HTML: one header row, 10 data rows and one gap row.
         let h = html(&t, &TableView { digits: 3, rows: 10 });
         assert!(h.contains("90 of 100 rows not shown") && h.matches("<tr>").count() == 12, "{h}");
-        // Very large and very small magnitudes in scientific notation.
+        // Very large and very small magnitudes in scientific notation: 8.224e9 at 4 figures
+        // is Rust's `{:.3e}` of the value (common practice, no source).
         let df = DataFrame::new_infer_height(vec![Series::new("re".into(), [8.224e9, 1.0e9]).into()]).unwrap();
         assert!(text(&tbl(df, &[]), &TableView::default()).contains("8.224e9"));
     }
