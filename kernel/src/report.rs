@@ -68,21 +68,24 @@ fn without_png(b: &Bundle) -> Bundle {
     Bundle { png: None, ..b.clone() }
 }
 
-fn esc(s: &str) -> String {
-    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
-}
+use crate::api::table_view::esc;
 
 const STYLE: &str = "\
 body{font-family:'DejaVu Sans',Verdana,sans-serif;margin:2em auto;max-width:62em;padding:0 1em;color:#1a1a1a;line-height:1.35}
 header{border-bottom:2px solid #145aa0;margin-bottom:1.2em}
 h1{font-size:1.5em;margin:0 0 .3em 0}
 .meta{color:#555;font-size:.9em;margin:.2em 0 .8em 0}
-pre{font-family:'DejaVu Sans Mono',Menlo,Consolas,monospace;font-size:.82em;background:#f6f7f9;border:1px solid #e1e4e8;padding:.6em .8em;overflow-x:auto;white-space:pre}
+pre{font-family:'DejaVu Sans Mono',Menlo,Consolas,monospace;font-size:.82em;background:#f6f7f9;border:1px solid #e1e4e8;padding:.6em .8em;white-space:pre-wrap;overflow-wrap:anywhere}
 pre.warning{background:#fff8e6;border-color:#e8c66b}
 table.stagna-table{border-collapse:collapse;font-size:.85em;margin:.6em 0}
 table.stagna-table th,table.stagna-table td{border:1px solid #d0d4da;padding:.2em .5em}
 table.stagna-table th{background:#eef2f7}
 .unit{color:#555;font-weight:normal}
+table.stagna-steps{border-collapse:collapse;font-size:.9em;margin:.6em 0}
+table.stagna-steps th,table.stagna-steps td{border:1px solid #d0d4da;padding:.3em .5em;vertical-align:top;text-align:left}
+table.stagna-steps th{background:#eef2f7}
+table.stagna-steps td:last-child{min-width:12em}
+math{font-size:1.15em}
 figure{margin:.8em 0;page-break-inside:avoid}
 figure svg{max-width:100%;height:auto}
 .caution{border:2px solid #b3261e;background:#fdf0ef;padding:.6em .9em;margin-top:1.5em}
@@ -144,7 +147,7 @@ pub fn html(record: &Record, title: &str, script: Option<&str>) -> String {
     }
     let _ = writeln!(
         h,
-        "</main>\n<div class=\"caution\"><b>Caution.</b> {}</div>\n<footer>Print to PDF from the browser for the record. The worked steps are plain text with Unicode symbols, so the page needs no network.</footer>\n</body>\n</html>",
+        "</main>\n<div class=\"caution\"><b>Caution.</b> {}</div>\n<footer>Print to PDF from the browser for the record. Formulas are MathML, drawn by the browser itself, so the page needs no network.</footer>\n</body>\n</html>",
         esc(crate::demo::CAUTION.trim_start_matches("Caution: ")).replace('\n', " ")
     );
     h

@@ -312,6 +312,7 @@ pub fn bundle_for(v: &Dynamic, text: String, prefs: &SharedPrefs) -> Bundle {
         b.png = p.png().ok();
     } else if let Some(s) = v.clone().try_cast::<stagna::Steps>() {
         b.latex = Some(format!("$$\n{}\n$$", s.to_latex()));
+        b.html = Some(api::steps::html(&s));
     } else if let Some(t) = v.clone().try_cast::<api::tables::Tbl>() {
         b.html = Some(api::table_view::html(&t, &api::prefs(prefs).table));
     } else if let Some(bud) = v.clone().try_cast::<api::uncertainty::Budget>() {
@@ -555,7 +556,10 @@ impl Session {
 
     /// A value as text, through its registered `to_string`.
     pub fn display(&self, v: &Dynamic) -> String {
-        if v.is_string() || v.is_int() || v.is_float() || v.is_bool() || v.is_char() {
+        if let Some(x) = v.clone().try_cast::<f64>() {
+            return api::float_text(x);
+        }
+        if v.is_string() || v.is_int() || v.is_bool() || v.is_char() {
             return v.to_string();
         }
         let mut scope = Scope::new();
@@ -1033,11 +1037,8 @@ fn register_help(r: &mut Registrar<'_>) {
     );
 }
 
-fn esc(s: &str) -> String {
-    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;")
-}
-
 fn budget_html(b: &api::uncertainty::Budget) -> String {
+    use api::table_view::esc;
     let html = b.g.to_html();
     let plain = format!("<p>{}</p>", esc(&b.g.result_line()));
     let with_unit = format!("<p>{}</p>", esc(&b.g.result_line_in(b.unit)));
@@ -1071,8 +1072,8 @@ mod tests {
             if name.is_empty() || !name.chars().next().is_some_and(|c| c.is_alphabetic() || c == '_') {
                 continue; // operators
             }
-            if matches!(name, "to_string" | "to_debug") || name.starts_with("index$") {
-                continue; // display hooks and the table indexer
+            if matches!(name, "to_string" | "to_debug" | "print" | "debug") || name.starts_with("index$") {
+                continue; // display hooks (numbers to ten figures) and the table indexer
             }
             if matches!(name, "push" | "append" | "insert" | "pad") {
                 continue; // the language's own array functions, shadowed only for the length limit
@@ -1126,9 +1127,14 @@ mod tests {
     fn quantities_have_units_dimensions_and_conversions() {
         let mut s = Session::new();
         assert_eq!(eval(&mut s, "64.mm"), "64 mm");
-        assert_eq!(eval(&mut s, "91.7.mm + 1.m"), "1091.7 mm");
+        // Four significant figures by default, settable; the value keeps every digit.
+        assert_eq!(eval(&mut s, "91.7.mm + 1.m"), "1092 mm");
+        assert_eq!(eval(&mut s, "display_figures(6); 91.7.mm + 1.m"), "1091.7 mm");
+        assert_eq!(eval(&mut s, "display_figures()"), "6");
+        assert!(err(&mut s, "display_figures(0)").message.contains("1 to 15"));
+        assert_eq!(eval(&mut s, "display_figures(4); (91.7.mm + 1.m).value_in(\"mm\")"), "1091.7");
         // 3 inH2O@60F = 3 × 248.84 Pa (NIST SP 811 B.8)
-        assert_eq!(eval(&mut s, "qty(\"3 inH2O@60F\").to(\"Pa\")"), "746.52 Pa");
+        assert_eq!(eval(&mut s, "qty(\"3 inH2O@60F\").to(\"Pa\")"), "746.5 Pa");
         assert_eq!(eval(&mut s, "20.degC.to(\"degF\")"), "68 °F"); // by definition of the scales
         assert_eq!(eval(&mut s, "1.2.kPa > 1000.Pa"), "true");
         let e = err(&mut s, "1.m + 2.Pa");
@@ -1137,20 +1143,20 @@ mod tests {
         let e = err(&mut s, "water().density(101, 20.degC)");
         assert!(e.message.contains("write e.g. 101.Pa"), "{e:?}");
         eval(&mut s, "display_units(\"US\")");
-        // √(2·50/1.2) = 9.12871 m/s = 29.9498 ft/s (1 ft = 0.3048 m exactly, NIST SP 811 B.8)
+        // √(2·50/1.2) = 9.12871 m/s = 29.9498 ft/s, shown as 29.95 (1 ft = 0.3048 m exactly, NIST SP 811 B.8)
         let v = eval(&mut s, "pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).velocity");
-        assert_eq!(v, "29.9498 ft/s");
+        assert_eq!(v, "29.95 ft/s");
         assert_eq!(eval(&mut s, "100.Pa"), "100 Pa", "an explicit unit is kept");
         // Per-dimension choices over the system, as test-and-balance practice reports air:
         // 2 m³/s = 4237.76 ft³/min and 5 m/s = 984.252 ft/min (1 ft = 0.3048 m exactly,
         // NIST SP 811 B.8); 2 m³/s = 7200 m³/h.
         eval(&mut s, "display_units(\"US\", [\"ft/min\", \"ft3/min\"])");
-        assert_eq!(eval(&mut s, "2.m3_s * 1.m / 1.m"), "4237.76 ft³/min");
-        assert_eq!(eval(&mut s, "10.m / 2.s"), "984.252 ft/min");
-        // 1000 Pa / 248.84 Pa per inH₂O (60 °F) (NIST SP 811 B.8) = 4.01865
+        assert_eq!(eval(&mut s, "2.m3_s * 1.m / 1.m"), "4238 ft³/min");
+        assert_eq!(eval(&mut s, "10.m / 2.s"), "984.3 ft/min");
+        // 1000 Pa / 248.84 Pa per inH₂O (60 °F) (NIST SP 811 B.8) = 4.01865, shown to four figures
         assert_eq!(
             eval(&mut s, "1000.Pa * 1.m / 1.m"),
-            "4.01865 inH₂O (60 °F)",
+            "4.019 inH₂O (60 °F)",
             "the system serves the other dimensions"
         );
         eval(&mut s, "display_units(\"SI\", [\"m3/h\"])");
@@ -1682,7 +1688,8 @@ mod tests {
                 let v = eval(&mut s, &format!("(2.{sp}).si"));
                 let want = stagna::Quantity::parse(&format!("2 {}", u.names[0])).map(|q| q.si).unwrap_or(f64::NAN);
                 let got: f64 = v.parse().unwrap_or(f64::NAN);
-                assert!((got - want).abs() <= 1e-12 * want.abs().max(1.0), "2.{sp}: {got} vs {want}");
+                // Printed to ten significant figures (`float_text`).
+                assert!((got - want).abs() <= 1e-9 * want.abs().max(1.0), "2.{sp}: {got} vs {want}");
             }
         }
     }
@@ -1702,5 +1709,29 @@ mod tests {
         );
         let o = s.eval("pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).steps()").unwrap();
         assert!(o.value.unwrap().latex.unwrap().contains("\\sqrt"));
+    }
+
+    /// Every formula the library writes into worked steps reads as MathML: no step falls
+    /// back to plain text (the fallback keeps a step, but a report should not need it).
+    #[test]
+    fn every_step_formula_renders_as_mathml() {
+        let mut s = Session::new();
+        let cases = [
+            "u_tube(gauge_mercury()).dp(85.mm, 18.degC, 999.kg_m3).steps()",
+            "inverted_u_tube(gauge_liquid(\"air\", 1.2.kg_m3, 20.degC, 0.0034)).dp(85.mm, 18.degC, 999.kg_m3).steps()",
+            "inclined_gauge(gauge_liquid(\"oil\", 826.kg_m3, 20.degC, 7.5e-4), 20, 0.0036).dp(42.mm, 21.degC, 1.19.kg_m3).steps()",
+            "well_gauge(gauge_water(), 0.01).dp(100.mm, 20.degC, 1.2.kg_m3).steps()",
+            "two_liquid_gauge(gauge_water(), gauge_liquid(\"kerosene\", 790.kg_m3, 20.degC, 9.9e-4), 0.01).dp(60.mm, 20.degC, 1.2.kg_m3).steps()",
+            "pitot_static(1.0).velocity(50.Pa, 1.2.kg_m3).steps()",
+            "pitot_static(1.0).velocity(9.kPa, humid_air(0.5).state(101.kPa, 20.degC)).steps()",
+            "humid_air(0.5).state(101.kPa, 20.degC).steps()",
+        ];
+        for src in cases {
+            let b = s.eval(src).unwrap_or_else(|e| panic!("{src}: {e:?}")).value.expect("a value");
+            let html = b.html.expect("steps carry HTML");
+            let steps = html.matches("<tr><td>").count();
+            assert!(steps > 0, "{src}");
+            assert_eq!(html.matches("<math").count(), 2 * steps, "{src}: a formula fell back to text\n{html}");
+        }
     }
 }

@@ -101,7 +101,23 @@ fn demo_prints_results_with_units_and_cautions() {
             && y.contains("U = 0.074 m³/s (expanded, k = 1.96, 95 % coverage)"),
         "{y}"
     );
-    assert!(out.contains("Monte Carlo (JCGM 101, 200000 trials)"), "{out}");
+    // The adaptive Monte Carlo (JCGM 101 §7.9) stabilised, and its verdict agrees with its
+    // own numbers: the ends' differences against δ = 0.0005 m³/s (2 digits of u = 0.038).
+    let mc = out.lines().find(|l| l.starts_with("Monte Carlo (JCGM 101:2008)")).expect("Monte Carlo line");
+    assert!(mc.contains("adaptive procedure (§7.9), stable at 2 significant digits of u"), "{mc}");
+    let verdict = out.lines().find(|l| l.trim_start().starts_with("Verdict:")).expect("verdict");
+    assert!(verdict.contains("δ = 0.0005 m³/s"), "{verdict}");
+    let validated = verdict.contains("report y ± U");
+    assert!(validated || verdict.contains("report the Monte Carlo interval"), "{verdict}");
+    // The decimals in the verdict are δ and the two ends' differences.
+    let decimals: Vec<f64> = verdict
+        .split(|c: char| !(c.is_ascii_digit() || c == '.'))
+        .filter(|x| x.contains('.'))
+        .filter_map(|x| x.trim_end_matches('.').parse().ok())
+        .collect();
+    let diffs: Vec<f64> = decimals.iter().copied().filter(|&d| d != 0.0005).collect();
+    assert_eq!(diffs.len(), 2, "{verdict}");
+    assert_eq!(validated, diffs.iter().all(|&d| d <= 0.0005), "{verdict}");
     let ll = out.lines().find(|l| l.contains("log law, κ = 0.41")).expect("log-law line");
     let f = number_after(ll, "f =");
     assert!((number_after(ll, "U/U_c =") - 1.0 / (1.0 + 1.5 / 0.41 * (f / 8.0).sqrt())).abs() < 1e-4, "{ll}");

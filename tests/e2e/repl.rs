@@ -25,8 +25,8 @@ fn piped_input_is_evaluated_in_order_with_state_kept() {
     let (ok, out, err) =
         piped("let d = round_section(\n    600.mm\n);\nd.area\nfn twice(x) { x * 2 }\ntwice(d.area)\nhelp water\n");
     assert!(ok, "{err}");
-    // A = π·0.3² = 0.282743 m²
-    assert!(out.contains("0.282743 m²") && out.contains("0.565487 m²"), "{out}");
+    // A = π·0.3² = 0.282743 m², shown to the default four significant figures.
+    assert!(out.contains("0.2827 m²") && out.contains("0.5655 m²"), "{out}");
     assert!(out.contains("IAPWS"), "help output: {out}");
 }
 
@@ -82,7 +82,8 @@ sys.stdout.write(buf.decode("utf-8", "replace"))
         .output()
         .expect("python3 runs");
     let out = String::from_utf8_lossy(&o.stdout);
-    // √(2·50/1.2) = 9.12871 m/s; the completion turned `v.veloc` into `v.velocity`.
-    assert!(out.contains("9.12871 m/s"), "terminal output:\n{out}");
+    // √(2·50/1.2) = 9.12871 m/s, shown to four figures; the completion turned `v.veloc`
+    // into `v.velocity`.
+    assert!(out.contains("9.129 m/s"), "terminal output:\n{out}");
     assert!(std::fs::read_to_string(&hist).unwrap_or_default().contains("pitot_static"), "history file written");
 }

@@ -39,7 +39,8 @@ def browser():
 
 def render(browser, path, shot):
     """Loads a local page; returns its visible text, the sizes of its SVG drawings and the
-    console errors, and saves a full-page screenshot."""
+    console errors, and saves a full-page screenshot. `page.maths` (set on the function)
+    holds the sizes of the MathML formulas drawn."""
     page = browser.new_page(viewport={"width": 1100, "height": 900})
     errors = []
     page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
@@ -53,6 +54,8 @@ def render(browser, path, shot):
         "els => els.map(e => { const r = e.getBoundingClientRect();"
         " return (e.tagName === 'IMG' && !(e.complete && e.naturalWidth > 0)) ? [0, 0] : [r.width, r.height]; })",
     )
+    render.maths = page.eval_on_selector_all(
+        "math", "els => els.map(e => { const r = e.getBoundingClientRect(); return [r.width, r.height]; })")
     SHOTS.mkdir(parents=True, exist_ok=True)
     page.screenshot(path=str(SHOTS / shot), full_page=True)
     page.close()
@@ -83,6 +86,10 @@ def test_run_report_renders_with_results_charts_and_cautions(browser, tmp_path):
     assert re.search(r"velocity\s*\[m/s\]", text)
     # The budget chart is drawn with a size.
     assert sizes and all(w > 100 and h > 100 for w, h in sizes), sizes
+    # The worked steps' formulas are MathML drawn by the browser itself (no network):
+    # two per step (formula, values), each with a size.
+    assert len(render.maths) >= 4 and all(w > 20 and h > 8 for w, h in render.maths), render.maths
+    assert "ISO 3966" in text and "Δp = (ρ_m − ρ_f)" not in text, "formulas drawn, not printed as text"
 
 
 def test_stack_run_sheets_render(browser, tmp_path):

@@ -75,7 +75,14 @@ pub struct DisplayUnits {
     pub system: UnitSystem,
     /// Units chosen per dimension (and absolute temperature or difference), over the system.
     pub chosen: Vec<(Dimension, bool, Arc<str>)>,
+    /// Significant figures a quantity is shown to (`None`: [`DEFAULT_FIGURES`]).
+    pub figures: Option<u32>,
 }
+
+/// Significant figures of a shown quantity unless a script sets others: four, as a
+/// measured flow quantity is rarely known to better than 0.1 %, and the value itself
+/// keeps every digit (common practice, no source).
+pub const DEFAULT_FIGURES: u32 = 4;
 
 impl DisplayUnits {
     /// SI without choices.
@@ -90,6 +97,10 @@ impl DisplayUnits {
             .find(|(cd, ca, _)| *cd == d && *ca == abs)
             .map(|(_, _, u)| &**u)
             .or_else(|| preferred_unit(d, absolute_temperature, self.system))
+    }
+    /// Significant figures quantities are shown to.
+    pub fn figures(&self) -> u32 {
+        self.figures.unwrap_or(DEFAULT_FIGURES)
     }
     /// Chooses `unit` for its own dimension (replacing an earlier choice).
     pub fn choose(&mut self, unit: &str) -> stagna::Result<()> {
@@ -294,11 +305,18 @@ impl Q {
         Ok(Q { q: Quantity::new(value, unit)?, unit: Some(unit.into()) })
     }
     /// Text in the display unit (explicit, else the session's preference, else SI).
+    /// The number has the session's significant figures ([`DisplayUnits::figures`]).
     pub fn show(&self, display: &DisplayUnits) -> String {
+        use stagna::units::quantity::format_figures;
+        let n = display.figures();
         let unit = self.unit.as_deref().or_else(|| display.unit_for(self.q.dimension, self.q.absolute_temperature));
-        match unit.map(|u| self.q.display_in(u)) {
-            Some(Ok(s)) => pretty_unit(&s),
-            _ => pretty_unit(&self.q.to_string()),
+        match unit.map(|u| self.q.value_in(u).map(|v| (v, u))) {
+            Some(Ok((v, u))) => pretty_unit(&format!("{} {}", format_figures(v, n), u.trim())),
+            _ => {
+                let sym = self.q.si_symbol();
+                let v = format_figures(self.q.si, n);
+                pretty_unit(&if sym.is_empty() { v } else { format!("{v} {sym}") })
+            }
         }
     }
 
@@ -315,6 +333,13 @@ impl Q {
             }
         }
     }
+}
+
+/// A bare number as scripts print it: ten significant figures at most, trailing zeros
+/// dropped, so that binary rounding (0.1 + 0.2 = 0.30000000000000004) never reaches a
+/// screen while every figure a measurement can carry does. Values keep every digit.
+pub fn float_text(x: f64) -> String {
+    stagna::units::quantity::format_figures(x, 10)
 }
 
 /// Typographic unit symbols for display (°C, m³/s, Pa·s).

@@ -137,6 +137,12 @@ fn cmp(a: &Q, b: &Q) -> Res<std::cmp::Ordering> {
 /// Registers quantities.
 pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Q>("Quantity");
+    // Bare numbers print to ten significant figures (see `float_text`), in print, in
+    // `${...}` and inside arrays and maps alike.
+    r.engine.register_fn("to_string", |x: f64| super::float_text(x));
+    r.engine.register_fn("to_debug", |x: f64| super::float_text(x));
+    r.engine.register_fn("print", |x: f64| super::float_text(x));
+    r.engine.register_fn("debug", |x: f64| super::float_text(x));
     r.group("Quantities and units");
     units_and_qty(r);
     display(r, prefs);
@@ -221,18 +227,19 @@ fn display(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     )
     .param("system", "\"SI\" or \"US\"")
     .param("units", "array of unit texts, one per dimension")
-    .example("let flow = 5.m_s * 0.4.m2;         // a computed value follows the session\ndisplay_units(\"US\", [\"ft/min\", \"ft3/min\"]);\nprint(flow);                          // 4237.76 ft³/min\nprint(flow / 0.4.m2);                 // 984.252 ft/min\ndisplay_units(\"SI\", [\"m3/h\"]);\nprint(flow);                          // 7200 m³/h\nprint(display_units());\ndisplay_units(\"SI\");")
+    .example("let flow = 5.m_s * 0.4.m2;         // a computed value follows the session\ndisplay_units(\"US\", [\"ft/min\", \"ft3/min\"]);\nprint(flow);                          // 4238 ft³/min\nprint(flow / 0.4.m2);                 // 984.3 ft/min\ndisplay_units(\"SI\", [\"m3/h\"]);\nprint(flow);                          // 7200 m³/h\nprint(display_units());\ndisplay_units(\"SI\");")
     .source("unit factors: NIST SP 811 (2008) Appendix B.8");
     let p = prefs.clone();
     r.func("display_units", &doc, move |s: &str| -> Res<Map> {
         let system = system_of(s)?;
-        set(&p, |d| *d = DisplayUnits { system, chosen: Vec::new() });
+        set(&p, |d| *d = DisplayUnits { system, chosen: Vec::new(), figures: d.figures });
         Ok(in_use(&super::prefs(&p).display))
     });
     let p = prefs.clone();
     r.func("display_units", &doc, move |s: &str, units: rhai::Array| -> Res<Map> {
         let system = system_of(s)?;
-        let d = chosen(&DisplayUnits { system, chosen: Vec::new() }, &units)?;
+        let figures = super::prefs(&p).display.figures;
+        let d = chosen(&DisplayUnits { system, chosen: Vec::new(), figures }, &units)?;
         set(&p, |g| *g = d);
         Ok(in_use(&super::prefs(&p).display))
     });
@@ -244,6 +251,24 @@ fn display(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     });
     let p = prefs.clone();
     r.func("display_units", &doc, move || -> Map { in_use(&super::prefs(&p).display) });
+
+    let doc = Doc::new(
+        "display_figures(digits) / display_figures() -> int",
+        "Sets the significant figures quantities are shown to in this session (1 to 15; default 4, trailing zeros dropped, so 1.2 kg/m³ stays 1.2). Tables have their own setting (display_table), results with an uncertainty round to it (GUM 7.2.6), and worked steps keep six figures as guard digits. Values keep every digit. Returns the figures in use.",
+    )
+    .param("digits", "significant figures, 1 to 15")
+    .example("let v = 13.23456.m_s;\nprint(v);                 // 13.23 m/s\ndisplay_figures(6);\nprint(v);                 // 13.2346 m/s\ndisplay_figures(4);")
+    .source("common practice, no source");
+    let p = prefs.clone();
+    r.func("display_figures", &doc, move |n: i64| -> Res<i64> {
+        if !(1..=15).contains(&n) {
+            return Err(rt(format!("display_figures: digits must be 1 to 15, got {n}")));
+        }
+        set(&p, |d| d.figures = Some(n as u32));
+        Ok(n)
+    });
+    let p = prefs.clone();
+    r.func("display_figures", &doc, move || -> i64 { i64::from(super::prefs(&p).display.figures()) });
 
     let sig_doc = Doc::new("sig(value, digits) -> String", "A number or a quantity as text to the given number of significant figures (1 to 15), in the session's display unit for a quantity: for printing results at a sensible precision, e.g. an uncertainty to two figures (GUM 7.2.6). The value itself keeps every digit.")
         .param("value", "a number or a quantity")

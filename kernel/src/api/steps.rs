@@ -36,3 +36,69 @@ fn steps(r: &mut Registrar<'_>) {
         },
     );
 }
+
+/// The steps as an HTML table whose formulas are MathML (MathML Core, drawn by the
+/// browser itself: no script, font or network). A formula the converter cannot read
+/// falls back to its plain-text form, so a step is never lost.
+pub fn html(s: &Steps) -> String {
+    use super::table_view::esc;
+    let mut h = String::from(
+        "<table class=\"stagna-steps\">\n<thead><tr><th>#</th><th>step</th><th>formula and values</th><th>result</th><th>source</th></tr></thead>\n<tbody>\n",
+    );
+    for (i, st) in s.0.iter().enumerate() {
+        let formula = mathml(&st.latex).unwrap_or_else(|| esc(&st.formula));
+        // A thin space where the text had a space: the renderer spells `\ ` as an escaped
+        // entity (pulldown-latex 0.8), and operators bring their own spacing.
+        let values = mathml(&format!("= {}", stagna::steps::latex_text(&st.substituted).replace("\\ ", "\\,")))
+            .unwrap_or_else(|| format!("= {}", esc(&st.substituted)));
+        h.push_str(&format!(
+            "<tr><td>{}</td><td>{}</td><td>{formula}<br>{values}</td><td><b>{}</b></td><td>{}</td></tr>\n",
+            i + 1,
+            esc(&st.title),
+            esc(&st.result),
+            esc(&st.source)
+        ));
+    }
+    h.push_str("</tbody>\n</table>");
+    h
+}
+
+/// One LaTeX formula as an inline MathML element, or `None` when it cannot be read.
+fn mathml(latex: &str) -> Option<String> {
+    let storage = pulldown_latex::Storage::new();
+    let parser = pulldown_latex::Parser::new(latex, &storage);
+    let mut out = String::new();
+    pulldown_latex::push_mathml(&mut out, parser, pulldown_latex::RenderConfig::default()).ok()?;
+    // The renderer writes its errors into the markup when it meets an unknown command.
+    (!out.contains("merror")).then_some(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn steps_render_as_mathml_with_their_sources() {
+        let mut s = Steps::default();
+        s.push(
+            "velocity",
+            "v = C·√(2·Δp/ρ)",
+            r"v = C\sqrt{2\,\Delta p/\rho}",
+            "1 · √(2 · 50 Pa / 1.2 kg/m³)".into(),
+            "9.13 m/s".into(),
+            "ISO 3966:2008, 7.1",
+        );
+        let h = html(&s);
+        assert!(h.contains("<math") && h.contains("<msqrt>"), "{h}");
+        assert!(h.contains("9.13 m/s") && h.contains("ISO 3966:2008, 7.1"));
+        assert!(!h.contains("merror") && !h.contains("nbsp"), "{h}");
+    }
+
+    #[test]
+    fn an_unreadable_formula_falls_back_to_text() {
+        let mut s = Steps::default();
+        s.push("x", "a < b", r"\notacommand{a}", "1 < 2".into(), "yes".into(), "none");
+        let h = html(&s);
+        assert!(h.contains("a &lt; b"), "{h}");
+    }
+}

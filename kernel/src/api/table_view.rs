@@ -171,8 +171,9 @@ pub fn text(t: &Tbl, view: &TableView) -> String {
     out.trim_end().to_string()
 }
 
-fn esc(s: &str) -> String {
-    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;")
+/// Text made safe inside HTML elements and attribute values.
+pub fn esc(s: &str) -> String {
+    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
 }
 
 /// The table as HTML: the same cells as the text form, units in the header.

@@ -4,9 +4,12 @@
 use rhai::{Dynamic, Map};
 use stagna::io::plot::Chart;
 use stagna::uncertainty::flow_models::{MethodTerm, TraverseUncertainty, dp_inputs, transducer_dp_inputs};
-use stagna::uncertainty::monte_carlo::{McOptions, monte_carlo, validate};
+use stagna::uncertainty::monte_carlo::{
+    AdaptiveResult, McOptions, McResult, Validation, monte_carlo, monte_carlo_adaptive, validate,
+};
 use stagna::uncertainty::{Correlations, GumResult, Input};
 use stagna::units::dimension::Dimension as D;
+use stagna::units::quantity::{format_number, format_sig, format_with_uncertainty};
 
 use super::charts::Plot;
 use super::tables::Tbl;
@@ -40,6 +43,7 @@ fn dps_of(d: &Dynamic) -> Res<Vec<f64>> {
 /// Registers budgets.
 pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<Budget>("Budget");
+    r.engine.register_type_with_name::<McCheck>("MonteCarlo");
     r.group("Uncertainty");
     budgets(r, prefs);
     budget_members(r, prefs);
@@ -174,7 +178,6 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 
 /// What a budget gives: table, chart, Monte Carlo.
 fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
-    let pp = prefs.clone();
     r.method(
         "Budget",
         "table",
@@ -206,29 +209,216 @@ fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .source("JCGM 100:2008 (GUM) §8"),
         |b: &mut Budget| Plot::Chart(Chart::budget("uncertainty budget", &b.g)),
     );
-    r.method(
-        "Budget",
-        "monte_carlo",
-        &Doc::new("budget.monte_carlo(trials) -> map", "Propagation of distributions (JCGM 101) with the same model and inputs: #{trials, mean, u, low, high, validated}, where validated says whether the GUM interval agrees to 2 significant digits of u (JCGM 101 §8). Seeded, so repeatable.")
-            .param("trials", "number of trials, e.g. 200000 (at least 10⁴)")
-            .example("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});\nprint(b.monte_carlo(20000));")
-            .source("JCGM 101:2008 §5–8"),
-        move |b: &mut Budget, n: i64| -> Res<Map> {
-            if !(10_000..=50_000_000).contains(&n) {
-                return Err(rt("monte_carlo: trials from 10 000 to 50 000 000"));
-            }
+    for arity in [0usize, 1] {
+        let pp = prefs.clone();
+        let sig =
+            if arity == 0 { "budget.monte_carlo() -> MonteCarlo" } else { "budget.monte_carlo(trials) -> MonteCarlo" };
+        let summary = if arity == 0 {
+            "Propagation of distributions (JCGM 101:2008) with the budget's model and inputs, by the adaptive procedure (§7.9): sequences of 10⁴ trials until the mean, u and interval ends are stable to 2 significant digits of u (at most 10⁷ trials). Then the GUM interval y ± U is compared with the Monte Carlo interval (§8) and the result says which interval to report and why. Seeded, so repeatable."
+        } else {
+            "As monte_carlo(), with a fixed number of trials instead of the adaptive procedure."
+        };
+        let mut doc = Doc::new(sig, summary)
+            .example(&format!("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm}});\nprint(b.monte_carlo({}));", if arity == 0 { "" } else { "20000" }))
+            .source("JCGM 101:2008 §7 (trials, intervals), §7.9 (adaptive procedure), §8 (validation)");
+        if arity == 1 {
+            doc = doc.param("trials", "number of trials, from 10 000 to 50 000 000");
+        }
+        let f = move |b: &mut Budget, n: Option<i64>| -> Res<McCheck> {
             let cancel = Some(super::prefs(&pp).interrupt);
-            let progress = super::progress_for(&pp, "Monte Carlo trials");
-            let mc = lib(monte_carlo(&b.model.model, &b.model.inputs, &Correlations::none(), &McOptions { trials: n as usize, coverage: b.g.coverage, cancel, progress, ..Default::default() }))?;
+            let (mc, adaptive) = match n {
+                Some(n) => {
+                    if !(10_000..=50_000_000).contains(&n) {
+                        return Err(rt("monte_carlo: trials from 10 000 to 50 000 000"));
+                    }
+                    let progress = super::progress_for(&pp, "Monte Carlo trials");
+                    let opts = McOptions {
+                        trials: n as usize,
+                        coverage: b.g.coverage,
+                        cancel,
+                        progress,
+                        ..Default::default()
+                    };
+                    (lib(monte_carlo(&b.model.model, &b.model.inputs, &Correlations::none(), &opts))?, None)
+                }
+                None => {
+                    let opts = McOptions { trials: 10_000_000, coverage: b.g.coverage, cancel, ..Default::default() };
+                    let a =
+                        lib(monte_carlo_adaptive(&b.model.model, &b.model.inputs, &Correlations::none(), 2, &opts))?;
+                    (a.result.clone(), Some(a))
+                }
+            };
             let v = validate(&b.g, &mc, 2);
-            let mut m = Map::new();
-            m.insert("trials".into(), Dynamic::from(mc.trials as i64));
-            m.insert("mean".into(), Dynamic::from(mc.mean));
-            m.insert("u".into(), Dynamic::from(mc.u));
-            m.insert("low".into(), Dynamic::from(mc.symmetric.0));
-            m.insert("high".into(), Dynamic::from(mc.symmetric.1));
-            m.insert("validated".into(), Dynamic::from(v.passed));
-            Ok(m)
-        },
+            Ok(McCheck { gum: b.g.clone(), mc, v, adaptive, unit: b.unit })
+        };
+        if arity == 0 {
+            r.method("Budget", "monte_carlo", &doc, move |b: &mut Budget| f(b, None));
+        } else {
+            r.method("Budget", "monte_carlo", &doc, move |b: &mut Budget, n: i64| f(b, Some(n)));
+        }
+    }
+    mc_members(r);
+}
+
+/// A Monte Carlo run on a budget's model and its comparison with the GUM result.
+#[derive(Debug, Clone)]
+pub struct McCheck {
+    gum: GumResult,
+    mc: McResult,
+    v: Validation,
+    adaptive: Option<AdaptiveResult>,
+    unit: &'static str,
+}
+
+impl McCheck {
+    /// Which interval to report, and why (JCGM 101 §8).
+    fn verdict(&self) -> (&'static str, String) {
+        // Differences to 3 figures, so that one just past δ does not print as δ; δ is a
+        // half unit of a decade and prints exactly.
+        let d = |x: f64| format_sig(x, 3);
+        let unit = self.unit;
+        if self.v.passed {
+            (
+                "GUM",
+                format!(
+                    "the GUM interval's ends lie within δ = {} {unit} of the Monte Carlo ones ({} and {} {unit} apart), so the GUM result is validated at 2 significant digits of u (JCGM 101:2008 §8): report y ± U.",
+                    format_sig(self.v.tolerance, 1),
+                    d(self.v.d_low),
+                    d(self.v.d_high)
+                ),
+            )
+        } else {
+            let stable = match &self.adaptive {
+                Some(a) if !a.stabilized => {
+                    " The Monte Carlo run reached its trial limit before it stabilised, so its last digit is uncertain too."
+                }
+                Some(_) => "",
+                None => {
+                    " With a fixed number of trials the Monte Carlo ends carry sampling noise of their own; budget.monte_carlo() without a number runs the adaptive procedure (§7.9) until they are stable."
+                }
+            };
+            (
+                "Monte Carlo",
+                format!(
+                    "the GUM interval's ends differ from the Monte Carlo ones by {} and {} {unit}, more than δ = {} {unit} for 2 significant digits of u (JCGM 101:2008 §8): report the Monte Carlo interval. It propagates the input distributions through the model itself, where the GUM result linearises the model and assumes a normal or t output.{stable}",
+                    d(self.v.d_low),
+                    d(self.v.d_high),
+                    format_sig(self.v.tolerance, 1)
+                ),
+            )
+        }
+    }
+}
+
+impl std::fmt::Display for McCheck {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let (u, unit, p) = (self.mc.u, self.unit, 100.0 * self.mc.coverage);
+        let at_u = |x: f64| format_with_uncertainty(x, u).0;
+        let how = match &self.adaptive {
+            Some(a) if a.stabilized => format!(
+                "adaptive procedure (§7.9), stable at 2 significant digits of u after {} sequences of {}",
+                a.sequences, a.per_sequence
+            ),
+            Some(a) => format!(
+                "adaptive procedure (§7.9), NOT stable: stopped at the limit after {} sequences of {}",
+                a.sequences, a.per_sequence
+            ),
+            None => "fixed number of trials".into(),
+        };
+        writeln!(f, "Monte Carlo (JCGM 101:2008): {} trials, {how}", self.mc.trials)?;
+        let (ys, us) = format_with_uncertainty(self.mc.mean, u);
+        writeln!(f, "  y = {ys} {unit}, u = {us} {unit} (standard)")?;
+        writeln!(
+            f,
+            "  {} % interval, probabilistically symmetric: [{}, {}] {unit}; shortest: [{}, {}] {unit}",
+            format_number(p),
+            at_u(self.mc.symmetric.0),
+            at_u(self.mc.symmetric.1),
+            at_u(self.mc.shortest.0),
+            at_u(self.mc.shortest.1)
+        )?;
+        writeln!(
+            f,
+            "  GUM: y ± U = [{}, {}] {unit} (k = {})",
+            at_u(self.gum.value - self.gum.expanded),
+            at_u(self.gum.value + self.gum.expanded),
+            format_sig(self.gum.k, 3)
+        )?;
+        write!(f, "  Verdict: {}", self.verdict().1)
+    }
+}
+
+/// What a Monte Carlo check gives.
+fn mc_members(r: &mut Registrar<'_>) {
+    r.engine.register_fn("to_string", |m: &mut McCheck| m.to_string());
+    let ex = "let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});\nlet mc = b.monte_carlo();\n";
+    type Getter = fn(&McCheck) -> Dynamic;
+    let props: [(&str, &str, &str, Getter); 14] = [
+        ("trials", "int", "Trials run, M (all sequences for the adaptive procedure).", |m| {
+            Dynamic::from(m.mc.trials as i64)
+        }),
+        (
+            "mean",
+            "number",
+            "Mean of the model values, the Monte Carlo estimate of y (SI, the budget's output unit).",
+            |m| Dynamic::from(m.mc.mean),
+        ),
+        ("u", "number", "Standard deviation of the model values, u(y) (standard, SI).", |m| Dynamic::from(m.mc.u)),
+        ("low", "number", "Lower end of the probabilistically symmetric coverage interval (SI).", |m| {
+            Dynamic::from(m.mc.symmetric.0)
+        }),
+        ("high", "number", "Upper end of the probabilistically symmetric coverage interval (SI).", |m| {
+            Dynamic::from(m.mc.symmetric.1)
+        }),
+        ("shortest_low", "number", "Lower end of the shortest coverage interval (SI).", |m| {
+            Dynamic::from(m.mc.shortest.0)
+        }),
+        ("shortest_high", "number", "Upper end of the shortest coverage interval (SI).", |m| {
+            Dynamic::from(m.mc.shortest.1)
+        }),
+        ("coverage", "number", "Coverage probability p of the intervals (a fraction).", |m| {
+            Dynamic::from(m.mc.coverage)
+        }),
+        (
+            "validated",
+            "bool",
+            "Whether both ends of the GUM interval y ± U lie within δ of the Monte Carlo ones (§8).",
+            |m| Dynamic::from(m.v.passed),
+        ),
+        (
+            "tolerance",
+            "number",
+            "The numerical tolerance δ for 2 significant digits of the GUM u (§7.9.2), SI.",
+            |m| Dynamic::from(m.v.tolerance),
+        ),
+        ("d_low", "number", "|y − U − low|, SI.", |m| Dynamic::from(m.v.d_low)),
+        ("d_high", "number", "|y + U − high|, SI.", |m| Dynamic::from(m.v.d_high)),
+        (
+            "stabilized",
+            "bool",
+            "For the adaptive procedure, whether the results stabilised before the trial limit; true for a fixed number of trials.",
+            |m| Dynamic::from(m.adaptive.as_ref().is_none_or(|a| a.stabilized)),
+        ),
+        ("report", "string", "Which interval to report: \"GUM\" or \"Monte Carlo\" (see .reason).", |m| {
+            Dynamic::from(m.verdict().0.to_string())
+        }),
+    ];
+    for (name, ty, summary, get) in props {
+        r.property(
+            "MonteCarlo",
+            name,
+            &Doc::new(&format!("mc.{name} -> {ty}"), summary)
+                .example(&format!("{ex}print(mc.{name});"))
+                .source("JCGM 101:2008 §7–8"),
+            move |m: &mut McCheck| get(m),
+        );
+    }
+    r.property(
+        "MonteCarlo",
+        "reason",
+        &Doc::new("mc.reason -> string", "Why that interval: the comparison in words, with δ and the differences.")
+            .example(&format!("{ex}print(mc.reason);"))
+            .source("JCGM 101:2008 §8"),
+        |m: &mut McCheck| m.verdict().1,
     );
 }

@@ -318,17 +318,42 @@ impl fmt::Display for Quantity {
 
 /// Formats a number with up to 6 significant digits, without trailing zeros.
 pub fn format_number(v: f64) -> String {
+    format_figures(v, 6)
+}
+
+/// `v` to at most `figures` significant figures with trailing zeros dropped (a value as
+/// given, 1.2, stays 1.2), in exponent form outside 10⁻⁴ … 10⁹. Integer digits are kept
+/// even past `figures` (13 470, not 1.347e4).
+///
+/// ```
+/// use stagna::units::quantity::format_figures;
+/// assert_eq!(format_figures(0.838312, 4), "0.8383");
+/// assert_eq!(format_figures(1.2, 4), "1.2");
+/// assert_eq!(format_figures(13470.4, 4), "13470");
+/// assert_eq!(format_figures(9.99951, 4), "10");
+/// assert_eq!(format_figures(1091.7 - 2e-13, 10), "1091.7");
+/// assert_eq!(format_figures(2.5e-7, 4), "2.5e-7");
+/// ```
+pub fn format_figures(v: f64, figures: u32) -> String {
     if !v.is_finite() {
         return v.to_string();
     }
     if v == 0.0 {
         return "0".into();
     }
-    let mag = v.abs().log10().floor() as i32;
-    if !(-4..9).contains(&mag) {
-        return format!("{v:.5e}");
+    let figures = figures.clamp(1, 17) as i32;
+    let mut mag = v.abs().log10().floor() as i32;
+    if (v.abs() * 10f64.powi(figures - 1 - mag)).round() >= 10f64.powi(figures) {
+        mag += 1; // rounding carried into the next digit
     }
-    let decimals = (5 - mag).max(0) as usize;
+    if !(-4..9).contains(&mag) {
+        let s = format!("{v:.prec$e}", prec = (figures - 1) as usize);
+        return match s.split_once('e') {
+            Some((m, e)) if m.contains('.') => format!("{}e{e}", m.trim_end_matches('0').trim_end_matches('.')),
+            _ => s,
+        };
+    }
+    let decimals = (figures - 1 - mag).max(0) as usize;
     let s = format!("{v:.decimals$}");
     if s.contains('.') { s.trim_end_matches('0').trim_end_matches('.').to_string() } else { s }
 }
