@@ -1711,6 +1711,54 @@ mod tests {
         assert!(o.value.unwrap().latex.unwrap().contains("\\sqrt"));
     }
 
+    /// Budget terms are the script's to set: the layout term alone by default, others
+    /// added with their basis or removed; a sample_stats table brings each point's Type A.
+    #[test]
+    fn budget_terms_are_settable_and_samples_bring_their_type_a() {
+        let mut s = Session::new();
+        let base = "let o = #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm, u_rel_dp: 0.005, u_dp: 0.5.Pa}; let dps = [100.Pa, 110.Pa, 105.Pa, 98.Pa];";
+        eval(&mut s, base);
+        assert_eq!(eval(&mut s, "traverse_budget(dps, o).table().len"), "8", "3 shared + layout + 4 points");
+        eval(
+            &mut s,
+            "o.terms = #{layout: (), unsteadiness: #{u_rel: 0.003, distribution: \"rectangular\", source: \"logged 10 min at P3\"}, probe_blockage: 0.001};",
+        );
+        let t = eval(&mut s, "let b = traverse_budget(dps, o); b.table().texts(\"input\")");
+        assert!(t.contains("flow unsteadiness") && t.contains("probe blockage") && !t.contains("layout"), "{t}");
+        assert!(eval(&mut s, "b.table().texts(\"source\")").contains("logged 10 min at P3"));
+        // The typical unsourced magnitudes only when asked for, and labelled.
+        eval(&mut s, "o.terms = typical_method_terms();");
+        assert!(
+            eval(&mut s, "traverse_budget(dps, o).table().texts(\"source\")").contains("common practice, no source")
+        );
+        for (bad, says) in [
+            ("o.terms = 3; traverse_budget(dps, o)", "'terms' is a map"),
+            ("o.terms = #{x: #{u_rel: 0.01, distribution: \"lognormal\"}}; traverse_budget(dps, o)", "not one of"),
+            ("o.terms = #{x: #{distribution: \"normal\"}}; traverse_budget(dps, o)", "needs u_rel"),
+            ("o.terms = #{x: 0.9}; traverse_budget(dps, o)", "relative standard uncertainty"),
+        ] {
+            let e = err(&mut s, bad);
+            assert!(e.message.contains(says), "{bad}: {}", e.message);
+        }
+        // A budget from logged samples: Δp is each block's mean with its Type A u.
+        eval(&mut s, "o.terms = (); o.remove(\"terms\"); o.remove(\"u_rel_dp\"); o.remove(\"u_dp\");");
+        eval(
+            &mut s,
+            "let smp = table_from(#{point: [\"P1\",\"P1\",\"P1\",\"P1\",\"P2\",\"P2\",\"P2\",\"P2\"], time_s: [0.0,1.0,2.0,3.0,10.0,11.0,12.0,13.0], dp: [101.0,98.0,103.0,99.0,121.0,118.0,124.0,119.0]}).unit(\"dp\", \"Pa\"); let st = sample_stats(smp, #{});",
+        );
+        let t = eval(&mut s, "let bs = traverse_budget(st, o); bs.table().texts(\"source\")");
+        assert!(t.contains("Type A from the logged samples"), "{t}");
+        // P1: mean 100.25 Pa, s = 2.2174 Pa (hand-worked: Σ(x − x̄)² = 14.75, /3), n_eff = 4 here.
+        let u1: f64 = eval(&mut s, "bs.table()[\"u\"].at(4).si").parse().unwrap_or(f64::NAN);
+        assert!((u1 - (14.75f64 / 3.0).sqrt() / 2.0).abs() < 1e-6, "{u1}");
+        let e = err(&mut s, "traverse_budget(smp, o)");
+        assert!(e.message.contains("result of sample_stats"), "{}", e.message);
+        let e = err(&mut s, "sample_stats(smp, #{dp: \"time_s\"})");
+        assert!(e.message.contains("pressure column"), "{}", e.message);
+        let e = err(&mut s, "sample_stats(smp, #{settle: 5.s})");
+        assert!(e.message.contains("settling time"), "{}", e.message);
+    }
+
     /// Every formula the library writes into worked steps reads as MathML: no step falls
     /// back to plain text (the fallback keeps a step, but a report should not need it).
     #[test]

@@ -94,15 +94,22 @@ fn demo_prints_results_with_units_and_cautions() {
         })
         .sum();
     assert!((shares - 100.0).abs() < 0.6, "shares add to {shares}");
-    // GUM 7.2.6: u_c and U to two significant figures, y to the same last digit.
+    // GUM 7.2.6: u_c and U to two significant figures, y to the same last digit. For a
+    // product model the relative uncertainties add in quadrature (JCGM 100 §5.1.6): from the
+    // script's stated inputs, C 0.0025/0.998, ρ ½·0.0018/1.2064, D 2·(1.5/√3)/600, the
+    // terms 0.005 (layout), 0.002 (positioning), 0.004 (unsteadiness), and each Δp's
+    // √((0.005 Δp)² + (0.7/√3)²) weighted by ½/√Δp_i over Σ√Δp, worked in Python:
+    // 0.782 % of y, u_c = 0.0293 m³/s, U = 1.96 u_c = 0.0574 m³/s.
     let y = out.lines().find(|l| l.starts_with("y = ")).expect("result line");
     assert!(
-        y.starts_with("y = 3.742 m³/s, u_c = 0.038 m³/s (standard, k = 1;")
-            && y.contains("U = 0.074 m³/s (expanded, k = 1.96, 95 % coverage)"),
+        y.starts_with("y = 3.742 m³/s, u_c = 0.029 m³/s (standard, k = 1; 0.78 % of y)")
+            && y.contains("U = 0.057 m³/s (expanded, k = 1.96, 95 % coverage)"),
         "{y}"
     );
+    // Terms without a source stay out unless a script adds them.
+    assert!(!out.contains("turbulence   ") && !out.contains("common practice, no source (typical magnitude)"), "{out}");
     // The adaptive Monte Carlo (JCGM 101 §7.9) stabilised, and its verdict agrees with its
-    // own numbers: the ends' differences against δ = 0.0005 m³/s (2 digits of u = 0.038).
+    // own numbers: the ends' differences against δ = 0.0005 m³/s (2 digits of u = 0.029).
     let mc = out.lines().find(|l| l.starts_with("Monte Carlo (JCGM 101:2008)")).expect("Monte Carlo line");
     assert!(mc.contains("adaptive procedure (§7.9), stable at 2 significant digits of u"), "{mc}");
     let verdict = out.lines().find(|l| l.trim_start().starts_with("Verdict:")).expect("verdict");

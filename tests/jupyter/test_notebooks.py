@@ -27,7 +27,7 @@ EXPECT = {
     "03-stack-traverse-s-type.ipynb": [r"S-type calibration SP-07 of 2026-09-22", r"Method 4 moisture: ", r"all method checks passed: true", r"Stack run R3"],
     "04-profile-study.ipynb": [r"x02D", r"x30D", r"power law, n = 7"],
     # Shares of the budget add to 100 %; Monte Carlo interval printed.
-    "05-traverse-uncertainty-budget.ipynb": [r"U = 0\.07\d m³/s \(expanded, k = 1\.96, 95 %", r"Monte Carlo \(JCGM 101:2008\): \d+ trials, adaptive procedure", r"Verdict: the GUM interval", r"GUM: Q = 3\.74\d* m³/s"],
+    "05-traverse-uncertainty-budget.ipynb": [r"U = 0\.057 m³/s \(expanded, k = 1\.96, 95 %", r"Monte Carlo \(JCGM 101:2008\): \d+ trials, adaptive procedure", r"Verdict: the GUM interval", r"GUM: Q = 3\.74\d* m³/s"],
 }
 
 

@@ -78,8 +78,8 @@ def test_run_report_renders_with_results_charts_and_cautions(browser, tmp_path):
     assert not errors, errors
     # Key results as the terminal prints them (values checked against CoolProp and iapws in
     # the end-to-end demo test): the duct's flow, the budget line per GUM 7.2.6, the main.
-    for needle in ["volume flow at duct conditions: 3.741 m³/s", "y = 3.742 m³/s, u_c = 0.038 m³/s (standard, k = 1",
-                   "U = 0.074 m³/s (expanded, k = 1.96, 95 % coverage)", "Neverbrook pumping station",
+    for needle in ["volume flow at duct conditions: 3.741 m³/s", "y = 3.742 m³/s, u_c = 0.029 m³/s (standard, k = 1",
+                   "U = 0.057 m³/s (expanded, k = 1.96, 95 % coverage)", "Neverbrook pumping station",
                    "probe certificate: U = 0.005 (k = 2)", "Caution", "licensed practice"]:
         assert needle in text, needle
     # Tables as HTML tables with units in the header, not text.

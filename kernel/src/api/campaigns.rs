@@ -12,7 +12,6 @@ use super::tables::{Tbl, with_result_units};
 use super::*;
 use crate::catalog::Doc;
 use stagna::campaign::{CampaignColumns, CampaignResult, CampaignSpec, CampaignUncertainty, RectangularColumns};
-use stagna::uncertainty::flow_models::MethodTerm;
 
 /// A campaign reduction's result.
 #[derive(Debug, Clone)]
@@ -303,7 +302,16 @@ fn campaign_uncertainty(o: &Map, p: &SharedPrefs) -> Res<Option<CampaignUncertai
             ];
             check_keys_or_old(
                 &u,
-                &["u_rel_coefficient", "u_rel_density", "u_rel_diameter", "u_rel_dp", "u_dp", "coverage", "rule"],
+                &[
+                    "u_rel_coefficient",
+                    "u_rel_density",
+                    "u_rel_diameter",
+                    "u_rel_dp",
+                    "u_dp",
+                    "coverage",
+                    "rule",
+                    "terms",
+                ],
                 &OLD.map(|(_, old)| old),
                 "campaign uncertainty",
             )?;
@@ -328,7 +336,7 @@ fn campaign_uncertainty(o: &Map, p: &SharedPrefs) -> Res<Option<CampaignUncertai
                 diameter_rel: rel("u_rel_diameter", 0.002)?,
                 dp_rel: rel("u_rel_dp", 0.005)?,
                 dp_abs_pa: get("u_dp").map(|d| si_of(d, D::PRESSURE, "u_dp")).transpose()?.unwrap_or(0.5),
-                terms: MethodTerm::typical(rule),
+                terms: super::uncertainty::method_terms(field(&u, "terms"), rule, "campaign uncertainty")?,
                 coverage: rel("coverage", 0.95)?,
             })
         }
@@ -348,7 +356,7 @@ fn reductions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "reduce_campaign",
         &Doc::new("reduce_campaign(table, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced.")
-            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{u_rel_coefficient, u_rel_density, u_rel_diameter, u_rel_dp (relative standard uncertainties, fractions), u_dp (absolute standard uncertainty of each Δp), coverage, rule}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture, md) with run_columns (key → column name); method2 #{md?, report: \"physics\" | \"method\"} adds each traverse by US EPA Method 2 eq. 2-7 and 2-10 (epa_m2_velocity_m_s, epa_m2_dry_flow_20C_760mmHg_m3_h, physics_velocity_m_s, epa_m2_minus_physics_pct, reported_route; M_d per run from md, else Method 3 eq. 3-1 from co2/o2)")
+            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{u_rel_coefficient, u_rel_density, u_rel_diameter, u_rel_dp (relative standard uncertainties, fractions), u_dp (absolute standard uncertainty of each Δp), coverage, rule, terms (method terms as in traverse_budget: only the layout term by default)}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture, md) with run_columns (key → column name); method2 #{md?, report: \"physics\" | \"method\"} adds each traverse by US EPA Method 2 eq. 2-7 and 2-10 (epa_m2_velocity_m_s, epa_m2_dry_flow_20C_760mmHg_m3_h, physics_velocity_m_s, epa_m2_minus_physics_pct, reported_route; M_d per run from md, else Method 3 eq. 3-1 from co2/o2)")
             .returns("Campaign (.traverses table, .failures)")
             .example("let t = table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})\n    .units(#{h: \"mm\", t: \"degC\", d: \"mm\", y: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),\n    columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\", position: \"y\"}};\nprint(reduce_campaign(t, spec).traverses);")
             .source("velocity-area method, ISO 3966:2008 §9–10; point physics as in Manometer.dp and Probe.velocity"),

@@ -30,6 +30,7 @@ pub mod probes;
 pub mod profiles;
 pub mod quantities;
 pub mod reports;
+pub mod samples;
 pub mod sections;
 pub mod setups;
 pub mod stack;
@@ -437,4 +438,5 @@ pub fn register_all(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     stack::register(r, prefs);
     setups::register(r, prefs);
     reports::register(r, prefs);
+    samples::register(r, prefs);
 }

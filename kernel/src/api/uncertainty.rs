@@ -27,7 +27,23 @@ pub struct Budget {
     pub unit: &'static str,
 }
 
+/// Per-point mean Δp, Type A u and degrees of freedom from a `sample_stats` table.
+fn sampled_of(d: &Dynamic) -> Res<Option<(Vec<f64>, Vec<f64>, Vec<f64>)>> {
+    let Some(t) = d.clone().try_cast::<super::tables::Tbl>() else { return Ok(None) };
+    let has = |c: &str| t.df.get_column_names().iter().any(|n| n.as_str() == c);
+    if !(has("mean_dp") && has("u_mean_dp") && has("dof")) {
+        return Err(rt(
+            "traverse_budget: a table as dp must be the result of sample_stats (columns mean_dp, u_mean_dp, dof)",
+        ));
+    }
+    let (m, u, nu) = (t.column("mean_dp")?, t.column("u_mean_dp")?, t.column("dof")?);
+    Ok(Some((m.si.to_vec(), u.si.to_vec(), nu.si.to_vec())))
+}
+
 fn dps_of(d: &Dynamic) -> Res<Vec<f64>> {
+    if let Some((m, _, _)) = sampled_of(d)? {
+        return Ok(m);
+    }
     if let Some(c) = d.clone().try_cast::<Col>() {
         if c.dimension != D::PRESSURE {
             return Err(rt(format!("traverse_budget: dp must be a pressure column, got {}", describe(d))));
@@ -54,12 +70,12 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let tb_prefs = prefs.clone();
     r.func(
         "traverse_budget",
-        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); u_rel_dp (relative standard uncertainty of each Δp, a fraction, default 0.005) and u_dp (absolute standard uncertainty of each Δp, default 0.5 Pa), combined in quadrature; transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and u_rel_dp and u_dp count only when given). The earlier dp_rel and dp_abs still work, with a deprecation warning; sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (method terms: \"equal-area\", \"log-linear\", \"log-chebyshev\"); coverage (0.95); output (\"flow\" or \"velocity\").")
+        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); u_rel_dp (relative standard uncertainty of each Δp, a fraction, default 0.005) and u_dp (absolute standard uncertainty of each Δp, default 0.5 Pa), combined in quadrature; transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and u_rel_dp and u_dp count only when given). The earlier dp_rel and dp_abs still work, with a deprecation warning; sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (the layout/integration term: \"equal-area\", \"log-linear\", \"log-chebyshev\"); terms (method terms: by default only the layout term, which is derived; a map sets, adds or removes terms: name: () removes, name: u_rel or #{u_rel, distribution: \"normal\"|\"rectangular\"|\"triangular\", source} sets; known names layout, positioning, unsteadiness, turbulence, alignment, any other name adds a term; typical_method_terms() gives typical unsourced magnitudes to opt into); coverage (0.95); output (\"flow\" or \"velocity\"). dp may also be the table of sample_stats: each point's mean Δp then carries its Type A u from the samples, combined with u_rel_dp and u_dp (which default to 0 there), with Welch–Satterthwaite degrees of freedom.")
             .param("dp", "pressure column or array of pressures, one per point (all > 0)")
             .example("let dps = [98.Pa, 112.Pa, 118.Pa, 115.Pa, 101.Pa, 95.Pa];\nlet b = traverse_budget(dps, #{coefficient: 0.998, u_coefficient: 0.0025, density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, u_rel_dp: 0.005, u_dp: 0.4.Pa});\nprint(b);")
             .source("JCGM 100:2008 (GUM) §5, §G; method terms as documented in the library (ISO 3966 §10 and common practice)"),
         move |d: Dynamic, o: Map| -> Res<Budget> {
-            check_keys_or_old(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "u_rel_dp", "u_dp", "transducer", "sources", "rule", "coverage", "output"], &["dp_rel", "dp_abs"], "traverse_budget")?;
+            check_keys_or_old(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "u_rel_dp", "u_dp", "transducer", "sources", "rule", "terms", "coverage", "output"], &["dp_rel", "dp_abs"], "traverse_budget")?;
             let rel_dp = renamed_option(&o, "u_rel_dp", "dp_rel", &tb_prefs, "traverse_budget");
             let abs_dp = renamed_option(&o, "u_dp", "dp_abs", &tb_prefs, "traverse_budget");
             let sources: Map = match field(&o, "sources") {
@@ -85,8 +101,9 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             };
             // With a calibrated transducer its calibration is the measured Δp term; the
             // other terms count only when given.
-            let (rel_default, abs_default) = if transducer.is_some() { (0.0, 0.0) } else { (0.005, 0.5) };
-            let defaulted = transducer.is_none() && (rel_dp.is_none() || abs_dp.is_none());
+            let sampled = sampled_of(&d)?;
+            let (rel_default, abs_default) = if transducer.is_some() || sampled.is_some() { (0.0, 0.0) } else { (0.005, 0.5) };
+            let defaulted = transducer.is_none() && sampled.is_none() && (rel_dp.is_none() || abs_dp.is_none());
             let dp_rel = rel_dp.map(|x| number(x, "u_rel_dp")).transpose()?.unwrap_or(rel_default);
             let dp_abs = abs_dp.map(|x| si_of(x, D::PRESSURE, "u_dp")).transpose()?.unwrap_or(abs_default);
             let dp_source = source_of(
@@ -109,18 +126,31 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                 Some("velocity") => true,
                 Some(o) => return Err(rt(format!("traverse_budget: output is \"flow\" or \"velocity\", got \"{o}\""))),
             };
-            let points = match &transducer {
-                None => lib(dp_inputs(&dps, dp_rel, dp_abs))?.into_iter().map(|i| i.with_source(&dp_source)).collect(),
-                Some(t) if field(&sources, "dp").is_some() => {
+            let points = match (&transducer, &sampled) {
+                (Some(_), Some(_)) => {
+                    return Err(rt("traverse_budget: give the transducer to sample_stats (it corrects the samples) and the resulting table here, not both"));
+                }
+                (None, Some((m, ua, nu))) => {
+                    let src = source_of(
+                        "dp",
+                        &format!(
+                            "Type A from the logged samples (u of each mean from its effective number of independent samples){}",
+                            if dp_rel > 0.0 || dp_abs > 0.0 { ", with u_rel_dp and u_dp as given" } else { "" }
+                        ),
+                    )?;
+                    lib(stagna::uncertainty::flow_models::sampled_dp_inputs(m, ua, nu, dp_rel, dp_abs, &src))?
+                }
+                (None, None) => lib(dp_inputs(&dps, dp_rel, dp_abs))?.into_iter().map(|i| i.with_source(&dp_source)).collect(),
+                (Some(t), None) if field(&sources, "dp").is_some() => {
                     lib(transducer_dp_inputs(t, &dps, dp_rel, dp_abs))?.into_iter().map(|i| i.with_source(&dp_source)).collect()
                 }
-                Some(t) => lib(transducer_dp_inputs(t, &dps, dp_rel, dp_abs))?,
+                (Some(t), None) => lib(transducer_dp_inputs(t, &dps, dp_rel, dp_abs))?,
             };
             let mut t = lib(TraverseUncertainty::new(
                 lib(Input::normal("probe coefficient C", "1", c, uc))?.with_source(&source_of("coefficient", GIVEN)?),
                 lib(Input::normal("density ρ", "kg/m³", rho, urho))?.with_source(&source_of("density", GIVEN)?),
                 lib(Input::normal("diameter D", "m", dd, ud))?.with_source(&source_of("diameter", GIVEN)?),
-                &MethodTerm::typical(rule),
+                &method_terms(field(&o, "terms"), rule, "traverse_budget")?,
                 points,
             ))?;
             if velocity {
@@ -178,6 +208,13 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 
 /// What a budget gives: table, chart, Monte Carlo.
 fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.func(
+        "typical_method_terms",
+        &Doc::new("typical_method_terms() -> Map", "Typical magnitudes of the method terms of a calibrated pitot-static traverse, as a terms map for traverse_budget or a campaign's uncertainty: positioning 0.25 %, unsteadiness 0.5 %, turbulence 0.5 %, alignment 0.2 % (relative standard uncertainties). They have no published source, are off by default, and print as such in the budget's source column: replace them with measured values (sample_stats) or the method's own where you have them.")
+            .example("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm, terms: typical_method_terms()});\nprint(b);")
+            .source("common practice, no source (typical magnitudes)"),
+        typical_terms_map,
+    );
     r.method(
         "Budget",
         "table",
@@ -421,4 +458,73 @@ fn mc_members(r: &mut Registrar<'_>) {
             .source("JCGM 101:2008 §8"),
         |m: &mut McCheck| m.verdict().1,
     );
+}
+
+/// Short names of the known method terms and their budget names.
+const KNOWN_TERMS: [(&str, &str); 4] = [
+    ("positioning", "probe positioning"),
+    ("unsteadiness", "flow unsteadiness"),
+    ("turbulence", "turbulence"),
+    ("alignment", "probe alignment"),
+];
+
+/// The method terms of a budget: the defaults of the rule (the layout term only) changed by
+/// a `terms` map: `name: ()` removes a term, `name: u_rel` or `name: #{u_rel, distribution,
+/// source}` sets or adds one. `layout` names the layout/integration term.
+pub fn method_terms(spec: Option<&Dynamic>, rule: stagna::LayoutRule, what: &str) -> Res<Vec<MethodTerm>> {
+    use stagna::uncertainty::flow_models::TermDistribution;
+    let mut terms = MethodTerm::defaults(rule);
+    let Some(spec) = spec else { return Ok(terms) };
+    let m: Map = spec.clone().try_cast().ok_or_else(|| {
+        rt(format!("{what}: 'terms' is a map of term name to () (remove), a relative standard uncertainty, or #{{u_rel, distribution, source}}"))
+    })?;
+    for (key, v) in m {
+        let key = key.to_string();
+        let name = if key == "layout" {
+            MethodTerm::layout(rule).name
+        } else {
+            KNOWN_TERMS.iter().find(|(k, _)| *k == key).map_or_else(|| key.replace('_', " "), |(_, n)| n.to_string())
+        };
+        terms.retain(|t| t.name != name);
+        if v.is_unit() {
+            continue;
+        }
+        const GIVEN: &str = "as given in the script (no source stated)";
+        let term = if v.is_float() || v.is_int() {
+            lib(MethodTerm::new(&name, number(&v, &format!("terms.{key}"))?, GIVEN))?
+        } else {
+            let t: Map = v.try_cast().ok_or_else(|| {
+                rt(format!("{what}: terms.{key} must be (), a number (relative standard uncertainty) or #{{u_rel, distribution, source}}"))
+            })?;
+            check_keys(&t, &["u_rel", "distribution", "source"], &format!("{what} terms.{key}"))?;
+            let u = number(
+                field(&t, "u_rel").ok_or_else(|| {
+                    rt(format!("{what}: terms.{key} needs u_rel (relative standard uncertainty, a fraction)"))
+                })?,
+                "u_rel",
+            )?;
+            let source = field(&t, "source").map(|d| text(d, "source")).transpose()?.unwrap_or_else(|| GIVEN.into());
+            let dist = match field(&t, "distribution") {
+                Some(d) => lib(TermDistribution::parse(&text(d, "distribution")?))?,
+                None => TermDistribution::Normal,
+            };
+            lib(MethodTerm::new(&name, u, &source))?.with_distribution(dist)
+        };
+        terms.push(term);
+    }
+    Ok(terms)
+}
+
+/// The typical (unsourced) method terms as a `terms` map, for scripts that want them.
+fn typical_terms_map() -> Map {
+    let mut m = Map::new();
+    for t in MethodTerm::typical(stagna::LayoutRule::EqualArea).into_iter().skip(1) {
+        let key =
+            KNOWN_TERMS.iter().find(|(_, n)| t.name.starts_with(n)).map_or(t.name.clone(), |(k, _)| k.to_string());
+        let mut e = Map::new();
+        e.insert("u_rel".into(), Dynamic::from(t.relative_u));
+        e.insert("source".into(), Dynamic::from(t.source));
+        m.insert(key.into(), Dynamic::from(e));
+    }
+    m
 }

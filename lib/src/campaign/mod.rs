@@ -6,5 +6,6 @@
 //! velocities, running the stages above over whole columns in Rust.
 
 mod reduction;
+pub mod samples;
 
 pub use reduction::*;

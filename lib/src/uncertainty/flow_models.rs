@@ -28,6 +28,33 @@ impl Model for PointVelocityModel {
     }
 }
 
+/// The distribution of a method term about 1.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum TermDistribution {
+    /// Normal (a stated standard uncertainty).
+    #[default]
+    Normal,
+    /// Rectangular: equally likely anywhere within ±a, u = a/√3 (JCGM 100 §4.3.7).
+    Rectangular,
+    /// Triangular: ±a, u = a/√6 (JCGM 100 §4.3.9).
+    Triangular,
+}
+
+impl TermDistribution {
+    /// From its name ("normal", "rectangular", "triangular").
+    pub fn parse(s: &str) -> Result<Self> {
+        match s {
+            "normal" => Ok(Self::Normal),
+            "rectangular" | "uniform" => Ok(Self::Rectangular),
+            "triangular" => Ok(Self::Triangular),
+            _ => Err(Error::Inconsistent {
+                context: "method term",
+                message: format!("distribution \"{s}\" is not one of normal, rectangular, triangular"),
+            }),
+        }
+    }
+}
+
 /// A method term: a factor of value 1 with a relative standard uncertainty.
 #[derive(Debug, Clone, PartialEq)]
 pub struct MethodTerm {
@@ -37,32 +64,71 @@ pub struct MethodTerm {
     pub relative_u: f64,
     /// Where the value comes from.
     pub source: String,
+    /// Its distribution about 1 (the standard uncertainty is `relative_u` whatever it is).
+    pub distribution: TermDistribution,
 }
 
 impl MethodTerm {
-    /// A term of your own.
+    /// A term of your own (normal).
     pub fn new(name: &str, relative_u: f64, source: &str) -> Result<Self> {
         crate::error::within("method term", "relative standard uncertainty", relative_u, "", 0.0, 0.5)?;
-        Ok(Self { name: name.into(), relative_u, source: source.into() })
+        Ok(Self { name: name.into(), relative_u, source: source.into(), distribution: TermDistribution::Normal })
     }
 
-    /// Typical terms for a calibrated pitot-static traverse with the given layout rule:
-    /// layout/integration 0.5 % (equal-area) or 0.2 % (log rules) after the biases of
-    /// check-values.md §5.4; positioning 0.25 %, unsteadiness 0.5 %, turbulence 0.5 %,
-    /// alignment 0.2 % (check-values.md §7.3; common practice, no source).
+    /// The same term with another distribution (same standard uncertainty).
+    pub fn with_distribution(mut self, d: TermDistribution) -> Self {
+        self.distribution = d;
+        self
+    }
+
+    /// The input this term becomes: a factor of 1 with `relative_u`, of its distribution.
+    pub fn input(&self) -> Result<Input> {
+        let u = self.relative_u;
+        let i = match self.distribution {
+            TermDistribution::Normal => Input::normal(&self.name, "1", 1.0, u)?,
+            TermDistribution::Rectangular => Input::rectangular(&self.name, "1", 1.0, u * 3f64.sqrt())?,
+            TermDistribution::Triangular => Input::triangular(&self.name, "1", 1.0, u * 6f64.sqrt())?,
+        };
+        Ok(i.with_source(&self.source))
+    }
+
+    /// The layout/integration term of a rule: the bias of the layout's arithmetic mean on
+    /// power-law profiles (n = 6 to 10), 0.5 % for equal-area and 0.2 % for the log rules
+    /// (check-values.md §5.4; derived, computed in the library's integration tests).
+    pub fn layout(rule: crate::section::layout::LayoutRule) -> MethodTerm {
+        let u = if rule == crate::section::layout::LayoutRule::EqualArea { 0.005 } else { 0.002 };
+        MethodTerm {
+            name: format!("layout/integration ({rule})"),
+            relative_u: u,
+            source: "bias of the layout's arithmetic mean on power-law profiles, n = 6 to 10 (derived: computed in the library's integration tests)".into(),
+            distribution: TermDistribution::Normal,
+        }
+    }
+
+    /// The terms a budget carries unless told otherwise: only those with a derivation
+    /// behind them, the layout term. Terms without a source are off by default; add your own
+    /// (measured, or from the method followed) or [`MethodTerm::typical`] deliberately.
+    pub fn defaults(rule: crate::section::layout::LayoutRule) -> Vec<MethodTerm> {
+        vec![Self::layout(rule)]
+    }
+
+    /// Typical magnitudes for a calibrated pitot-static traverse, opt-in: the layout term,
+    /// positioning 0.25 %, unsteadiness 0.5 %, turbulence 0.5 %, alignment 0.2 %
+    /// (check-values.md §7.3; common practice, no source).
     pub fn typical(rule: crate::section::layout::LayoutRule) -> Vec<MethodTerm> {
-        let layout = if rule == crate::section::layout::LayoutRule::EqualArea { 0.005 } else { 0.002 };
         let cp = "common practice, no source (typical magnitude)";
+        let t = |name: &str, u: f64| MethodTerm {
+            name: name.into(),
+            relative_u: u,
+            source: cp.into(),
+            distribution: TermDistribution::Normal,
+        };
         vec![
-            MethodTerm {
-                name: format!("layout/integration ({rule})"),
-                relative_u: layout,
-                source: "bias of the layout's arithmetic mean on power-law profiles, n = 6 to 10 (derived: computed in the library's integration tests)".into(),
-            },
-            MethodTerm { name: "probe positioning".into(), relative_u: 0.0025, source: cp.into() },
-            MethodTerm { name: "flow unsteadiness".into(), relative_u: 0.005, source: cp.into() },
-            MethodTerm { name: "turbulence".into(), relative_u: 0.005, source: cp.into() },
-            MethodTerm { name: "probe alignment (yaw/pitch < 5°)".into(), relative_u: 0.002, source: cp.into() },
+            Self::layout(rule),
+            t("probe positioning", 0.0025),
+            t("flow unsteadiness", 0.005),
+            t("turbulence", 0.005),
+            t("probe alignment (yaw/pitch < 5°)", 0.002),
         ]
     }
 }
@@ -106,6 +172,48 @@ pub fn dp_inputs(dps: &[f64], rel: f64, abs_pa: f64) -> Result<Vec<Input>> {
         .enumerate()
         .map(|(i, dp)| {
             Input::normal(&format!("Δp point {}", i + 1), "Pa", *dp, ((rel * dp).powi(2) + abs_pa * abs_pa).sqrt())
+        })
+        .collect()
+}
+
+/// Δp inputs from logged samples: each point's mean Δp with u² = u_A² + (rel·Δp)² + abs²,
+/// u_A the Type A standard uncertainty of the mean from the samples (with ν_A degrees of
+/// freedom) and the other two the instrument's Type B part; the input's degrees of freedom
+/// by Welch–Satterthwaite over the two parts, ν = u⁴ ν_A / u_A⁴ (JCGM 100 §G.4.1). The
+/// input is labelled Type A when the instrument part is zero.
+pub fn sampled_dp_inputs(
+    means: &[f64],
+    u_a: &[f64],
+    dof_a: &[f64],
+    rel: f64,
+    abs_pa: f64,
+    source: &str,
+) -> Result<Vec<Input>> {
+    if means.len() != u_a.len() || means.len() != dof_a.len() {
+        return Err(Error::Inconsistent {
+            context: "traverse uncertainty",
+            message: format!(
+                "{} mean Δp values, {} u_A and {} degrees of freedom",
+                means.len(),
+                u_a.len(),
+                dof_a.len()
+            ),
+        });
+    }
+    means
+        .iter()
+        .zip(u_a.iter().zip(dof_a))
+        .enumerate()
+        .map(|(i, (&dp, (&ua, &nu)))| {
+            let ub2 = (rel * dp).powi(2) + abs_pa * abs_pa;
+            let u = (ua * ua + ub2).sqrt();
+            let mut input = Input::normal(&format!("Δp point {}", i + 1), "Pa", dp, u)?.with_source(source);
+            input.dof =
+                if ua > 0.0 && nu.is_finite() && nu > 0.0 { u.powi(4) * nu / ua.powi(4) } else { f64::INFINITY };
+            if ub2 == 0.0 {
+                input.evaluation = crate::uncertainty::Evaluation::TypeA;
+            }
+            Ok(input)
         })
         .collect()
 }
@@ -183,7 +291,7 @@ impl TraverseUncertainty {
         }
         let mut inputs = vec![coefficient, density, diameter];
         for t in terms {
-            inputs.push(Input::normal(&t.name, "1", 1.0, t.relative_u)?.with_source(&t.source));
+            inputs.push(t.input()?);
         }
         let points = dps.len();
         inputs.extend(dps);
@@ -221,6 +329,36 @@ mod tests {
     use super::*;
     use crate::uncertainty::monte_carlo::{McOptions, monte_carlo, validate};
     use crate::uncertainty::sensitivities;
+
+    /// Welch–Satterthwaite for one input with a Type A part (u_A = 1 Pa, ν_A = 9) and a
+    /// Type B part (1 Pa, ν = ∞): ν = u⁴/(u_A⁴/ν_A) = 4/(1/9) = 36 (JCGM 100 §G.4.1).
+    #[test]
+    fn sampled_dp_inputs_combine_type_a_with_welch_satterthwaite() {
+        let a = sampled_dp_inputs(&[100.0], &[1.0], &[9.0], 0.0, 0.0, "logged").unwrap();
+        assert_eq!(a[0].evaluation, crate::uncertainty::Evaluation::TypeA);
+        assert!((a[0].standard_uncertainty() - 1.0).abs() < 1e-12 && (a[0].dof - 9.0).abs() < 1e-9);
+        let ab = sampled_dp_inputs(&[100.0], &[1.0], &[9.0], 0.0, 1.0, "logged").unwrap();
+        assert!((ab[0].standard_uncertainty() - 2f64.sqrt()).abs() < 1e-12);
+        assert!((ab[0].dof - 36.0).abs() < 1e-9, "{}", ab[0].dof);
+        assert_eq!(ab[0].evaluation, crate::uncertainty::Evaluation::TypeB);
+        assert!(sampled_dp_inputs(&[100.0, 90.0], &[1.0], &[9.0], 0.0, 0.0, "x").is_err());
+    }
+
+    /// A term's standard uncertainty is its u_rel whatever its distribution: rectangular
+    /// half-width a = u√3 (JCGM 100 §4.3.7), triangular a = u√6 (§4.3.9).
+    #[test]
+    fn method_terms_keep_their_standard_uncertainty_in_every_distribution() {
+        for d in [TermDistribution::Normal, TermDistribution::Rectangular, TermDistribution::Triangular] {
+            let t = MethodTerm::new("x", 0.004, "test").unwrap().with_distribution(d);
+            assert!((t.input().unwrap().standard_uncertainty() - 0.004).abs() < 1e-15, "{d:?}");
+        }
+        assert!(TermDistribution::parse("lognormal").unwrap_err().to_string().contains("not one of"));
+        assert_eq!(
+            MethodTerm::defaults(crate::LayoutRule::EqualArea).len(),
+            1,
+            "only the derived layout term by default"
+        );
+    }
 
     fn point_inputs(dp: Input) -> Vec<Input> {
         vec![Input::normal("C", "1", 0.997, 0.003).unwrap(), dp, Input::normal("ρ", "kg/m³", 1.200, 0.003).unwrap()]
