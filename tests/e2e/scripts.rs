@@ -312,3 +312,26 @@ fn batch_scripts_write_only_inside_the_output_folder_unless_allowed() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     assert!(elsewhere.join("x.csv").is_file());
 }
+
+#[test]
+fn logged_traverse_builds_its_budget_from_the_samples() {
+    let (out, _) = run_script("logged-traverse", &[]);
+    assert_eq!(out.matches("Caution:").count(), 1, "{out}");
+    // The samples were generated (demo-data/make-gloomwater-logged.py) from a 1/7 power-law
+    // profile of 1.50 m/s mean velocity: the equal-area mean recovers it within the layout
+    // term (0.5 %) and the samples' scatter.
+    let v = number_after(&out, "mean velocity over 10 equal-area points:");
+    assert!((v - 1.50).abs() < 0.01, "{v}");
+    // Q = v̄·πD²/4 for D = 300 mm, in m³/h.
+    let q = number_after(&out, "volume flow");
+    assert!((q - v * std::f64::consts::PI * 0.0225 * 3600.0).abs() < 0.5, "{q} vs {v}");
+    // Every point: 300 samples at 5 Hz, 8 s settling drops 40.
+    assert_eq!(
+        out.lines().filter(|l| l.starts_with('P') && l.contains(" 260  ") && l.contains(" 40  ")).count(),
+        10,
+        "{out}"
+    );
+    // The budget's Δp lines are Type A from the samples; no assumed unsteadiness term.
+    assert!(out.contains("Type A from the logged samples") && !out.contains("flow unsteadiness"), "{out}");
+    assert!(out.contains("adaptive procedure (§7.9), stable"), "{out}");
+}

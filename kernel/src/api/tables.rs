@@ -63,6 +63,11 @@ pub const DEMO_TABLES: &[(&str, &str, &str)] = &[
         include_str!("../../../demo-data/nowhere-vale-kiln-runs.csv"),
     ),
     (
+        "gloomwater-cw-logged.csv",
+        "cooling-water line, logged Δp samples at 10 equal-area points (fictional plant)",
+        include_str!("../../../demo-data/gloomwater-cw-logged.csv"),
+    ),
+    (
         "nullford-rig-profiles.csv",
         "air rig, profiles at 12 stations after a bend",
         include_str!("../../../demo-data/nullford-rig-profiles.csv"),

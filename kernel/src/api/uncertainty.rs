@@ -27,8 +27,11 @@ pub struct Budget {
     pub unit: &'static str,
 }
 
-/// Per-point mean Δp, Type A u and degrees of freedom from a `sample_stats` table.
-fn sampled_of(d: &Dynamic) -> Res<Option<(Vec<f64>, Vec<f64>, Vec<f64>)>> {
+/// Per-point mean Δp (Pa), its Type A standard uncertainty (Pa) and degrees of freedom.
+type Sampled = (Vec<f64>, Vec<f64>, Vec<f64>);
+
+/// The per-point columns of a `sample_stats` table, or `None` for other dp.
+fn sampled_of(d: &Dynamic) -> Res<Option<Sampled>> {
     let Some(t) = d.clone().try_cast::<super::tables::Tbl>() else { return Ok(None) };
     let has = |c: &str| t.df.get_column_names().iter().any(|n| n.as_str() == c);
     if !(has("mean_dp") && has("u_mean_dp") && has("dof")) {
@@ -312,14 +315,14 @@ impl McCheck {
     fn verdict(&self) -> (&'static str, String) {
         // Differences to 3 figures, so that one just past δ does not print as δ; δ is a
         // half unit of a decade and prints exactly.
-        let d = |x: f64| format_sig(x, 3);
+        let d = |x: f64| stagna::units::quantity::format_figures(x, 3);
         let unit = self.unit;
         if self.v.passed {
             (
                 "GUM",
                 format!(
                     "the GUM interval's ends lie within δ = {} {unit} of the Monte Carlo ones ({} and {} {unit} apart), so the GUM result is validated at 2 significant digits of u (JCGM 101:2008 §8): report y ± U.",
-                    format_sig(self.v.tolerance, 1),
+                    stagna::units::quantity::format_figures(self.v.tolerance, 1),
                     d(self.v.d_low),
                     d(self.v.d_high)
                 ),
@@ -340,7 +343,7 @@ impl McCheck {
                     "the GUM interval's ends differ from the Monte Carlo ones by {} and {} {unit}, more than δ = {} {unit} for 2 significant digits of u (JCGM 101:2008 §8): report the Monte Carlo interval. It propagates the input distributions through the model itself, where the GUM result linearises the model and assumes a normal or t output.{stable}",
                     d(self.v.d_low),
                     d(self.v.d_high),
-                    format_sig(self.v.tolerance, 1)
+                    stagna::units::quantity::format_figures(self.v.tolerance, 1)
                 ),
             )
         }

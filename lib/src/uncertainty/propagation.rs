@@ -551,7 +551,13 @@ impl GumResult {
     pub fn result_line_in(&self, unit: &str) -> String {
         use crate::units::quantity::{format_sig, format_with_uncertainty};
         let unit = if unit.is_empty() { String::new() } else { format!(" {unit}") };
-        let dof = if self.dof.is_finite() { format!("{:.1}", self.dof) } else { "∞".into() };
+        // Whole degrees of freedom from 10 up (JCGM 100 §G.4.1 allows truncating ν_eff to the
+        // next lower integer); one decimal below, where t_p moves quickly with ν.
+        let dof = match self.dof {
+            d if !d.is_finite() => "∞".into(),
+            d if d >= 10.0 => format!("{}", d.floor()),
+            d => format!("{d:.1}"),
+        };
         let (y, u) = format_with_uncertainty(self.value, self.u);
         let (_, big_u) = format_with_uncertainty(self.value, self.expanded);
         format!(
