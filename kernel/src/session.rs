@@ -1041,8 +1041,8 @@ fn budget_html(b: &api::uncertainty::Budget) -> String {
     use api::table_view::esc;
     let html = b.g.to_html();
     let plain = format!("<p>{}</p>", esc(&b.g.result_line()));
-    let with_unit = format!("<p>{}</p>", esc(&b.g.result_line_in(b.unit)));
-    format!("<p>output in {}</p>\n{}", esc(b.unit), html.replace(&plain, &with_unit))
+    let with_unit = format!("<p>{}</p>", esc(&b.g.result_line_in(&b.unit)));
+    format!("<p>output in {}</p>\n{}", esc(&b.unit), html.replace(&plain, &with_unit))
 }
 
 #[cfg(test)]
@@ -1757,6 +1757,66 @@ mod tests {
         assert!(e.message.contains("pressure column"), "{}", e.message);
         let e = err(&mut s, "sample_stats(smp, #{settle: 5.s})");
         assert!(e.message.contains("settling time"), "{}", e.message);
+    }
+
+    /// A script's own model against JCGM 101:2008's worked examples. §9.2.2, additive
+    /// model Y = X₁ + X₂ + X₃ + X₄ with standard normal inputs: u(y) = 2 exactly, GUM and
+    /// Monte Carlo intervals both ±3.92 (1.96·2), so the GUM result validates. §9.3, mass
+    /// calibration δm = (m_R,c + δm_R,c)(1 + (ρ_a − ρ_a0)(1/ρ_W − 1/ρ_R)) − m_nom: to first
+    /// order only m_R,c and δm_R,c count, u = √(0.050² + 0.020²) = 0.0539 mg (derived); the
+    /// product term adds a variance of m²·var(ρ_a)·var(1/ρ_W) ≈ (10⁵ · 0.0577 · 9.0·10⁻⁶)² mg²
+    /// = 0.052² mg², so the Monte Carlo u is √(0.0539² + 0.052²) ≈ 0.075 mg (derived here;
+    /// JCGM 101 Table 10 gives 0.0754 mg and [1.0834, 1.3825] mg, from memory) and the GUM
+    /// interval does not validate.
+    #[test]
+    fn script_models_reproduce_the_jcgm_101_examples() {
+        let mut s = Session::new();
+        eval(
+            &mut s,
+            "let add = model_budget(|x| x.x1 + x.x2 + x.x3 + x.x4, #{inputs: #{x1: #{value: 0.0, u: 1.0}, x2: #{value: 0.0, u: 1.0}, x3: #{value: 0.0, u: 1.0}, x4: #{value: 0.0, u: 1.0}}});",
+        );
+        let u: f64 = eval(&mut s, "add.u").parse().unwrap_or(f64::NAN);
+        assert!((u - 2.0).abs() < 1e-9, "{u}");
+        eval(&mut s, "let mc = add.monte_carlo();");
+        assert_eq!(eval(&mut s, "mc.report"), "GUM");
+        let high: f64 = eval(&mut s, "mc.high").parse().unwrap_or(f64::NAN);
+        // Stable to δ = 0.05 (2 significant digits of u = 2.0, §7.9.2), not better.
+        assert!((high - 3.92).abs() < 0.05, "{high}");
+        eval(
+            &mut s,
+            r#"let mass = model_budget(|x| (x.mRc + x.dmRc) * (1.0 + (x.rho_a - 1.2) * (1.0 / x.rho_w - 1.0 / x.rho_r)) - 100000.0, #{
+            inputs: [#{name: "mRc", value: 100000.0, u: 0.050, unit: "mg"},
+                     #{name: "dmRc", value: 1.234, u: 0.020, unit: "mg"},
+                     #{name: "rho_a", value: 1.20, distribution: "rectangular", half_width: 0.10, unit: "kg/m3"},
+                     #{name: "rho_w", value: 8000.0, distribution: "rectangular", half_width: 1000.0, unit: "kg/m3"},
+                     #{name: "rho_r", value: 8000.0, distribution: "rectangular", half_width: 50.0, unit: "kg/m3"}],
+            unit: "mg"});"#,
+        );
+        let u: f64 = eval(&mut s, "mass.u").parse().unwrap_or(f64::NAN);
+        assert!((u - (0.05f64.powi(2) + 0.02f64.powi(2)).sqrt()).abs() < 1e-6, "{u}");
+        assert!(eval(&mut s, "mass.table().texts(\"input\")").starts_with("[\"mRc\", \"dmRc\""), "array order kept");
+        eval(&mut s, "let mm = mass.monte_carlo(200000);");
+        let umc: f64 = eval(&mut s, "mm.u").parse().unwrap_or(f64::NAN);
+        assert!((umc - 0.075).abs() < 0.002, "{umc}");
+        assert_eq!(eval(&mut s, "mm.report"), "Monte Carlo");
+        assert!(eval(&mut s, "mm.reason").contains("report the Monte Carlo interval"));
+        // Bad models and inputs: each a clear error.
+        for (bad, says) in [
+            ("model_budget(|x| x.a.b, #{inputs: #{a: #{value: 1.0, u: 0.1}}})", "model function failed"),
+            ("model_budget(|x| \"text\", #{inputs: #{a: #{value: 1.0, u: 0.1}}})", "must return a number"),
+            ("model_budget(|x| x.a, #{inputs: #{a: #{value: 1.0, sigma: 0.1}}})", "sigma"),
+            ("model_budget(|x| x.a, #{inputs: #{a: #{value: 1.0}}})", "needs u"),
+            ("model_budget(|x| x.a, #{inputs: #{}})", "no inputs"),
+            ("model_budget(|x| x.a, #{inputs: #{a: #{readings: [1.0]}}})", "at least 2 readings"),
+            (
+                "model_budget(|x| x.a, #{inputs: #{a: #{value: 1.0, u: 0.1}}, correlations: [[\"a\", \"z\", 0.5]]})",
+                "not an input",
+            ),
+            ("model_budget(|x| 1.0 / (x.a - 1.0), #{inputs: #{a: #{value: 1.0, u: 0.1}}})", "at the best estimates"),
+        ] {
+            let e = err(&mut s, bad);
+            assert!(e.message.contains(says), "{bad}: {}", e.message);
+        }
     }
 
     /// Every formula the library writes into worked steps reads as MathML: no step falls

@@ -5,7 +5,8 @@ use rhai::{Dynamic, Map};
 use stagna::io::plot::Chart;
 use stagna::uncertainty::flow_models::{MethodTerm, TraverseUncertainty, dp_inputs, transducer_dp_inputs};
 use stagna::uncertainty::monte_carlo::{
-    AdaptiveResult, McOptions, McResult, Validation, monte_carlo, monte_carlo_adaptive, validate,
+    AdaptiveResult, McOptions, McResult, Validation, adaptive_with, monte_carlo, monte_carlo_adaptive, sample_with,
+    summarize, validate,
 };
 use stagna::uncertainty::{Correlations, GumResult, Input};
 use stagna::units::dimension::Dimension as D;
@@ -22,9 +23,46 @@ pub struct Budget {
     /// GUM result.
     pub g: GumResult,
     /// The model and inputs (for Monte Carlo).
-    pub model: TraverseUncertainty,
+    pub model: BudgetModel,
     /// Output unit.
-    pub unit: &'static str,
+    pub unit: String,
+}
+
+/// Where a budget's model lives.
+#[derive(Debug, Clone)]
+pub enum BudgetModel {
+    /// A traverse's flow or mean velocity, in the library.
+    Traverse(TraverseUncertainty),
+    /// A script's own function of named inputs.
+    Script(ScriptModel),
+}
+
+/// A measurement model written in a script: a function of a map of named input values.
+#[derive(Debug, Clone)]
+pub struct ScriptModel {
+    f: rhai::FnPtr,
+    names: Vec<String>,
+    inputs: Vec<Input>,
+    correlations: Correlations,
+}
+
+impl ScriptModel {
+    /// The model's value at `x` (in input order).
+    fn eval(&self, ctx: &rhai::NativeCallContext, x: &[f64]) -> stagna::Result<f64> {
+        let mut m = Map::new();
+        for (n, v) in self.names.iter().zip(x) {
+            m.insert(n.as_str().into(), Dynamic::from(*v));
+        }
+        let fail = |message: String| stagna::Error::Inconsistent { context: "measurement model", message };
+        let r: Dynamic =
+            self.f.call_within_context(ctx, (m,)).map_err(|e| fail(format!("the model function failed: {e}")))?;
+        if let Some(q) = r.clone().try_cast::<Q>() {
+            return Ok(q.q.si);
+        }
+        r.as_float()
+            .or_else(|_| r.as_int().map(|i| i as f64))
+            .map_err(|t| fail(format!("the model function must return a number, got {t}")))
+    }
 }
 
 /// Per-point mean Δp (Pa), its Type A standard uncertainty (Pa) and degrees of freedom.
@@ -160,14 +198,14 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                 t = t.for_mean_velocity();
             }
             let g = lib(t.gum(coverage))?;
-            Ok(Budget { g, model: t, unit: if velocity { "m/s" } else { "m³/s" } })
+            Ok(Budget { g, model: BudgetModel::Traverse(t), unit: if velocity { "m/s" } else { "m³/s" }.into() })
         },
     );
     r.engine.register_fn("to_string", |b: &mut Budget| {
         // The table, then the result line with the output's unit.
         let text = b.g.to_string();
         let table = text.trim_end().rsplit_once('\n').map_or(text.as_str(), |(t, _)| t);
-        format!("Budget (output in {}):\n{table}\n{}", b.unit, b.g.result_line_in(b.unit))
+        format!("Budget (output in {}):\n{table}\n{}", b.unit, b.g.result_line_in(&b.unit))
     });
     for (name, summary) in [
         ("value", "The output estimate y (SI: m³/s or m/s)."),
@@ -209,8 +247,160 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     }
 }
 
+/// One input of a script's model from its map.
+fn model_input(name: &str, spec: &Dynamic) -> Res<Input> {
+    let what = format!("model_budget input '{name}'");
+    let m: Map = spec.clone().try_cast().ok_or_else(|| {
+        rt(format!("{what}: give a map such as #{{value: 1.0, u: 0.01}}, #{{value, distribution: \"rectangular\", half_width}}, #{{value, U, k}} or #{{readings: [...]}}"))
+    })?;
+    check_keys(
+        &m,
+        &["value", "u", "distribution", "half_width", "U", "k", "readings", "samples", "dof", "unit", "source"],
+        &what,
+    )?;
+    let unit = field(&m, "unit").map(|d| text(d, "unit")).transpose()?.unwrap_or_default();
+    let nums = |k: &str| -> Res<Vec<f64>> {
+        let a: rhai::Array = field(&m, k)
+            .and_then(|d| d.clone().try_cast())
+            .ok_or_else(|| rt(format!("{what}: {k} must be an array of numbers")))?;
+        a.iter().map(|x| number(x, k)).collect()
+    };
+    let value = || {
+        field(&m, "value")
+            .map(|d| number(d, "value"))
+            .transpose()?
+            .ok_or_else(|| rt(format!("{what}: value is required")))
+    };
+    let given = |k: &str| field(&m, k).is_some();
+    let mut input = if given("readings") {
+        lib(Input::type_a(name, &unit, &nums("readings")?))?
+    } else if given("samples") {
+        lib(Input::samples(name, &unit, nums("samples")?))?
+    } else if given("U") {
+        let k = field(&m, "k")
+            .map(|d| number(d, "k"))
+            .transpose()?
+            .ok_or_else(|| rt(format!("{what}: U needs its coverage factor k")))?;
+        lib(Input::from_expanded(name, &unit, value()?, number(field(&m, "U").unwrap_or(&Dynamic::UNIT), "U")?, k))?
+    } else {
+        let dist =
+            field(&m, "distribution").map(|d| text(d, "distribution")).transpose()?.unwrap_or_else(|| "normal".into());
+        match dist.as_str() {
+            "normal" => {
+                let u = field(&m, "u")
+                    .map(|d| number(d, "u"))
+                    .transpose()?
+                    .ok_or_else(|| rt(format!("{what}: a normal input needs u (its standard uncertainty)")))?;
+                lib(Input::normal(name, &unit, value()?, u))?
+            }
+            "rectangular" | "triangular" => {
+                let a = field(&m, "half_width")
+                    .map(|d| number(d, "half_width"))
+                    .transpose()?
+                    .ok_or_else(|| rt(format!("{what}: a {dist} input needs half_width")))?;
+                if dist == "rectangular" {
+                    lib(Input::rectangular(name, &unit, value()?, a))?
+                } else {
+                    lib(Input::triangular(name, &unit, value()?, a))?
+                }
+            }
+            o => return Err(rt(format!("{what}: distribution \"{o}\" is not one of normal, rectangular, triangular"))),
+        }
+    };
+    if let Some(d) = field(&m, "dof") {
+        input = lib(input.with_dof(number(d, "dof")?))?;
+    }
+    let source = field(&m, "source")
+        .map(|d| text(d, "source"))
+        .transpose()?
+        .unwrap_or_else(|| "as given in the script (no source stated)".into());
+    Ok(input.with_source(&source))
+}
+
+/// A budget of a script's own model: GUM with sensitivities by central differences.
+fn model_budget(ctx: &rhai::NativeCallContext, f: rhai::FnPtr, spec: &Map) -> Res<Budget> {
+    check_keys(spec, &["inputs", "correlations", "coverage", "unit"], "model_budget")?;
+    let inputs_spec = field(spec, "inputs")
+        .ok_or_else(|| rt("model_budget: inputs is required (a map of name → input, or an array of #{name, ...})"))?;
+    let mut named: Vec<(String, Dynamic)> = Vec::new();
+    if let Some(m) = inputs_spec.clone().try_cast::<Map>() {
+        named.extend(m.into_iter().map(|(k, v)| (k.to_string(), v)));
+    } else if let Some(a) = inputs_spec.clone().try_cast::<rhai::Array>() {
+        for d in a {
+            let m: Map =
+                d.clone().try_cast().ok_or_else(|| rt("model_budget: each input in the array is a map with a name"))?;
+            let n = field(&m, "name")
+                .map(|d| text(d, "name"))
+                .transpose()?
+                .ok_or_else(|| rt("model_budget: each input in the array needs a name"))?;
+            let mut rest = m.clone();
+            rest.remove("name");
+            named.push((n, Dynamic::from(rest)));
+        }
+    } else {
+        return Err(rt("model_budget: inputs must be a map of name → input or an array of #{name, ...}"));
+    }
+    if named.is_empty() {
+        return Err(rt("model_budget: no inputs"));
+    }
+    let names: Vec<String> = named.iter().map(|(n, _)| n.clone()).collect();
+    let inputs: Vec<Input> = named.iter().map(|(n, d)| model_input(n, d)).collect::<Res<_>>()?;
+    let mut correlations = Correlations::none();
+    if let Some(c) = field(spec, "correlations") {
+        let a: rhai::Array =
+            c.clone().try_cast().ok_or_else(|| rt("model_budget: correlations is an array of [name, name, r]"))?;
+        for e in a {
+            let t: rhai::Array = e.try_cast().ok_or_else(|| rt("model_budget: each correlation is [name, name, r]"))?;
+            if t.len() != 3 {
+                return Err(rt("model_budget: each correlation is [name, name, r]"));
+            }
+            let idx = |d: &Dynamic| -> Res<usize> {
+                let n = text(d, "correlation input")?;
+                names
+                    .iter()
+                    .position(|x| *x == n)
+                    .ok_or_else(|| rt(format!("model_budget: correlation names '{n}', which is not an input")))
+            };
+            correlations = lib(correlations.with(idx(&t[0])?, idx(&t[1])?, number(&t[2], "r")?))?;
+        }
+    }
+    let coverage = field(spec, "coverage").map(|d| number(d, "coverage")).transpose()?.unwrap_or(0.95);
+    let unit = field(spec, "unit").map(|d| text(d, "unit")).transpose()?.unwrap_or_default();
+    let model = ScriptModel { f, names, inputs: inputs.clone(), correlations: correlations.clone() };
+    let x: Vec<f64> = inputs.iter().map(|i| i.value).collect();
+    let y = lib(model.eval(ctx, &x))?;
+    // ∂f/∂x_i by central differences with a step of u(x_i)/1000 (or 10⁻⁶ of the value where
+    // u is zero): second-order accurate, exact for a linear model up to rounding.
+    let mut c = Vec::with_capacity(x.len());
+    let mut xs = x.clone();
+    for (i, inp) in inputs.iter().enumerate() {
+        let u = inp.standard_uncertainty();
+        let h = if u > 0.0 { u * 1e-3 } else { 1e-6 * x[i].abs().max(1.0) };
+        xs[i] = x[i] + h;
+        let up = lib(model.eval(ctx, &xs))?;
+        xs[i] = x[i] - h;
+        let down = lib(model.eval(ctx, &xs))?;
+        xs[i] = x[i];
+        c.push((up - down) / (2.0 * h));
+    }
+    let g = lib(stagna::uncertainty::gum_from(y, &c, &inputs, &correlations, coverage))?;
+    Ok(Budget { g, model: BudgetModel::Script(model), unit })
+}
+
 /// What a budget gives: table, chart, Monte Carlo.
 fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    r.func(
+        "model_budget",
+        &Doc::new(
+            "model_budget(model, spec) -> Budget",
+            "A GUM budget of your own measurement model: `model` is a function of a map of named input values returning the output (a number, or a quantity in SI); spec has inputs (a map of name → input, or an array of #{name, ...} to keep their order), correlations ([[name, name, r], ...]), coverage (0.95) and unit (the output's unit label). Each input is #{value, u} (normal), #{value, distribution: \"rectangular\"|\"triangular\", half_width}, #{value, U, k} (a certificate's expanded uncertainty), #{readings: [...]} (Type A: mean, s/√n, n − 1 degrees of freedom) or #{samples: [...]}, with optional dof, unit and source. Sensitivities by central differences (step u/1000; numerical, second-order); budget.monte_carlo() then propagates the distributions through the same function (JCGM 101, one trial at a time, adaptive up to 2·10⁶ trials) and says which interval to report.",
+        )
+        .param("model", "a function (closure) of one map argument")
+        .param("spec", "map: inputs, correlations, coverage, unit")
+        .example("let b = model_budget(|x| x.a + x.b * x.c, #{\n    inputs: #{a: #{value: 1.0, u: 0.1}, b: #{value: 2.0, distribution: \"rectangular\", half_width: 0.2}, c: #{readings: [3.01, 2.98, 3.02, 2.99]}},\n    unit: \"mm\"});\nprint(b);")
+        .source("JCGM 100:2008 §5 (law of propagation; c_i numerically as §5.1.3 allows), §G (ν_eff); JCGM 101:2008 §7–8 for its Monte Carlo"),
+        |ctx: rhai::NativeCallContext, f: rhai::FnPtr, spec: Map| -> Res<Budget> { model_budget(&ctx, f, &spec) },
+    );
     r.func(
         "typical_method_terms",
         &Doc::new("typical_method_terms() -> Map", "Typical magnitudes of the method terms of a calibrated pitot-static traverse, as a terms map for traverse_budget or a campaign's uncertainty: positioning 0.25 %, unsteadiness 0.5 %, turbulence 0.5 %, alignment 0.2 % (relative standard uncertainties). They have no published source, are off by default, and print as such in the budget's source column: replace them with measured values (sample_stats) or the method's own where you have them.")
@@ -264,13 +454,20 @@ fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         if arity == 1 {
             doc = doc.param("trials", "number of trials, from 10 000 to 50 000 000");
         }
-        let f = move |b: &mut Budget, n: Option<i64>| -> Res<McCheck> {
+        let f = move |ctx: &rhai::NativeCallContext, b: &mut Budget, n: Option<i64>| -> Res<McCheck> {
             let cancel = Some(super::prefs(&pp).interrupt);
-            let (mc, adaptive) = match n {
-                Some(n) => {
-                    if !(10_000..=50_000_000).contains(&n) {
-                        return Err(rt("monte_carlo: trials from 10 000 to 50 000 000"));
-                    }
+            // A script's model runs in one thread through the engine: fewer trials at most.
+            let script_cap: i64 = 2_000_000;
+            let (mc, adaptive) = match (n, &b.model) {
+                (Some(n), _) if !(10_000..=50_000_000).contains(&n) => {
+                    return Err(rt("monte_carlo: trials from 10 000 to 50 000 000"));
+                }
+                (Some(n), BudgetModel::Script(_)) if n > script_cap => {
+                    return Err(rt(format!(
+                        "monte_carlo: a script's model runs at most {script_cap} trials (it is evaluated one trial at a time by the script engine)"
+                    )));
+                }
+                (Some(n), BudgetModel::Traverse(t)) => {
                     let progress = super::progress_for(&pp, "Monte Carlo trials");
                     let opts = McOptions {
                         trials: n as usize,
@@ -279,22 +476,49 @@ fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                         progress,
                         ..Default::default()
                     };
-                    (lib(monte_carlo(&b.model.model, &b.model.inputs, &Correlations::none(), &opts))?, None)
+                    (lib(monte_carlo(&t.model, &t.inputs, &Correlations::none(), &opts))?, None)
                 }
-                None => {
+                (Some(n), BudgetModel::Script(m)) => {
+                    let opts = McOptions { trials: n as usize, coverage: b.g.coverage, ..Default::default() };
+                    let v =
+                        lib(sample_with(&m.inputs, &m.correlations, opts.trials, opts.seed, cancel.as_deref(), |x| {
+                            m.eval(ctx, x)
+                        }))?;
+                    (lib(summarize(v, opts.coverage))?, None)
+                }
+                (None, BudgetModel::Traverse(t)) => {
                     let opts = McOptions { trials: 10_000_000, coverage: b.g.coverage, cancel, ..Default::default() };
-                    let a =
-                        lib(monte_carlo_adaptive(&b.model.model, &b.model.inputs, &Correlations::none(), 2, &opts))?;
+                    let a = lib(monte_carlo_adaptive(&t.model, &t.inputs, &Correlations::none(), 2, &opts))?;
+                    (a.result.clone(), Some(a))
+                }
+                (None, BudgetModel::Script(m)) => {
+                    let opts = McOptions {
+                        trials: script_cap as usize,
+                        coverage: b.g.coverage,
+                        cancel: cancel.clone(),
+                        ..Default::default()
+                    };
+                    let a = lib(adaptive_with(
+                        |k, seed| {
+                            sample_with(&m.inputs, &m.correlations, k, seed, cancel.as_deref(), |x| m.eval(ctx, x))
+                        },
+                        2,
+                        &opts,
+                    ))?;
                     (a.result.clone(), Some(a))
                 }
             };
             let v = validate(&b.g, &mc, 2);
-            Ok(McCheck { gum: b.g.clone(), mc, v, adaptive, unit: b.unit })
+            Ok(McCheck { gum: b.g.clone(), mc, v, adaptive, unit: b.unit.clone() })
         };
         if arity == 0 {
-            r.method("Budget", "monte_carlo", &doc, move |b: &mut Budget| f(b, None));
+            r.method("Budget", "monte_carlo", &doc, move |ctx: rhai::NativeCallContext, b: &mut Budget| {
+                f(&ctx, b, None)
+            });
         } else {
-            r.method("Budget", "monte_carlo", &doc, move |b: &mut Budget, n: i64| f(b, Some(n)));
+            r.method("Budget", "monte_carlo", &doc, move |ctx: rhai::NativeCallContext, b: &mut Budget, n: i64| {
+                f(&ctx, b, Some(n))
+            });
         }
     }
     mc_members(r);
@@ -307,7 +531,7 @@ pub struct McCheck {
     mc: McResult,
     v: Validation,
     adaptive: Option<AdaptiveResult>,
-    unit: &'static str,
+    unit: String,
 }
 
 impl McCheck {
@@ -316,7 +540,7 @@ impl McCheck {
         // Differences to 3 figures, so that one just past δ does not print as δ; δ is a
         // half unit of a decade and prints exactly.
         let d = |x: f64| stagna::units::quantity::format_figures(x, 3);
-        let unit = self.unit;
+        let unit = &self.unit;
         if self.v.passed {
             (
                 "GUM",
@@ -352,7 +576,7 @@ impl McCheck {
 
 impl std::fmt::Display for McCheck {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        let (u, unit, p) = (self.mc.u, self.unit, 100.0 * self.mc.coverage);
+        let (u, unit, p) = (self.mc.u, &self.unit, 100.0 * self.mc.coverage);
         let at_u = |x: f64| format_with_uncertainty(x, u).0;
         let how = match &self.adaptive {
             Some(a) if a.stabilized => format!(

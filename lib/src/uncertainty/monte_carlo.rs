@@ -218,6 +218,54 @@ pub fn sample_model_reporting<M: Model>(
     Ok(out)
 }
 
+/// Model values for `trials` trials drawn in one thread, the model being any function of
+/// the input values that may fail (a script's model: it cannot be shared between threads).
+/// The inputs are drawn as [`sample_model`] draws them; `cancel` is polled every 4096 trials.
+pub fn sample_with(
+    inputs: &[Input],
+    correlations: &Correlations,
+    trials: usize,
+    seed: u64,
+    cancel: Option<&AtomicBool>,
+    mut model: impl FnMut(&[f64]) -> Result<f64>,
+) -> Result<Vec<f64>> {
+    if trials == 0 || trials > MAX_TRIALS {
+        return Err(Error::OutOfRange {
+            context: "Monte Carlo",
+            param: "number of trials",
+            value: trials as f64,
+            unit: "",
+            allowed: format!("1 to {MAX_TRIALS}"),
+        });
+    }
+    if inputs.is_empty() {
+        return Err(Error::Inconsistent { context: "Monte Carlo", message: "no inputs".into() });
+    }
+    let sampler = Sampler::new(inputs, correlations)?;
+    let mut rng = SmallRng::seed_from_u64(splitmix(seed));
+    let mut x = vec![0.0; inputs.len()];
+    let mut z = vec![0.0; sampler.correlated.len()];
+    let mut out = Vec::with_capacity(trials);
+    for t in 0..trials {
+        if t % 4096 == 0 && cancel.is_some_and(|c| c.load(Ordering::Relaxed)) {
+            return Err(Error::Interrupted { context: "Monte Carlo" });
+        }
+        sampler.draw(&mut rng, &mut x, &mut z);
+        let y = model(&x)?;
+        if !y.is_finite() {
+            return Err(Error::Inconsistent {
+                context: "Monte Carlo",
+                message: format!(
+                    "trial {} gave {y}; an input's distribution reaches outside the model's domain",
+                    t + 1
+                ),
+            });
+        }
+        out.push(y);
+    }
+    Ok(out)
+}
+
 /// Summary of model values: mean, standard deviation and both coverage intervals.
 pub fn summarize(mut values: Vec<f64>, coverage: f64) -> Result<McResult> {
     if !(coverage > 0.0 && coverage < 1.0) {
@@ -335,6 +383,15 @@ pub fn monte_carlo_adaptive<M: Model>(
     ndig: u32,
     opts: &McOptions,
 ) -> Result<AdaptiveResult> {
+    adaptive_with(|n, seed| sample_model(model, inputs, correlations, n, seed, opts.cancel.as_deref()), ndig, opts)
+}
+
+/// The adaptive procedure over any source of model values: `draw(n, seed)` gives n values.
+pub fn adaptive_with(
+    mut draw: impl FnMut(usize, u64) -> Result<Vec<f64>>,
+    ndig: u32,
+    opts: &McOptions,
+) -> Result<AdaptiveResult> {
     if !(1..=3).contains(&ndig) {
         return Err(Error::OutOfRange {
             context: "Monte Carlo",
@@ -367,20 +424,13 @@ pub fn monte_carlo_adaptive<M: Model>(
     let mut stats: Vec<[f64; 4]> = Vec::new();
     // Running sums over all trials for u(y) (shifted by the first value against cancellation).
     let (mut n, mut shift, mut s1, mut s2) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
-    for draw in 0u64.. {
+    for batch in 0u64.. {
         let room = (opts.trials - all.len()) / m;
         let k = room.min(SEQUENCES_PER_DRAW);
         if k == 0 {
             break;
         }
-        let values = sample_model(
-            model,
-            inputs,
-            correlations,
-            k * m,
-            splitmix(opts.seed.wrapping_add(draw)),
-            opts.cancel.as_deref(),
-        )?;
+        let values = draw(k * m, splitmix(opts.seed.wrapping_add(batch)))?;
         for seq in values.chunks(m) {
             if n == 0.0 {
                 shift = seq[0];

@@ -469,13 +469,35 @@ pub fn gum<M: Model>(model: &M, inputs: &[Input], correlations: &Correlations, p
         });
     }
     let y = model.eval(&x);
+    let c = sensitivities(model, &x);
+    gum_from(y, &c, inputs, correlations, p)
+}
+
+/// The law of propagation from an output estimate `y` and sensitivity coefficients `c`
+/// obtained elsewhere (e.g. by differences, for a model the library cannot differentiate).
+pub fn gum_from(y: f64, c: &[f64], inputs: &[Input], correlations: &Correlations, p: f64) -> Result<GumResult> {
+    let x = check_inputs(inputs)?;
+    if !(p > 0.0 && p < 1.0) {
+        return Err(Error::OutOfRange {
+            context: "uncertainty",
+            param: "coverage probability",
+            value: p,
+            unit: "",
+            allowed: "in (0, 1)".into(),
+        });
+    }
+    if c.len() != x.len() {
+        return Err(Error::Inconsistent {
+            context: "uncertainty",
+            message: format!("{} sensitivity coefficients for {} inputs", c.len(), x.len()),
+        });
+    }
     if !y.is_finite() {
         return Err(Error::Inconsistent {
             context: "uncertainty",
             message: format!("the model gives {y} at the best estimates"),
         });
     }
-    let c = sensitivities(model, &x);
     let u: Vec<f64> = inputs.iter().map(Input::standard_uncertainty).collect();
     let r = correlations.matrix(inputs.len())?;
     let mut var = 0.0;
@@ -485,12 +507,12 @@ pub fn gum<M: Model>(model: &M, inputs: &[Input], correlations: &Correlations, p
         }
     }
     let uc = var.max(0.0).sqrt();
-    let denom: f64 = inputs.iter().zip(&c).zip(&u).map(|((inp, ci), ui)| (ci * ui).powi(4) / inp.dof).sum();
+    let denom: f64 = inputs.iter().zip(c).zip(&u).map(|((inp, ci), ui)| (ci * ui).powi(4) / inp.dof).sum();
     let dof = if denom > 0.0 { uc.powi(4) / denom } else { f64::INFINITY };
     let k = student_t_quantile(0.5 + p / 2.0, dof);
     let budget = inputs
         .iter()
-        .zip(&c)
+        .zip(c)
         .zip(&u)
         .map(|((inp, ci), ui)| BudgetLine {
             name: inp.name.clone(),
