@@ -1819,6 +1819,35 @@ mod tests {
         }
     }
 
+    /// A transducer's Δp column is a first-class reading of a campaign: fed the Δp that the
+    /// manometer route computed, the campaign gives the same velocities and flows, and it
+    /// needs no manometer.
+    #[test]
+    fn campaigns_take_a_transducer_dp_column() {
+        let mut s = Session::new();
+        eval(
+            &mut s,
+            r#"let t = table_from(#{tr: ["T1","T1","T1","T1"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})
+            .units(#{h: "mm", t: "degC", d: "mm", y: "mm"});
+            let spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),
+                columns: #{traverse: "tr", deflection: "h", fluid_temperature: "t", size: "d", position: "y"}};
+            let pv = point_velocities(t, spec);
+            let by_gauge = reduce_campaign(t, spec).traverses;
+            let t2 = t.with_column("dp", pv["dp_pa"]).unit("dp", "Pa");
+            let spec2 = #{fluid: dry_air(), static_pressure: 101.kPa, probe: pitot_static(1.0),
+                columns: #{traverse: "tr", dp: "dp", fluid_temperature: "t", size: "d", position: "y"}};
+            let by_dp = reduce_campaign(t2, spec2).traverses;"#,
+        );
+        let a: f64 = eval(&mut s, "by_gauge[\"mean_velocity_m_s\"].at(0).si").parse().unwrap_or(f64::NAN);
+        let b: f64 = eval(&mut s, "by_dp[\"mean_velocity_m_s\"].at(0).si").parse().unwrap_or(f64::NAN);
+        assert!(a > 10.0 && (a - b).abs() < 1e-9 * a, "{a} vs {b}");
+        let e = err(&mut s, "spec2.columns.deflection = \"h\"; reduce_campaign(t2, spec2)");
+        assert!(e.message.contains("not both"), "{}", e.message);
+        let e =
+            err(&mut s, "spec2.columns.remove(\"deflection\"); spec2.columns.dp = \"h\"; reduce_campaign(t2, spec2)");
+        assert!(e.message.contains("not a pressure"), "{}", e.message);
+    }
+
     /// Every formula the library writes into worked steps reads as MathML: no step falls
     /// back to plain text (the fallback keeps a step, but a report should not need it).
     #[test]

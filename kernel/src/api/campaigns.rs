@@ -49,10 +49,21 @@ fn campaign_spec(t: &Tbl, o: &Map, p: &SharedPrefs) -> Res<CampaignSpec> {
         .clone()
         .try_cast()
         .ok_or_else(|| rt("campaign: 'fluid' must be a Fluid (e.g. humid_air(0.45))"))?;
-    let manometer: Manometer = need("manometer")?
-        .clone()
-        .try_cast()
-        .ok_or_else(|| rt("campaign: 'manometer' must be a Manometer (e.g. u_tube(gauge_mercury()))"))?;
+    // A transducer's Δp column needs no manometer; the spec keeps a placeholder that is
+    // never read (RowPhysics uses the Δp as it is).
+    let dp_columns =
+        field(o, "columns").and_then(|c| c.clone().try_cast::<Map>()).is_some_and(|c| c.contains_key("dp"));
+    let manometer: Manometer = match field(o, "manometer") {
+        None if dp_columns => lib(Manometer::new(
+            stagna::instruments::manometer::ManometerKind::UTube,
+            stagna::GaugeLiquid::Water(stagna::fluids::water::WaterModel::Tanaka2001),
+            stagna::fluids::gravity::standard(),
+        ))?,
+        _ => need("manometer")?
+            .clone()
+            .try_cast()
+            .ok_or_else(|| rt("campaign: 'manometer' must be a Manometer (e.g. u_tube(gauge_mercury()))"))?,
+    };
     let probe: Probe = need("probe")?
         .clone()
         .try_cast()
@@ -230,6 +241,7 @@ fn campaign_columns(t: &Tbl, cols: &Dynamic) -> Res<CampaignColumns> {
         &[
             "traverse",
             "deflection",
+            "dp",
             "fluid_temperature",
             "size",
             "position",
@@ -276,7 +288,20 @@ fn campaign_columns(t: &Tbl, cols: &Dynamic) -> Res<CampaignColumns> {
             field(&cols, "traverse").ok_or_else(|| rt("campaign: columns.traverse is required"))?,
             "traverse",
         )?,
-        deflection: req("deflection", D::LENGTH)?,
+        reading: match (with_unit("deflection", D::LENGTH)?, with_unit("dp", D::PRESSURE)?) {
+            (Some(d), None) => d,
+            (None, Some(dp)) => dp,
+            (Some(_), Some(_)) => {
+                return Err(rt(
+                    "campaign: give columns.deflection (a manometer) or columns.dp (a transducer's Δp), not both",
+                ));
+            }
+            (None, None) => {
+                return Err(rt(
+                    "campaign: columns.deflection (a manometer reading) or columns.dp (a transducer's Δp) is required",
+                ));
+            }
+        },
         fluid_temperature: req("fluid_temperature", D::TEMPERATURE)?,
         size: req("size", D::LENGTH)?,
         rectangular,
@@ -356,7 +381,7 @@ fn reductions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.func(
         "reduce_campaign",
         &Doc::new("reduce_campaign(table, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced.")
-            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection, fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{u_rel_coefficient, u_rel_density, u_rel_diameter, u_rel_dp (relative standard uncertainties, fractions), u_dp (absolute standard uncertainty of each Δp), coverage, rule, terms (method terms as in traverse_budget: only the layout term by default)}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture, md) with run_columns (key → column name); method2 #{md?, report: \"physics\" | \"method\"} adds each traverse by US EPA Method 2 eq. 2-7 and 2-10 (epa_m2_velocity_m_s, epa_m2_dry_flow_20C_760mmHg_m3_h, physics_velocity_m_s, epa_m2_minus_physics_pct, reported_route; M_d per run from md, else Method 3 eq. 3-1 from co2/o2)")
+            .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection (a manometer reading, length unit) or dp (a transducer's Δp, pressure unit; then no manometer is needed), fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{u_rel_coefficient, u_rel_density, u_rel_diameter, u_rel_dp (relative standard uncertainties, fractions), u_dp (absolute standard uncertainty of each Δp), coverage, rule, terms (method terms as in traverse_budget: only the layout term by default)}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture, md) with run_columns (key → column name); method2 #{md?, report: \"physics\" | \"method\"} adds each traverse by US EPA Method 2 eq. 2-7 and 2-10 (epa_m2_velocity_m_s, epa_m2_dry_flow_20C_760mmHg_m3_h, physics_velocity_m_s, epa_m2_minus_physics_pct, reported_route; M_d per run from md, else Method 3 eq. 3-1 from co2/o2)")
             .returns("Campaign (.traverses table, .failures)")
             .example("let t = table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})\n    .units(#{h: \"mm\", t: \"degC\", d: \"mm\", y: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),\n    columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\", position: \"y\"}};\nprint(reduce_campaign(t, spec).traverses);")
             .source("velocity-area method, ISO 3966:2008 §9–10; point physics as in Manometer.dp and Probe.velocity"),

@@ -26,8 +26,10 @@ use crate::units::unit::Unit;
 pub struct CampaignColumns {
     /// Traverse identifier (any type).
     pub traverse: String,
-    /// Manometer deflection, and its unit.
-    pub deflection: (String, Unit),
+    /// The reading at each point, and its unit: a manometer deflection (a length unit,
+    /// reduced through the spec's manometer) or a transducer's Δp (a pressure unit, used
+    /// as it is; the manometer is then not read). The unit says which.
+    pub reading: (String, Unit),
     /// Working-fluid temperature, and its unit (absolute temperature unit).
     pub fluid_temperature: (String, Unit),
     /// Inside diameter of a round conduit, or the width of a rectangular one (the side with
@@ -51,7 +53,7 @@ impl CampaignColumns {
     pub fn standard() -> Result<Self> {
         Ok(Self {
             traverse: "traverse".into(),
-            deflection: ("deflection_mm".into(), Unit::parse("mm")?),
+            reading: ("deflection_mm".into(), Unit::parse("mm")?),
             fluid_temperature: ("fluid_temp_c".into(), Unit::parse("degC")?),
             size: ("diameter_mm".into(), Unit::parse("mm")?),
             rectangular: None,
@@ -393,6 +395,8 @@ struct RowPhysics<'a> {
     temp: SiColumn<'a>,
     gauge_t: Option<SiColumn<'a>>,
     two_liquid: bool,
+    /// The reading is a Δp (a transducer), not a deflection.
+    dp_reading: bool,
 }
 
 /// Memos of the densities, which readings of one traverse usually repeat.
@@ -411,12 +415,21 @@ impl Memos {
 impl<'a> RowPhysics<'a> {
     fn new(df: &'a DataFrame, spec: &'a CampaignSpec) -> Result<Self> {
         let cols = &spec.columns;
+        let dim = crate::Quantity::from_unit(1.0, &cols.reading.1).dimension;
+        if dim != crate::units::dimension::Dimension::PRESSURE && dim != crate::units::dimension::Dimension::LENGTH {
+            return Err(Error::Column {
+                column: cols.reading.0.clone(),
+                message: "the reading must be a deflection (a length unit) or a Δp (a pressure unit)".into(),
+            });
+        }
         Ok(Self {
             spec,
-            defl: column(df, &cols.deflection.0, &cols.deflection.1, "deflection")?,
+            defl: column(df, &cols.reading.0, &cols.reading.1, "reading")?,
             temp: column(df, &cols.fluid_temperature.0, &cols.fluid_temperature.1, "fluid temperature")?,
             gauge_t: cols.gauge_temperature.as_ref().map(|(n, u)| column(df, n, u, "gauge temperature")).transpose()?,
             two_liquid: matches!(spec.manometer.kind(), crate::instruments::manometer::ManometerKind::TwoLiquid { .. }),
+            dp_reading: crate::Quantity::from_unit(1.0, &cols.reading.1).dimension
+                == crate::units::dimension::Dimension::PRESSURE,
         })
     }
 
@@ -426,9 +439,18 @@ impl<'a> RowPhysics<'a> {
         let spec = self.spec;
         let h = self.defl.at(row);
         if !h.is_finite() {
-            return Err(Error::NotFinite { context: "reading", param: "deflection", value: self.defl.raw(row) });
+            let param = if self.dp_reading { "Δp" } else { "deflection" };
+            return Err(Error::NotFinite { context: "reading", param, value: self.defl.raw(row) });
         }
         let t = self.temp.at(row);
+        if self.dp_reading {
+            let rho_f = m.rho_f.get(t, |t| c.fluid.density_si(c.p, t))?;
+            let v = match c.gamma {
+                Some(g) => isentropic(spec.probe.coefficient, h, rho_f, c.p, g),
+                None => incompressible(spec.probe.coefficient, h, rho_f),
+            };
+            return Ok((h, rho_f, v, t));
+        }
         let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
         let rho_f = m.rho_f.get(t, |t| c.fluid.density_si(c.p, t))?;
         let rho_m = m.rho_m.get(tg, |t| Ok(spec.manometer.liquid().density(crate::Temperature::kelvin(t))?.si()))?;
