@@ -27,6 +27,10 @@ EXPECT = {
     "03-stack-traverse-s-type.ipynb": [r"S-type calibration SP-07 of 2026-09-22", r"Method 4 moisture: ", r"all method checks passed: true", r"Stack run R3"],
     "04-profile-study.ipynb": [r"x02D", r"x30D", r"power law, n = 7"],
     # Shares of the budget add to 100 %; Monte Carlo interval printed.
+    # Generated from a 1/7 power-law profile of 1.50 m/s mean (demo-data/make-gloomwater-logged.py);
+    # 300 samples at 5 Hz per point, 8 s settling drops 40.
+    "07-logged-traverse-measured-budget.ipynb": [r"mean velocity 1\.50\d m/s", r"P01\s+260\s+40", r"Type A from the logged samples",
+                                                 r"Monte Carlo \(JCGM 101:2008\): \d+ trials, adaptive procedure"],
     "05-traverse-uncertainty-budget.ipynb": [r"U = 0\.057 m³/s \(expanded, k = 1\.96, 95 %", r"Monte Carlo \(JCGM 101:2008\): \d+ trials, adaptive procedure", r"Verdict: the GUM interval", r"GUM: Q = 3\.74\d* m³/s"],
 }
 
