@@ -1848,6 +1848,32 @@ mod tests {
         assert!(e.message.contains("not a pressure"), "{}", e.message);
     }
 
+    /// The point of mean velocity from scripts: for the log law y/R = e^(−3/2) = 0.2231
+    /// (derived: the log law's mean lies 3/(2κ) friction velocities below the centreline),
+    /// so 44.6 mm from the wall of a 400 mm pipe; two readings are averaged and checked.
+    #[test]
+    fn mean_point_places_the_probe_and_checks_symmetry() {
+        let mut s = Session::new();
+        eval(&mut s, "let w = water().state(350.kPa, 11.degC); let pipe = round_section(400.mm);");
+        let y: f64 = eval(&mut s, "mean_point(1.5.m_s, w, pipe, #{family: \"log-law\"}).from_wall.si")
+            .parse()
+            .unwrap_or(f64::NAN);
+        assert!((y - 0.2 * (-1.5f64).exp()).abs() < 1e-9, "{y}");
+        let v: f64 =
+            eval(&mut s, "mean_point([1.52.m_s, 1.48.m_s], w, pipe, #{}).mean_velocity.si").parse().unwrap_or(f64::NAN);
+        assert!((v - 1.50).abs() < 1e-12);
+        assert!(
+            eval(&mut s, "mean_point([1.6.m_s, 1.4.m_s], w, pipe, #{tolerance_pct: 5}).warnings")
+                .contains("not axisymmetric")
+        );
+        assert!(
+            err(&mut s, "mean_point([1.5.m_s, 1.5.m_s, 1.5.m_s], w, pipe, #{})")
+                .message
+                .contains("two at symmetric points")
+        );
+        assert!(err(&mut s, "mean_point(1.5.m_s, w, rect_section(400.mm, 300.mm), #{})").message.contains("circular"));
+    }
+
     /// Every formula the library writes into worked steps reads as MathML: no step falls
     /// back to plain text (the fallback keeps a step, but a report should not need it).
     #[test]
