@@ -165,7 +165,8 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         out
     });
     type Mp = stagna::section::profile::MeanPointResult;
-    let props: [(&str, &str, fn(&mut Mp) -> Dynamic); 7] = [
+    type Getter = fn(&mut Mp) -> Dynamic;
+    let props: [(&str, &str, Getter); 7] = [
         ("mean_velocity", "Mean velocity (the reading, or the mean of the two).", |m| {
             Dynamic::from(Q::si(m.mean_velocity.si(), D::VELOCITY))
         }),
