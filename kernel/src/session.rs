@@ -1874,6 +1874,33 @@ mod tests {
         assert!(err(&mut s, "mean_point(1.5.m_s, w, rect_section(400.mm, 300.mm), #{})").message.contains("circular"));
     }
 
+    /// m fitted from points on an exact 1/7 power law (u = 12·(y/R)^(1/7), check-values.md §6)
+    /// is 7, and the wall-fit integration equals the integration with m = 7.
+    #[test]
+    fn wall_exponent_from_points_feeds_the_integration() {
+        let mut s = Session::new();
+        let ys = [15.4, 67.8, 532.2, 584.6];
+        let vs: Vec<String> = ys
+            .iter()
+            .map(|y: &f64| format!("{:.12}", 12.0 * ((300.0 - (y - 300.0).abs()) / 300.0).powf(1.0 / 7.0)))
+            .collect();
+        eval(
+            &mut s,
+            &format!("let t = table_from(#{{y: {ys:?}, v: [{}]}}).units(#{{y: \"mm\", v: \"m/s\"}});", vs.join(", ")),
+        );
+        let m: f64 =
+            eval(&mut s, "wall_exponent(t[\"y\"], t[\"v\"], round_section(600.mm), #{}).m").parse().unwrap_or(f64::NAN);
+        assert!((m - 7.0).abs() < 1e-6, "{m}");
+        let a = eval(&mut s, "section_mean(t[\"y\"], t[\"v\"], round_section(600.mm), #{averaging: \"wall-fit\"}).si");
+        let b = eval(&mut s, "section_mean(t[\"y\"], t[\"v\"], round_section(600.mm), #{averaging: 7}).si");
+        assert_eq!(a, b);
+        assert!(
+            err(&mut s, "section_mean(t[\"y\"], t[\"v\"], round_section(600.mm), #{averaging: \"fancy\"})")
+                .message
+                .contains("wall-fit")
+        );
+    }
+
     /// Every formula the library writes into worked steps reads as MathML: no step falls
     /// back to plain text (the fallback keeps a step, but a report should not need it).
     #[test]

@@ -14,6 +14,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<FlowResult>("Flow");
     r.group("Conduits, profiles and flows");
     flows(r, prefs);
+    wall_exponent_fn(r);
 }
 
 /// Flows from a mean velocity, and the section mean from points.
@@ -71,7 +72,7 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 
     r.func(
         "section_mean",
-        &Doc::new("section_mean(wall_distance, velocity, conduit, options) -> Quantity", "Mean velocity of a round section from points on one or more diameters: the arithmetic mean (what equal-area and log-linear layouts are for) or numerical integration with a power-law wall region. Options: averaging (\"arithmetic\" or a wall exponent m, e.g. 7), line (a column of diameter numbers, when there are several).")
+        &Doc::new("section_mean(wall_distance, velocity, conduit, options) -> Quantity", "Mean velocity of a round section from points on one or more diameters: the arithmetic mean (what equal-area and log-linear layouts are for) or numerical integration with a power-law wall region. Options: averaging (\"arithmetic\", a wall exponent m, e.g. 7, or \"wall-fit\": m fitted from the two points nearest the wall on each radius, see wall_exponent), line (a column of diameter numbers, when there are several).")
             .param("wall_distance", "distance of each point from the port-side wall (length column)")
             .param("velocity", "point velocities (velocity column)")
             .example("let t = table_from(#{y: [40.0, 140.0, 460.0, 560.0], v: [10.1, 11.8, 11.7, 10.0]}).units(#{y: \"mm\", v: \"m/s\"});\nprint(section_mean(t[\"y\"], t[\"v\"], round_section(600.mm), #{averaging: 7}));")
@@ -96,11 +97,62 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             };
             let averaging = match field(&o, "averaging") {
                 None => Averaging::Arithmetic,
-                Some(a) if a.is_string() => Averaging::Arithmetic,
+                Some(a) if a.is_string() => match text(a, "averaging")?.as_str() {
+                    "arithmetic" => Averaging::Arithmetic,
+                    "wall-fit" => Averaging::Integrate {
+                        wall_exponent: lib(stagna::section::integration::wall_exponent(&lines, &positions, &v.si))?.m,
+                    },
+                    o => return Err(rt(format!("section_mean: averaging is \"arithmetic\", \"wall-fit\" or a wall exponent m, got \"{o}\""))),
+                },
                 Some(a) => Averaging::Integrate { wall_exponent: number(a, "averaging")? },
             };
             let m = lib(section_mean(&lines, &positions, &v.si, averaging))?;
             Ok(Q { q: m.mean.into(), unit: Some("m/s".into()) })
+        },
+    );
+}
+
+/// Registers `wall_exponent` (called from `register`).
+fn wall_exponent_fn(r: &mut Registrar<'_>) {
+    r.func(
+        "wall_exponent",
+        &Doc::new("wall_exponent(wall_distance, velocity, conduit, options) -> map", "The wall-region exponent m of u ∝ y^(1/m) from measured points of a round section: on each radius the two points nearest the wall give m = ln(y_a/y_b) / ln(u_a/u_b); #{m (their mean), per_radius: [#{line, side, m}]}. Option: line (a column of diameter numbers). An m outside 4 … 20, or a velocity that does not rise away from the wall, is an error naming the radius.")
+            .example("let t = table_from(#{y: [15.4, 67.8, 532.2, 584.6], v: [9.49, 11.72, 11.72, 9.49]}).units(#{y: \"mm\", v: \"m/s\"});\nprint(wall_exponent(t[\"y\"], t[\"v\"], round_section(600.mm), #{}));")
+            .source("the power law's own ratio (derived); ISO 3966 has an annex on determining m near the wall (its formulas not re-read here)"),
+        |y: Col, v: Col, c: Conduit, o: Map| -> Res<Map> {
+            check_keys(&o, &["line"], "wall_exponent")?;
+            if y.dimension != D::LENGTH || v.dimension != D::VELOCITY {
+                return Err(rt("wall_exponent: wall distance must be a length column and velocity a velocity column (declare their units)"));
+            }
+            let stagna::Section::Circular { diameter } = c.section else {
+                return Err(rt("wall_exponent: a round conduit"));
+            };
+            let d = diameter.si();
+            let positions: Vec<stagna::Position> =
+                y.si.iter().map(|s| stagna::Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 }).collect();
+            let lines: Vec<usize> = match field(&o, "line") {
+                Some(l) => {
+                    let lc: Col = l.clone().try_cast().ok_or_else(|| rt("wall_exponent: line must be a column"))?;
+                    lc.si.iter().map(|x| x.max(0.0) as usize).collect()
+                }
+                None => vec![0; y.si.len()],
+            };
+            let w = lib(stagna::section::integration::wall_exponent(&lines, &positions, &v.si))?;
+            let mut m = Map::new();
+            m.insert("m".into(), Dynamic::from(w.m));
+            let per: rhai::Array = w
+                .per_radius
+                .iter()
+                .map(|(l, side, m)| {
+                    let mut e = Map::new();
+                    e.insert("line".into(), Dynamic::from(*l as i64));
+                    e.insert("side".into(), Dynamic::from(if *side { "port side" } else { "far side" }.to_string()));
+                    e.insert("m".into(), Dynamic::from(*m));
+                    Dynamic::from(e)
+                })
+                .collect();
+            m.insert("per_radius".into(), Dynamic::from(per));
+            Ok(m)
         },
     );
 }

@@ -114,6 +114,72 @@ pub fn section_mean(
     }
 }
 
+/// The wall exponent m fitted from the two measured points nearest the wall on each radius.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WallExponent {
+    /// Mean of the radii's exponents.
+    pub m: f64,
+    /// (line, the radius's side: true for r/R < 0, its m) for every radius that gave one.
+    pub per_radius: Vec<(usize, bool, f64)>,
+}
+
+/// The wall-region exponent m (u ∝ y^(1/m) near the wall) from measured points of a round
+/// section: on each radius the two points nearest the wall, a and b, give
+/// m = ln(y_a/y_b) / ln(u_a/u_b) (the power law's own ratio, derived); the section's m is the
+/// mean over the radii. ISO 3966 gives an annex on determining m for the extrapolation near
+/// the wall (its title read in the published contents of the identical BS 1042-2.1:1983; its
+/// formulas not re-read here). An m outside 4 … 20 from a radius is an error naming it.
+pub fn wall_exponent(lines: &[usize], positions: &[Position], velocities: &[f64]) -> Result<WallExponent> {
+    check_inputs(positions, velocities)?;
+    let mut radii: BTreeMap<(usize, bool), Vec<(f64, f64)>> = BTreeMap::new();
+    for (i, ((&line, pos), &v)) in lines.iter().zip(positions).zip(velocities).enumerate() {
+        let Position::Radial { r_over_r, .. } = *pos else {
+            return Err(Error::Inconsistent {
+                context: "wall exponent",
+                message: "needs points on the radii of a round section".into(),
+            });
+        };
+        finite("wall exponent", "r/R", r_over_r).map_err(|e| e.at_row(i))?;
+        radii.entry((line, r_over_r < 0.0)).or_default().push((1.0 - r_over_r.abs(), v));
+    }
+    let mut per_radius = Vec::new();
+    for ((line, side), mut pts) in radii {
+        if pts.len() < 2 {
+            continue;
+        }
+        pts.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let ((ya, ua), (yb, ub)) = (pts[0], pts[1]);
+        if !(ya > 0.0 && yb > ya && ua > 0.0 && ub > ua) {
+            return Err(Error::Inconsistent {
+                context: "wall exponent",
+                message: format!(
+                    "line {line}, {} radius: the velocity does not rise away from the wall between its two outer points ({ua} and {ub} m/s): no power-law wall region to fit",
+                    if side { "negative" } else { "positive" }
+                ),
+            });
+        }
+        let m = (ya / yb).ln() / (ua / ub).ln();
+        if !(4.0..=20.0).contains(&m) {
+            return Err(Error::Inconsistent {
+                context: "wall exponent",
+                message: format!(
+                    "line {line}, {} radius: m = {m:.2} from its two outer points lies outside 4 … 20; the points do not follow a power-law wall region",
+                    if side { "negative" } else { "positive" }
+                ),
+            });
+        }
+        per_radius.push((line, side, m));
+    }
+    if per_radius.is_empty() {
+        return Err(Error::Inconsistent {
+            context: "wall exponent",
+            message: "no radius has two points to fit m from".into(),
+        });
+    }
+    let m = per_radius.iter().map(|x| x.2).sum::<f64>() / per_radius.len() as f64;
+    Ok(WallExponent { m, per_radius })
+}
+
 fn integrate(lines: &[usize], positions: &[Position], velocities: &[f64], m: f64) -> Result<SectionMean> {
     let circular = matches!(positions[0], Position::Radial { .. });
     // Group into radii (line, side) or lines, with the normalised distance from the
@@ -380,5 +446,21 @@ mod tests {
         assert_eq!(e.to_string(), "row 2: section mean: velocity must be a finite number, got NaN");
         assert!(section_mean(&[0], &[r(0.5), r(0.2)], &[1.0, 1.0], Averaging::Arithmetic).is_err());
         assert!(section_mean(&[0], &[r(0.5)], &[1.0], Averaging::Integrate { wall_exponent: 0.5 }).is_err());
+    }
+
+    /// Points on an exact 1/7 power law give back m = 7 on every radius (u = (1 − |r/R|)^(1/7),
+    /// check-values.md §6), and points on a 1/9 law m = 9.
+    #[test]
+    fn wall_exponent_recovers_the_power_law() {
+        for n in [7.0, 9.0] {
+            let rs = [-0.9487, -0.7746, -0.3162, 0.3162, 0.7746, 0.9487];
+            let pos: Vec<Position> = rs.iter().map(|&r| Position::Radial { r_over_r: r, angle_deg: 0.0 }).collect();
+            let v: Vec<f64> = rs.iter().map(|r: &f64| 12.0 * (1.0 - r.abs()).powf(1.0 / n)).collect();
+            let w = wall_exponent(&[0; 6], &pos, &v).unwrap();
+            assert!((w.m - n).abs() < 1e-9 && w.per_radius.len() == 2, "{w:?}");
+        }
+        let pos: Vec<Position> = [0.9, 0.5].iter().map(|&r| Position::Radial { r_over_r: r, angle_deg: 0.0 }).collect();
+        assert!(wall_exponent(&[0, 0], &pos, &[10.0, 9.0]).unwrap_err().to_string().contains("does not rise"));
+        assert!(wall_exponent(&[0, 0], &pos, &[10.0, 10.01]).unwrap_err().to_string().contains("outside 4"));
     }
 }
