@@ -28,6 +28,7 @@ mod repl;
 mod report;
 mod run;
 mod session;
+mod shard;
 
 /// Differential-pressure flow measurement: fluids, manometers, probes, traverses.
 #[derive(Parser)]

@@ -47,6 +47,15 @@ pub struct RunArgs {
     /// with the cautions) under this name in the output folder (one per input file).
     #[arg(long, value_name = "FILE.html")]
     pub report: Option<String>,
+    /// Run only shard K of N of the inputs (K from 0; `auto/N` reads the index from
+    /// SLURM_ARRAY_TASK_ID or JOB_COMPLETION_INDEX). Every input belongs to exactly one
+    /// shard, chosen from a hash of its path relative to the inputs' common folder.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
+    /// Skip inputs that this shard's manifest in the output folder records as done with
+    /// the same contents and the same script; redo failed, interrupted and changed ones.
+    #[arg(long)]
+    pub resume: bool,
 }
 
 /// A `--set` value as a script value.
@@ -160,14 +169,7 @@ pub fn output_dirs(files: &[PathBuf], out: &Path) -> Result<Vec<PathBuf>, String
             ));
         }
     }
-    let mut common: PathBuf = abs[0].parent().map(Path::to_path_buf).unwrap_or_default();
-    for a in &abs[1..] {
-        while !a.starts_with(&common) {
-            if !common.pop() {
-                break;
-            }
-        }
-    }
+    let common = common_folder(&abs);
     let rel = |a: &Path, keep_ext: bool| -> PathBuf {
         let r = a.strip_prefix(&common).unwrap_or(a);
         let name = match (keep_ext, r.extension()) {
@@ -185,6 +187,41 @@ pub fn output_dirs(files: &[PathBuf], out: &Path) -> Result<Vec<PathBuf>, String
         .map(|(a, p)| {
             let clash = plain.iter().filter(|q| *q == p).count() > 1;
             out.join(if clash { rel(a, true) } else { p.clone() })
+        })
+        .collect())
+}
+
+/// The folder all the (canonical) paths share.
+fn common_folder(abs: &[PathBuf]) -> PathBuf {
+    let mut common: PathBuf = abs[0].parent().map(Path::to_path_buf).unwrap_or_default();
+    for a in &abs[1..] {
+        while !a.starts_with(&common) {
+            if !common.pop() {
+                break;
+            }
+        }
+    }
+    common
+}
+
+/// Each input's key for shards and manifests: its path relative to the inputs' common
+/// folder, with '/' between parts.
+pub fn input_keys(files: &[PathBuf]) -> Result<Vec<String>, String> {
+    let abs: Vec<PathBuf> = files
+        .iter()
+        .map(|f| std::fs::canonicalize(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display())))
+        .collect::<Result<_, _>>()?;
+    let common =
+        if abs.len() == 1 { abs[0].parent().map(Path::to_path_buf).unwrap_or_default() } else { common_folder(&abs) };
+    Ok(abs
+        .iter()
+        .map(|a| {
+            a.strip_prefix(&common)
+                .unwrap_or(a)
+                .components()
+                .map(|c| c.as_os_str().to_string_lossy().to_string())
+                .collect::<Vec<_>>()
+                .join("/")
         })
         .collect())
 }
@@ -246,9 +283,81 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         eprintln!("{}: removed {removed} temporary file(s) left by an interrupted earlier run", args.out.display());
     }
     let several = args.files.len() > 1;
-    let dirs = if several { output_dirs(&args.files, &args.out)? } else { vec![args.out.clone()] };
+    let all_dirs = if several { output_dirs(&args.files, &args.out)? } else { vec![args.out.clone()] };
+    let shard = match &args.shard {
+        Some(spec) => crate::shard::Shard::parse(spec, |v| std::env::var(v).ok())?,
+        None => crate::shard::Shard { index: 0, count: 1 },
+    };
+    let keys = input_keys(&args.files)?;
+    let manifest_path = crate::shard::Manifest::path(&args.out, shard);
+    let mut manifest = crate::shard::Manifest::new(&script, shard);
+    let earlier = if args.resume { crate::shard::Manifest::read(&manifest_path)? } else { None };
+    if let Some(m) = &earlier
+        && m.script_sha256 != manifest.script_sha256
+    {
+        return Err(format!(
+            "{}: this manifest was written for another version of the script (SHA-256 {}…, now {}…); --resume only continues the same script: rerun without --resume, or use a new output folder",
+            manifest_path.display(),
+            &m.script_sha256[..12],
+            &manifest.script_sha256[..12]
+        )
+        .into());
+    }
+    // This shard's inputs, less those an earlier run finished with the same contents.
+    let mut chosen: Vec<usize> = Vec::new();
+    let mut skipped = 0usize;
+    for (i, (f, key)) in args.files.iter().zip(&keys).enumerate() {
+        if !shard.owns(key) {
+            continue;
+        }
+        let (size, sha) =
+            crate::shard::file_sha256(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display()))?;
+        let entry = crate::shard::Entry {
+            size,
+            sha256: sha,
+            output: all_dirs[i].display().to_string(),
+            status: "pending".into(),
+            error: None,
+        };
+        match earlier.as_ref().and_then(|m| m.inputs.get(key)) {
+            Some(e) if e.status == "done" && e.sha256 == entry.sha256 && e.size == entry.size => {
+                skipped += 1;
+                manifest.inputs.insert(key.clone(), e.clone());
+                continue;
+            }
+            Some(e) if e.status == "done" => {
+                eprintln!("{}: changed since the manifest recorded it done; running it again", f.display());
+            }
+            Some(e) => eprintln!("{}: {} in the earlier run; running it again", f.display(), e.status),
+            None => {}
+        }
+        manifest.inputs.insert(key.clone(), entry);
+        chosen.push(i);
+    }
+    if skipped > 0 {
+        eprintln!("--resume: {skipped} input(s) already done with the same contents and script, skipped");
+    }
+    if args.shard.is_some() {
+        eprintln!("shard {}/{}: {} of {} input(s) to run", shard.index, shard.count, chosen.len(), args.files.len());
+    }
+    manifest.write(&manifest_path)?;
+    let manifest = std::sync::Mutex::new(manifest);
+    let record = |key: &str, status: &str, error: Option<String>| -> Result<(), String> {
+        let mut m = match manifest.lock() {
+            Ok(g) => g,
+            Err(e) => e.into_inner(),
+        };
+        if let Some(e) = m.inputs.get_mut(key) {
+            e.status = status.into();
+            e.error = error;
+        }
+        m.write(&manifest_path)
+    };
+    let files: Vec<PathBuf> = chosen.iter().map(|&i| args.files[i].clone()).collect();
+    let dirs: Vec<PathBuf> = chosen.iter().map(|&i| all_dirs[i].clone()).collect();
+    let chosen_keys: Vec<String> = chosen.iter().map(|&i| keys[i].clone()).collect();
     let bar = if several && std::io::stderr().is_terminal() {
-        let b = indicatif::ProgressBar::new(args.files.len() as u64);
+        let b = indicatif::ProgressBar::new(files.len() as u64);
         if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} files  {elapsed}  {msg}") {
             b.set_style(style);
         }
@@ -259,17 +368,21 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     // Big stacks as for the main thread (deep script data is dropped recursively).
     let pool = rayon::ThreadPoolBuilder::new().num_threads(args.jobs.unwrap_or(0)).stack_size(256 << 20).build()?;
     let results: Vec<RunResult> = pool.install(|| {
-        args.files
+        files
             .par_iter()
             .zip(dirs.par_iter())
-            .map(|(f, dir)| {
-                let r = match std::fs::create_dir_all(dir) {
+            .zip(chosen_keys.par_iter())
+            .map(|((f, dir), key)| {
+                let mut r = match record(key, "running", None).and_then(|()| {
+                    std::fs::create_dir_all(dir).map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
+                }) {
                     Ok(()) => run_one(args, limits, &script, Some(f), dir, &protected),
-                    Err(e) => RunResult {
-                        printed: vec![],
-                        error: Some(format!("{}: cannot create folder: {e}", dir.display())),
-                    },
+                    Err(e) => RunResult { printed: vec![], error: Some(e) },
                 };
+                let status = if r.error.is_some() { "failed" } else { "done" };
+                if let Err(e) = record(key, status, r.error.clone()) {
+                    r.error.get_or_insert(e);
+                }
                 if let Some(b) = &bar {
                     b.set_message(f.file_name().map(|s| s.to_string_lossy().to_string()).unwrap_or_default());
                     b.inc(1);
@@ -282,7 +395,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         b.finish_and_clear();
     }
     let mut failed = 0;
-    for (f, r) in args.files.iter().zip(&results) {
+    for (f, r) in files.iter().zip(&results) {
         if several {
             println!("== {} ==", f.display());
         }
@@ -296,7 +409,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     }
     print_caution(&results);
     if failed > 0 {
-        eprintln!("{failed} of {} file(s) failed", args.files.len());
+        eprintln!("{failed} of {} file(s) failed", files.len());
         return Ok(1);
     }
     Ok(0)

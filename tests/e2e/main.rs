@@ -5,3 +5,4 @@ mod demo;
 mod layout;
 mod repl;
 mod scripts;
+mod shards;
