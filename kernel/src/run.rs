@@ -1,7 +1,8 @@
 //! `stagna run SCRIPT [--set NAME=VALUE ...] [FILES ...]`: the batch runner.
 //!
 //! Each input file gets its own session (in parallel, with a progress bar on a
-//! terminal) with `input`, `input_name` and `output_dir` set; relative output paths go
+//! terminal) with `input`, `input_name`, `output_dir` and `run_dir` (the top output
+//! folder, for results shared by all inputs) set; relative output paths go
 //! to the output folder (a subfolder per input file when there are several, unique per
 //! input: its path relative to the inputs' common folder); temporaries that an
 //! interrupted earlier run left in the output folder are removed first; input
@@ -113,6 +114,10 @@ fn run_one(
         p.write_roots = Some(std::iter::once(args.out.clone()).chain(args.allow_write.iter().cloned()).collect());
     }
     session.set_var("output_dir", Dynamic::from(out_dir.display().to_string()));
+    // The run's top output folder, absolute: where results shared by all inputs go (a
+    // partitioned dataset that every input, and every shard, adds its files to).
+    let run_dir = std::fs::canonicalize(&args.out).unwrap_or_else(|_| args.out.clone());
+    session.set_var("run_dir", Dynamic::from(run_dir.display().to_string()));
     if let Some(f) = file {
         session.set_var("input", Dynamic::from(f.display().to_string()));
         let stem = f.file_stem().map(|s| s.to_string_lossy().to_string()).unwrap_or_default();

@@ -327,6 +327,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     queries(r, prefs);
     groups_and_joins(r);
     writing(r, prefs);
+    writing_partitioned(r, prefs);
 }
 
 /// Reading tables from files, demo data and script maps.
@@ -717,6 +718,37 @@ fn writing(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             }
             lib(stagna::io::table::write_table_with_units(&t.df, &target, &t.units))?;
             Ok(())
+        },
+    );
+}
+
+/// Writing a table as hive-partitioned Parquet.
+fn writing_partitioned(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    let pp = prefs.clone();
+    r.method(
+        "Table",
+        "write_partitioned",
+        &Doc::new("t.write_partitioned(folder, #{by, name}) -> array", "Writes the table as hive-partitioned Parquet: one file folder/<col>=<value>/…/<name>.parquet per combination of the `by` columns' values (those columns live in the folder names, as DuckDB's read_parquet(..., hive_partitioning = true) and polars' scan_parquet(..., hive_partitioning=True) expect), units in each file's metadata, each written through a temporary file and a rename. name defaults to \"part\"; in a batch run over many files give name: input_name so that files from different inputs (or concurrent shards) never collide. Values and names must be letters, digits, '.', '-' or '_'. Returns the paths written.")
+            .param("folder", "the dataset's root folder (in a batch run, relative to the output folder)")
+            .param("options", "map: by (array of column names), name")
+            .example("table_from(#{site: [\"north\", \"south\"], flow_m3_s: [1.2, 3.4]}).write_partitioned(\"example-fleet\", #{by: [\"site\"]});")
+            .source("the hive partition layout read by DuckDB and polars (their documentation)"),
+        move |t: &mut Tbl, folder: &str, o: Map| -> Res<Array> {
+            check_keys(&o, &["by", "name"], "write_partitioned")?;
+            let by: Vec<String> = match field(&o, "by") {
+                Some(d) => d
+                    .clone()
+                    .try_cast::<Array>()
+                    .ok_or_else(|| rt("write_partitioned: by is an array of column names"))?
+                    .iter()
+                    .map(|c| text(c, "by"))
+                    .collect::<Res<_>>()?,
+                None => return Err(rt("write_partitioned: by (the columns to partition by) is required")),
+            };
+            let name = field(&o, "name").map(|d| text(d, "name")).transpose()?.unwrap_or_else(|| "part".into());
+            let root = out_path(&pp, folder)?;
+            let files = lib(stagna::io::table::write_hive_partitioned(&t.df, &root, &by, &name, &t.units))?;
+            Ok(files.iter().map(|p| Dynamic::from(p.display().to_string())).collect())
         },
     );
 }

@@ -529,6 +529,76 @@ pub fn text_column(df: &DataFrame, name: &str) -> Result<Vec<String>> {
         .collect()
 }
 
+/// Writes `df` as hive-partitioned Parquet under `root`: one file
+/// `root/<col>=<value>/…/<name>.parquet` per combination of the `by` columns' values, those
+/// columns left out of the files (engines that read hive partitions — DuckDB's
+/// `read_parquet(..., hive_partitioning = true)`, polars' `scan_parquet(...,
+/// hive_partitioning=True)` — restore them from the path), each file with its columns'
+/// units in its metadata and written through a temporary file and a rename. Values must
+/// be path-safe (letters, digits, `.`, `-`, `_`, not starting with `.`); `name` likewise.
+/// Returns the files written, in partition order.
+pub fn write_hive_partitioned(
+    df: &DataFrame,
+    root: &Path,
+    by: &[String],
+    name: &str,
+    units: &BTreeMap<String, String>,
+) -> Result<Vec<PathBuf>> {
+    let safe = |v: &str| {
+        !v.is_empty() && !v.starts_with('.') && v.chars().all(|c| c.is_ascii_alphanumeric() || ".-_".contains(c))
+    };
+    if !safe(name) {
+        return Err(Error::Inconsistent {
+            context: "partitioned write",
+            message: format!("file name '{name}' must be letters, digits, '.', '-' or '_' (not starting with '.')"),
+        });
+    }
+    if by.is_empty() {
+        return Err(Error::Inconsistent {
+            context: "partitioned write",
+            message: "give at least one column to partition by".into(),
+        });
+    }
+    let keys: Vec<Vec<String>> = by.iter().map(|c| text_column(df, c)).collect::<Result<_>>()?;
+    let mut groups: BTreeMap<Vec<String>, Vec<IdxSize>> = BTreeMap::new();
+    for row in 0..df.height() {
+        let key: Vec<String> = keys.iter().map(|k| k[row].clone()).collect();
+        for (c, v) in by.iter().zip(&key) {
+            if !safe(v) {
+                return Err(Error::Column {
+                    column: c.clone(),
+                    message: format!(
+                        "row {}: value '{v}' cannot name a partition folder (letters, digits, '.', '-', '_')",
+                        row + 1
+                    ),
+                });
+            }
+        }
+        groups.entry(key).or_default().push(row as IdxSize);
+    }
+    let keep: Vec<String> = df.get_column_names().iter().map(|c| c.to_string()).filter(|c| !by.contains(c)).collect();
+    let units: BTreeMap<String, String> =
+        units.iter().filter(|(c, _)| keep.contains(c)).map(|(c, u)| (c.clone(), u.clone())).collect();
+    let mut written = Vec::new();
+    for (key, rows) in groups {
+        let idx = IdxCa::from_vec("idx".into(), rows);
+        let part = df
+            .take(&idx)
+            .and_then(|p| p.select(keep.iter().map(|c| c.as_str())))
+            .map_err(|e| Error::Inconsistent { context: "partitioned write", message: e.to_string() })?;
+        let mut dir = root.to_path_buf();
+        for (c, v) in by.iter().zip(&key) {
+            dir.push(format!("{c}={v}"));
+        }
+        std::fs::create_dir_all(&dir)
+            .map_err(|e| Error::File { path: dir.display().to_string(), message: e.to_string() })?;
+        let path = dir.join(format!("{name}.parquet"));
+        write_parquet_with_units(&part, &path, &units)?;
+        written.push(path);
+    }
+    Ok(written)
+}
+
 /// A float column of `df` as a contiguous vector (integers converted, nulls as NaN).
 pub fn float_column(df: &DataFrame, name: &str) -> Result<Vec<f64>> {
     let col = find_column(df, name)?;
