@@ -1901,6 +1901,26 @@ mod tests {
         );
     }
 
+    /// A rectangle's budget has its own sides as inputs; one side without the other, or a
+    /// diameter with them, is refused.
+    #[test]
+    fn rectangular_budgets_take_width_and_height() {
+        let mut s = Session::new();
+        let base = "let o = #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, width: 800.mm, u_width: 4.mm, height: 500.mm, u_height: 1.mm};";
+        eval(&mut s, base);
+        let names = eval(&mut s, "traverse_budget([100.Pa, 110.Pa], o).table().texts(\"input\")");
+        assert!(names.contains("width W") && names.contains("height H") && !names.contains("diameter"), "{names}");
+        // Q = W·H·mean(√(2Δp/ρ)) with C = 1 (hand-worked).
+        let q: f64 = eval(&mut s, "traverse_budget([100.Pa, 110.Pa], o).value").parse().unwrap_or(f64::NAN);
+        let want = 0.4 * ((200.0f64 / 1.2).sqrt() + (220.0f64 / 1.2).sqrt()) / 2.0;
+        assert!((q - want).abs() < 1e-9, "{q} vs {want}");
+        assert!(
+            err(&mut s, "o.remove(\"height\"); traverse_budget([100.Pa], o)")
+                .message
+                .contains("width, u_width, height and u_height")
+        );
+    }
+
     /// Every formula the library writes into worked steps reads as MathML: no step falls
     /// back to plain text (the fallback keeps a step, but a report should not need it).
     #[test]

@@ -111,12 +111,12 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let tb_prefs = prefs.clone();
     r.func(
         "traverse_budget",
-        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter (rectangular: width and height as equivalent diameter); u_rel_dp (relative standard uncertainty of each Δp, a fraction, default 0.005) and u_dp (absolute standard uncertainty of each Δp, default 0.5 Pa), combined in quadrature; transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and u_rel_dp and u_dp count only when given). The earlier dp_rel and dp_abs still work, with a deprecation warning; sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (the layout/integration term: \"equal-area\", \"log-linear\", \"log-chebyshev\"); terms (method terms: by default only the layout term, which is derived; a map sets, adds or removes terms: name: () removes, name: u_rel or #{u_rel, distribution: \"normal\"|\"rectangular\"|\"triangular\", source} sets; known names layout, positioning, unsteadiness, turbulence, alignment, any other name adds a term; typical_method_terms() gives typical unsourced magnitudes to opt into); coverage (0.95); output (\"flow\" or \"velocity\"). dp may also be the table of sample_stats: each point's mean Δp then carries its Type A u from the samples, combined with u_rel_dp and u_dp (which default to 0 there), with Welch–Satterthwaite degrees of freedom.")
+        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter for a round section, or width, u_width, height, u_height for a rectangle (its own area W·H, each side an input; sources.diameter names their source); u_rel_dp (relative standard uncertainty of each Δp, a fraction, default 0.005) and u_dp (absolute standard uncertainty of each Δp, default 0.5 Pa), combined in quadrature; transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and u_rel_dp and u_dp count only when given). The earlier dp_rel and dp_abs still work, with a deprecation warning; sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (the layout/integration term: \"equal-area\", \"log-linear\", \"log-chebyshev\"); terms (method terms: by default only the layout term, which is derived; a map sets, adds or removes terms: name: () removes, name: u_rel or #{u_rel, distribution: \"normal\"|\"rectangular\"|\"triangular\", source} sets; known names layout, positioning, unsteadiness, turbulence, alignment, any other name adds a term; typical_method_terms() gives typical unsourced magnitudes to opt into); coverage (0.95); output (\"flow\" or \"velocity\"). dp may also be the table of sample_stats: each point's mean Δp then carries its Type A u from the samples, combined with u_rel_dp and u_dp (which default to 0 there), with Welch–Satterthwaite degrees of freedom.")
             .param("dp", "pressure column or array of pressures, one per point (all > 0)")
             .example("let dps = [98.Pa, 112.Pa, 118.Pa, 115.Pa, 101.Pa, 95.Pa];\nlet b = traverse_budget(dps, #{coefficient: 0.998, u_coefficient: 0.0025, density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, u_rel_dp: 0.005, u_dp: 0.4.Pa});\nprint(b);")
             .source("JCGM 100:2008 (GUM) §5, §G; method terms as documented in the library (ISO 3966 §10 and common practice)"),
         move |d: Dynamic, o: Map| -> Res<Budget> {
-            check_keys_or_old(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "u_rel_dp", "u_dp", "transducer", "sources", "rule", "terms", "coverage", "output"], &["dp_rel", "dp_abs"], "traverse_budget")?;
+            check_keys_or_old(&o, &["coefficient", "u_coefficient", "density", "u_density", "diameter", "u_diameter", "width", "u_width", "height", "u_height", "u_rel_dp", "u_dp", "transducer", "sources", "rule", "terms", "coverage", "output"], &["dp_rel", "dp_abs"], "traverse_budget")?;
             let rel_dp = renamed_option(&o, "u_rel_dp", "dp_rel", &tb_prefs, "traverse_budget");
             let abs_dp = renamed_option(&o, "u_dp", "dp_abs", &tb_prefs, "traverse_budget");
             let sources: Map = match field(&o, "sources") {
@@ -134,8 +134,21 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             let uc = number(req("u_coefficient")?, "u_coefficient")?;
             let rho = si_of(req("density")?, D::DENSITY, "density")?;
             let urho = si_of(req("u_density")?, D::DENSITY, "u_density")?;
-            let dd = si_of(req("diameter")?, D::LENGTH, "diameter")?;
-            let ud = si_of(req("u_diameter")?, D::LENGTH, "u_diameter")?;
+            // A round section by its diameter, or a rectangle by its own width and height.
+            let sides = match (field(&o, "width"), field(&o, "height"), field(&o, "diameter")) {
+                (Some(_), Some(_), None) => Some((
+                    si_of(req("width")?, D::LENGTH, "width")?,
+                    si_of(req("u_width")?, D::LENGTH, "u_width")?,
+                    si_of(req("height")?, D::LENGTH, "height")?,
+                    si_of(req("u_height")?, D::LENGTH, "u_height")?,
+                )),
+                (None, None, Some(_)) => None,
+                _ => return Err(rt("traverse_budget: give diameter and u_diameter (a round section), or width, u_width, height and u_height (a rectangle)")),
+            };
+            let (dd, ud) = match sides {
+                None => (si_of(req("diameter")?, D::LENGTH, "diameter")?, si_of(req("u_diameter")?, D::LENGTH, "u_diameter")?),
+                Some((w, uw, _, _)) => (w, uw),
+            };
             let transducer: Option<stagna::instruments::transducer::Transducer> = match field(&o, "transducer") {
                 None => None,
                 Some(t) => Some(t.clone().try_cast().ok_or_else(|| rt("traverse_budget: 'transducer' must be a Transducer (setup.transducer(id))"))?),
@@ -187,13 +200,26 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                 }
                 (Some(t), None) => lib(transducer_dp_inputs(t, &dps, dp_rel, dp_abs))?,
             };
-            let mut t = lib(TraverseUncertainty::new(
-                lib(Input::normal("probe coefficient C", "1", c, uc))?.with_source(&source_of("coefficient", GIVEN)?),
-                lib(Input::normal("density ρ", "kg/m³", rho, urho))?.with_source(&source_of("density", GIVEN)?),
-                lib(Input::normal("diameter D", "m", dd, ud))?.with_source(&source_of("diameter", GIVEN)?),
-                &method_terms(field(&o, "terms"), rule, "traverse_budget")?,
-                points,
-            ))?;
+            let coefficient = lib(Input::normal("probe coefficient C", "1", c, uc))?.with_source(&source_of("coefficient", GIVEN)?);
+            let density = lib(Input::normal("density ρ", "kg/m³", rho, urho))?.with_source(&source_of("density", GIVEN)?);
+            let terms = method_terms(field(&o, "terms"), rule, "traverse_budget")?;
+            let mut t = match sides {
+                None => lib(TraverseUncertainty::new(
+                    coefficient,
+                    density,
+                    lib(Input::normal("diameter D", "m", dd, ud))?.with_source(&source_of("diameter", GIVEN)?),
+                    &terms,
+                    points,
+                ))?,
+                Some((w, uw, h, uh)) => lib(TraverseUncertainty::rectangular(
+                    coefficient,
+                    density,
+                    lib(Input::normal("width W", "m", w, uw))?.with_source(&source_of("diameter", GIVEN)?),
+                    lib(Input::normal("height H", "m", h, uh))?.with_source(&source_of("diameter", GIVEN)?),
+                    &terms,
+                    points,
+                ))?,
+            };
             if velocity {
                 t = t.for_mean_velocity();
             }

@@ -146,21 +146,29 @@ pub struct TraverseFlowModel {
     /// k in A = k·D²: π/4 for a round conduit (the default), 1 for a rectangle given by
     /// its equivalent size √(W·H).
     pub area_factor: f64,
+    /// A rectangle given by its own width and height: inputs C, ρ, W, H, then the terms and
+    /// the Δp, and A = W·H (the area factor is not used).
+    pub rectangular: bool,
 }
 
 impl Model for TraverseFlowModel {
     fn eval<R: Real>(&self, x: &[R]) -> R {
-        let (c, rho, d) = (x[0], x[1], x[2]);
+        let (c, rho) = (x[0], x[1]);
+        let shared = if self.rectangular { 4 } else { 3 };
         let mut factor = R::constant(1.0);
-        for f in &x[3..3 + self.terms] {
+        for f in &x[shared..shared + self.terms] {
             factor = factor * *f;
         }
         let mut sum = R::constant(0.0);
-        for dp in &x[3 + self.terms..] {
+        for dp in &x[shared + self.terms..] {
             sum = sum + (R::constant(2.0) * *dp / rho).sqrt();
         }
         let mean = factor * c * sum / R::constant(self.points as f64);
-        if self.mean_velocity { mean } else { mean * R::constant(self.area_factor) * d * d }
+        match (self.mean_velocity, self.rectangular) {
+            (true, _) => mean,
+            (false, true) => mean * x[2] * x[3],
+            (false, false) => mean * R::constant(self.area_factor) * x[2] * x[2],
+        }
     }
 }
 
@@ -301,9 +309,25 @@ impl TraverseUncertainty {
                 points,
                 mean_velocity: false,
                 area_factor: std::f64::consts::FRAC_PI_4,
+                rectangular: false,
             },
             inputs,
         })
+    }
+
+    /// A rectangular section with its own width and height as inputs (A = W·H).
+    pub fn rectangular(
+        coefficient: Input,
+        density: Input,
+        width: Input,
+        height: Input,
+        terms: &[MethodTerm],
+        dps: Vec<Input>,
+    ) -> Result<Self> {
+        let mut t = Self::new(coefficient, density, width, terms, dps)?;
+        t.inputs.insert(3, height);
+        t.model.rectangular = true;
+        Ok(t)
     }
 
     /// The same traverse with another area factor k (A = k·D²).
@@ -329,6 +353,27 @@ mod tests {
     use super::*;
     use crate::uncertainty::monte_carlo::{McOptions, monte_carlo, validate};
     use crate::uncertainty::sensitivities;
+
+    /// A rectangle's own sides: Q = W·H·C·√(2/ρ)·mean √Δp, so u_rel(Q)² carries
+    /// u_rel(W)² + u_rel(H)² (JCGM 100 §5.1.6 for a product), not twice an equivalent size's.
+    #[test]
+    fn rectangular_sections_use_their_own_area() {
+        let dps = dp_inputs(&[100.0, 110.0], 0.0, 0.0).unwrap();
+        let t = TraverseUncertainty::rectangular(
+            Input::normal("C", "1", 1.0, 0.0).unwrap(),
+            Input::normal("ρ", "kg/m³", 1.2, 0.0).unwrap(),
+            Input::normal("W", "m", 0.8, 0.004).unwrap(),
+            Input::normal("H", "m", 0.5, 0.001).unwrap(),
+            &[],
+            dps,
+        )
+        .unwrap();
+        let g = t.gum(0.95).unwrap();
+        let mean = ((200.0f64 / 1.2).sqrt() + (220.0f64 / 1.2).sqrt()) / 2.0;
+        assert!((g.value - 0.4 * mean).abs() < 1e-12);
+        let want = ((0.004f64 / 0.8).powi(2) + (0.001f64 / 0.5).powi(2)).sqrt() * g.value;
+        assert!((g.u - want).abs() < 1e-12, "{} vs {want}", g.u);
+    }
 
     /// Welch–Satterthwaite for one input with a Type A part (u_A = 1 Pa, ν_A = 9) and a
     /// Type B part (1 Pa, ν = ∞): ν = u⁴/(u_A⁴/ν_A) = 4/(1/9) = 36 (JCGM 100 §G.4.1).
