@@ -79,22 +79,7 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .source("ISO 3966:2008 §9–10 (velocity-area integration)"),
         |y: Col, v: Col, c: Conduit, o: Map| -> Res<Q> {
             check_keys(&o, &["averaging", "line"], "section_mean")?;
-            if y.dimension != D::LENGTH || v.dimension != D::VELOCITY {
-                return Err(rt("section_mean: wall distance must be a length column and velocity a velocity column (declare their units)"));
-            }
-            let stagna::Section::Circular { diameter } = c.section else {
-                return Err(rt("section_mean: a round conduit (rectangular sections: use reduce_campaign)"));
-            };
-            let d = diameter.si();
-            let positions: Vec<stagna::Position> =
-                y.si.iter().map(|s| stagna::Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 }).collect();
-            let lines: Vec<usize> = match field(&o, "line") {
-                Some(l) => {
-                    let lc: Col = l.clone().try_cast().ok_or_else(|| rt("section_mean: line must be a column"))?;
-                    lc.si.iter().map(|x| x.max(0.0) as usize).collect()
-                }
-                None => vec![0; y.si.len()],
-            };
+            let (lines, positions) = radial_points(&y, &v, &c, &o, "section_mean")?;
             let averaging = match field(&o, "averaging") {
                 None => Averaging::Arithmetic,
                 Some(a) if a.is_string() => match text(a, "averaging")?.as_str() {
@@ -112,6 +97,30 @@ fn flows(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     );
 }
 
+/// The line number and radial position of each point of a round section, from the points'
+/// distances from the port-side wall (and an optional `line` column in `o`).
+fn radial_points(y: &Col, v: &Col, c: &Conduit, o: &Map, what: &str) -> Res<(Vec<usize>, Vec<stagna::Position>)> {
+    if y.dimension != D::LENGTH || v.dimension != D::VELOCITY {
+        return Err(rt(format!(
+            "{what}: wall distance must be a length column and velocity a velocity column (declare their units)"
+        )));
+    }
+    let stagna::Section::Circular { diameter } = c.section else {
+        return Err(rt(format!("{what}: a round conduit (rectangular sections: use reduce_campaign)")));
+    };
+    let d = diameter.si();
+    let positions =
+        y.si.iter().map(|s| stagna::Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 }).collect();
+    let lines = match field(o, "line") {
+        Some(l) => {
+            let lc: Col = l.clone().try_cast().ok_or_else(|| rt(format!("{what}: line must be a column")))?;
+            lc.si.iter().map(|x| x.max(0.0) as usize).collect()
+        }
+        None => vec![0; y.si.len()],
+    };
+    Ok((lines, positions))
+}
+
 /// Registers `wall_exponent` (called from `register`).
 fn wall_exponent_fn(r: &mut Registrar<'_>) {
     r.func(
@@ -121,22 +130,7 @@ fn wall_exponent_fn(r: &mut Registrar<'_>) {
             .source("the power law's own ratio (derived); ISO 3966 has an annex on determining m near the wall (its formulas not re-read here)"),
         |y: Col, v: Col, c: Conduit, o: Map| -> Res<Map> {
             check_keys(&o, &["line"], "wall_exponent")?;
-            if y.dimension != D::LENGTH || v.dimension != D::VELOCITY {
-                return Err(rt("wall_exponent: wall distance must be a length column and velocity a velocity column (declare their units)"));
-            }
-            let stagna::Section::Circular { diameter } = c.section else {
-                return Err(rt("wall_exponent: a round conduit"));
-            };
-            let d = diameter.si();
-            let positions: Vec<stagna::Position> =
-                y.si.iter().map(|s| stagna::Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 }).collect();
-            let lines: Vec<usize> = match field(&o, "line") {
-                Some(l) => {
-                    let lc: Col = l.clone().try_cast().ok_or_else(|| rt("wall_exponent: line must be a column"))?;
-                    lc.si.iter().map(|x| x.max(0.0) as usize).collect()
-                }
-                None => vec![0; y.si.len()],
-            };
+            let (lines, positions) = radial_points(&y, &v, &c, &o, "wall_exponent")?;
             let w = lib(stagna::section::integration::wall_exponent(&lines, &positions, &v.si))?;
             let mut m = Map::new();
             m.insert("m".into(), Dynamic::from(w.m));

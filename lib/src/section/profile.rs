@@ -187,6 +187,20 @@ pub struct StraightLengths {
 pub const SINGLE_POINT_MIN_STRAIGHT: StraightLengths =
     StraightLengths { upstream_diameters: 25.0, downstream_diameters: 5.0 };
 
+/// The warning when straight lengths fall short of [`SINGLE_POINT_MIN_STRAIGHT`].
+fn short_straight(s: StraightLengths, method: &str) -> Option<Warning> {
+    let min = SINGLE_POINT_MIN_STRAIGHT;
+    (s.upstream_diameters < min.upstream_diameters || s.downstream_diameters < min.downstream_diameters).then(|| {
+        Warning::new(
+            "straight-length",
+            format!(
+                "{method} assumes fully developed flow; {:.1} D upstream and {:.1} D downstream fall short of {} D and {} D",
+                s.upstream_diameters, s.downstream_diameters, min.upstream_diameters, min.downstream_diameters
+            ),
+        )
+    })
+}
+
 /// Result of the single-point method.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SinglePointResult {
@@ -255,18 +269,7 @@ pub fn single_point(
     }
     let ff = friction_factor(re, conduit.relative_roughness(), FrictionModel::Colebrook)?;
     warnings.extend(ff.warnings);
-    if let Some(s) = straight {
-        let min = SINGLE_POINT_MIN_STRAIGHT;
-        if s.upstream_diameters < min.upstream_diameters || s.downstream_diameters < min.downstream_diameters {
-            warnings.push(Warning::new(
-                "straight-length",
-                format!(
-                    "the single-point method assumes fully developed flow; {:.1} D upstream and {:.1} D downstream fall short of {} D and {} D",
-                    s.upstream_diameters, s.downstream_diameters, min.upstream_diameters, min.downstream_diameters
-                ),
-            ));
-        }
-    }
+    warnings.extend(straight.and_then(|s| short_straight(s, "the single-point method")));
     let mean = uc * ratio;
     Ok(SinglePointResult {
         mean_velocity: Velocity::m_s(mean),
@@ -361,18 +364,7 @@ pub fn single_point_at_mean(
             ),
         ));
     }
-    if let Some(s) = straight {
-        let min = SINGLE_POINT_MIN_STRAIGHT;
-        if s.upstream_diameters < min.upstream_diameters || s.downstream_diameters < min.downstream_diameters {
-            warnings.push(Warning::new(
-                "straight-length",
-                format!(
-                    "the point of mean velocity assumes fully developed flow; {:.1} D upstream and {:.1} D downstream fall short of {} D and {} D",
-                    s.upstream_diameters, s.downstream_diameters, min.upstream_diameters, min.downstream_diameters
-                ),
-            ));
-        }
-    }
+    warnings.extend(straight.and_then(|s| short_straight(s, "the point of mean velocity")));
     Ok(MeanPointResult {
         mean_velocity: Velocity::m_s(mean),
         volume_flow: VolumeFlow::from_si(mean * conduit.area().si()),
