@@ -187,6 +187,22 @@ pub struct StraightLengths {
 pub const SINGLE_POINT_MIN_STRAIGHT: StraightLengths =
     StraightLengths { upstream_diameters: 25.0, downstream_diameters: 5.0 };
 
+/// A velocity that must be finite and positive, measured in a round pipe (the profile
+/// relations hold there only); its value in m/s.
+fn positive_in_round_pipe(context: &'static str, param: &'static str, v: Velocity, conduit: &Conduit) -> Result<f64> {
+    let x = finite(context, param, v.si())?;
+    if x <= 0.0 {
+        return Err(Error::OutOfRange { context, param, value: x, unit: "m/s", allowed: "greater than 0".into() });
+    }
+    if !conduit.is_circular() {
+        return Err(Error::Inconsistent {
+            context,
+            message: "the profile relations hold for circular pipes only".into(),
+        });
+    }
+    Ok(x)
+}
+
 /// The warning when straight lengths fall short of [`SINGLE_POINT_MIN_STRAIGHT`].
 fn short_straight(s: StraightLengths, method: &str) -> Option<Warning> {
     let min = SINGLE_POINT_MIN_STRAIGHT;
@@ -235,22 +251,7 @@ pub fn single_point(
     family: ProfileFamily,
     straight: Option<StraightLengths>,
 ) -> Result<SinglePointResult> {
-    let uc = finite("single-point method", "centreline velocity", centreline.si())?;
-    if uc <= 0.0 {
-        return Err(Error::OutOfRange {
-            context: "single-point method",
-            param: "centreline velocity",
-            value: uc,
-            unit: "m/s",
-            allowed: "greater than 0".into(),
-        });
-    }
-    if !conduit.is_circular() {
-        return Err(Error::Inconsistent {
-            context: "single-point method",
-            message: "the profile relations hold for circular pipes only".into(),
-        });
-    }
+    let uc = positive_in_round_pipe("single-point method", "centreline velocity", centreline, conduit)?;
     let mut warnings = conduit.warnings.clone();
     let mut ratio = 0.8;
     let mut model = ProfileModel::Laminar;
@@ -330,22 +331,7 @@ pub fn single_point_at_mean(
         });
     }
     for r in readings {
-        let v = finite(CTX, "velocity", r.si())?;
-        if v <= 0.0 {
-            return Err(Error::OutOfRange {
-                context: CTX,
-                param: "velocity",
-                value: v,
-                unit: "m/s",
-                allowed: "greater than 0".into(),
-            });
-        }
-    }
-    if !conduit.is_circular() {
-        return Err(Error::Inconsistent {
-            context: CTX,
-            message: "the profile relations hold for circular pipes only".into(),
-        });
+        positive_in_round_pipe(CTX, "velocity", *r, conduit)?;
     }
     let mean = readings.iter().map(|v| v.si()).sum::<f64>() / readings.len() as f64;
     let re = conduit.reynolds(Velocity::m_s(mean), fluid)?;
