@@ -1802,14 +1802,17 @@ mod tests {
         assert!(eval(&mut s, "mm.reason").contains("report the Monte Carlo interval"));
         // JCGM 100:2008 H.1, the end gauge (first-order budget, values from memory, as the
         // library's own test of the same example): u_c = 32 nm, ν_eff 16, U₉₉ ≈ 93 nm.
-        eval(&mut s, r#"let gauge = model_budget(|x| x.ls + x.d - x.ls * (x.da * x.th + x.alpha_s * x.dth), #{
+        eval(
+            &mut s,
+            r#"let gauge = model_budget(|x| x.ls + x.d - x.ls * (x.da * x.th + x.alpha_s * x.dth), #{
             inputs: [#{name: "ls", value: 50000623.6, u: 25.0, dof: 18, unit: "nm"},
                      #{name: "d", value: 215.0, u: 9.7, dof: 25.6, unit: "nm"},
                      #{name: "alpha_s", value: 11.5e-6, distribution: "rectangular", half_width: 2e-6},
                      #{name: "th", value: -0.1, u: 0.41},
                      #{name: "da", value: 0.0, distribution: "rectangular", half_width: 1e-6, dof: 50},
                      #{name: "dth", value: 0.0, distribution: "rectangular", half_width: 0.05, dof: 2}],
-            coverage: 0.99, unit: "nm"});"#);
+            coverage: 0.99, unit: "nm"});"#,
+        );
         let uc: f64 = eval(&mut s, "gauge.u").parse().unwrap_or(f64::NAN);
         let big_u: f64 = eval(&mut s, "gauge.U").parse().unwrap_or(f64::NAN);
         assert!((uc - 32.0).abs() < 0.5 && (big_u - 93.0).abs() < 1.5, "{uc} {big_u}");
