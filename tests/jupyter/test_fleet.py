@@ -6,10 +6,8 @@ import os
 import pathlib
 import subprocess
 
-import pytest
-
-duckdb = pytest.importorskip("duckdb")
-pl = pytest.importorskip("polars")
+import duckdb  # installed by tests/run-all (tests/jupyter/requirements.txt): never skipped
+import polars as pl
 
 EA4 = [33.5, 125.0, 375.0, 466.5]  # US EPA Method 1 Table 1-1, 4 points on 500 mm
 
