@@ -1938,6 +1938,18 @@ mod tests {
         );
     }
 
+    /// Annulus points: r₁ = √(150² + (1/8)(400² − 150²)) = 199.2 mm on an 800/300 mm annulus
+    /// (hand-worked from the equal-area rule).
+    #[test]
+    fn annulus_points_split_the_ring_area() {
+        let mut s = Session::new();
+        let r1: f64 = eval(&mut s, "annulus_points(800.mm, 300.mm, 4)[\"radius_mm\"].at(0).value_in(\"mm\")")
+            .parse()
+            .unwrap_or(f64::NAN);
+        assert!((r1 - (150.0f64.powi(2) + (400.0f64.powi(2) - 150.0f64.powi(2)) / 8.0).sqrt()).abs() < 1e-6, "{r1}");
+        assert!(err(&mut s, "annulus_points(300.mm, 400.mm, 4)").message.contains("less than the outer"));
+    }
+
     /// Every formula the library writes into worked steps reads as MathML: no step falls
     /// back to plain text (the fallback keeps a step, but a report should not need it).
     #[test]

@@ -17,6 +17,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.group("Traverse layouts");
     layouts(r, prefs);
     points_table(r);
+    annulus(r);
 }
 
 /// Layouts of round and rectangular sections and what they give.
@@ -107,6 +108,32 @@ fn layouts(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
                 stagna::section::layout::TraversePurpose::Velocity,
             ))?;
             Ok(m.minimum as i64)
+        },
+    );
+}
+
+/// Equal-area points in an annulus.
+fn annulus(r: &mut Registrar<'_>) {
+    r.func(
+        "annulus_points",
+        &Doc::new("annulus_points(outer_diameter, inner_diameter, points) -> Table", "Equal-area measuring points on one radius of an annulus (between a casing and a hub, e.g. upstream of an axial fan): the annulus split into `points` rings of equal area, each point on the radius that halves its ring, r_k = √(r_i² + (2k − 1)/(2n)(r_o² − r_i²)). Columns: point (from the hub out), radius_mm, from_outer_wall_mm, from_inner_wall_mm. Derived; a full circle (inner 0) gives the usual equal-area rule.")
+            .example("print(annulus_points(800.mm, 300.mm, 4));")
+            .source("the equal-area rule with the hub's area taken away (derived); ISO 5802 gives annulus layouts of its own (not re-read here)"),
+        |outer: Dynamic, inner: Dynamic, n: i64| -> Res<Tbl> {
+            let ro = si_of(&outer, units::dimension::Dimension::LENGTH, "outer diameter")?;
+            let ri = si_of(&inner, units::dimension::Dimension::LENGTH, "inner diameter")?;
+            let radii = lib(section::layout::annulus_equal_area_radii(Length::m(ro), Length::m(ri), n.max(0) as usize))?;
+            let mm = |f: &dyn Fn(f64) -> f64| radii.iter().map(|r| 1000.0 * f(*r)).collect::<Vec<f64>>();
+            let df = DataFrame::new_infer_height(vec![
+                Series::new("point".into(), (1..=radii.len() as i64).collect::<Vec<_>>()).into(),
+                Series::new("radius_mm".into(), mm(&|r| r)).into(),
+                Series::new("from_outer_wall_mm".into(), mm(&|r| ro / 2.0 - r)).into(),
+                Series::new("from_inner_wall_mm".into(), mm(&|r| r - ri / 2.0)).into(),
+            ])
+            .map_err(perr)?;
+            let units: BTreeMap<String, String> =
+                ["radius_mm", "from_outer_wall_mm", "from_inner_wall_mm"].iter().map(|c| (c.to_string(), "mm".to_string())).collect();
+            Ok(Tbl { df, units })
         },
     );
 }

@@ -153,6 +153,39 @@ pub struct TraverseLayout {
     pub warnings: Vec<Warning>,
 }
 
+/// Equal-area measuring radii in an annulus (for example upstream of an axial fan, between
+/// its casing and hub): n rings of equal area between the inner radius r_i and the outer
+/// r_o, each point on the radius that halves its ring's area,
+/// r_k = √(r_i² + (2k − 1)/(2n)·(r_o² − r_i²)), k = 1 … n, from the hub outwards. Derived
+/// (the equal-area rule of a full circle with the hub's area taken away; a full circle,
+/// r_i = 0, gives the usual √((2k − 1)/(2n))·R); ISO 5802 gives annulus layouts of its own,
+/// not re-read here.
+pub fn annulus_equal_area_radii(outer: Length, inner: Length, n: usize) -> Result<Vec<f64>> {
+    let (ro, ri) = (outer.si() / 2.0, inner.si() / 2.0);
+    crate::error::finite("annulus layout", "outer diameter", outer.si())?;
+    crate::error::finite("annulus layout", "inner diameter", inner.si())?;
+    if !(ri >= 0.0 && ro > ri) {
+        return Err(Error::Inconsistent {
+            context: "annulus layout",
+            message: format!(
+                "the inner diameter ({} m) must be at least 0 and less than the outer ({} m)",
+                inner.si(),
+                outer.si()
+            ),
+        });
+    }
+    if !(1..=50).contains(&n) {
+        return Err(Error::OutOfRange {
+            context: "annulus layout",
+            param: "points per radius",
+            value: n as f64,
+            unit: "",
+            allowed: "1 to 50".into(),
+        });
+    }
+    Ok((1..=n).map(|k| (ri * ri + (2.0 * k as f64 - 1.0) / (2.0 * n as f64) * (ro * ro - ri * ri)).sqrt()).collect())
+}
+
 /// US EPA Method 1 minimum wall distance for the equal-area rule.
 pub fn epa_min_wall_distance(diameter: Length) -> Length {
     if diameter.si() > 0.61 { Length::mm(25.0) } else { Length::mm(13.0) }
@@ -794,5 +827,25 @@ mod tests {
         let tiny = Conduit::circular(Length::m(0.25)).unwrap();
         assert!(epa_method1_points(&tiny, 9.0, 3.0, p).unwrap_err().to_string().contains("Method 1A"));
         assert!(epa_method1_points(&big, 9.0, 3.0, TraversePurpose::Velocity).unwrap().basis.contains("Figure 1-2"));
+    }
+
+    /// Equal-area rings: the n rings bounded by the radii that split the annulus into equal
+    /// areas each contain their point at half their area; a full circle (hub 0) gives the
+    /// equal-area rule of US EPA Method 1 Table 1-1 (10 points per diameter on 1 m: the
+    /// outermost point 2.6 % of D from the wall).
+    #[test]
+    fn annulus_radii_split_the_area_equally() {
+        let r = annulus_equal_area_radii(Length::mm(800.0), Length::mm(300.0), 4).unwrap();
+        let (ro, ri) = (0.4f64, 0.15f64);
+        let ring = (ro * ro - ri * ri) / 4.0;
+        for (k, rk) in r.iter().enumerate() {
+            let inner_edge = (ri * ri + k as f64 * ring).sqrt();
+            assert!((rk * rk - inner_edge * inner_edge - ring / 2.0).abs() < 1e-12, "{k}");
+            assert!(*rk > ri && *rk < ro);
+        }
+        let full = annulus_equal_area_radii(Length::m(1.0), Length::m(0.0), 5).unwrap();
+        assert!(((0.5 - full[4]) / 1.0 * 100.0 - 2.6).abs() < 0.05, "{}", full[4]);
+        assert!(annulus_equal_area_radii(Length::mm(300.0), Length::mm(300.0), 4).is_err());
+        assert!(annulus_equal_area_radii(Length::mm(800.0), Length::mm(300.0), 0).is_err());
     }
 }
