@@ -516,32 +516,15 @@ mod tests {
         let p7 = ProfileModel::power_law(7.0).unwrap();
         assert!((p7.mean_velocity_wall_distance() - 0.24228).abs() < 1e-5);
         // Two symmetric readings: their mean, and a flag past the tolerance.
-        let two = single_point_at_mean(
-            &[Velocity::m_s(1.50), Velocity::m_s(1.56)],
-            &w,
-            &pipe,
-            ProfileFamily::PowerLawFromFriction,
-            None,
-            3.0,
-        )
-        .unwrap();
+        let at = |vs: &[f64]| {
+            let vs: Vec<Velocity> = vs.iter().map(|v| Velocity::m_s(*v)).collect();
+            single_point_at_mean(&vs, &w, &pipe, ProfileFamily::PowerLawFromFriction, None, 3.0)
+        };
+        let two = at(&[1.50, 1.56]).unwrap();
         assert!((two.mean_velocity.si() - 1.53).abs() < 1e-12);
         assert!((two.asymmetry_pct.unwrap() - 100.0 * 0.06 / 1.53).abs() < 1e-9);
         assert!(two.warnings.iter().any(|w| w.kind == "asymmetric"), "0.06/1.53 = 3.92 % > 3 %");
-        let close = single_point_at_mean(
-            &[Velocity::m_s(1.50), Velocity::m_s(1.52)],
-            &w,
-            &pipe,
-            ProfileFamily::PowerLawFromFriction,
-            None,
-            3.0,
-        )
-        .unwrap();
-        assert!(close.warnings.iter().all(|w| w.kind != "asymmetric"));
-        assert!(single_point_at_mean(&[], &w, &pipe, ProfileFamily::PowerLawFromFriction, None, 3.0).is_err());
-        assert!(
-            single_point_at_mean(&[Velocity::m_s(-1.0)], &w, &pipe, ProfileFamily::PowerLawFromFriction, None, 3.0)
-                .is_err()
-        );
+        assert!(at(&[1.50, 1.52]).unwrap().warnings.iter().all(|w| w.kind != "asymmetric"));
+        assert!(at(&[]).is_err() && at(&[-1.0]).is_err() && at(&[1.5, 1.5, 1.5]).is_err());
     }
 }
