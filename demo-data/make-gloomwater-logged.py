@@ -9,7 +9,7 @@ transducer noise of 1.5 Pa. Seeded: rerunning gives the same file."""
 import math
 import random
 
-random.seed(20261203)
+random.seed(20261204)
 D, n_pts, mean_v, rho = 0.300, 10, 1.50, 997.3
 n = 7.0
 ratio = 2 * n * n / ((n + 1) * (2 * n + 1))  # mean / centreline for a power law
