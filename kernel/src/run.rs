@@ -308,15 +308,20 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         )
         .into());
     }
-    // This shard's inputs, less those an earlier run finished with the same contents.
+    // This shard's inputs, less those an earlier run finished with the same contents; the
+    // inputs are hashed in parallel (the reads also warm the page cache for the run).
+    let owned: Vec<usize> = (0..args.files.len()).filter(|&i| shard.owns(&keys[i])).collect();
+    let hashes: Vec<(u64, String)> = owned
+        .par_iter()
+        .map(|&i| {
+            let f = &args.files[i];
+            crate::shard::file_sha256(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display()))
+        })
+        .collect::<Result<_, String>>()?;
     let mut chosen: Vec<usize> = Vec::new();
     let mut skipped = 0usize;
-    for (i, (f, key)) in args.files.iter().zip(&keys).enumerate() {
-        if !shard.owns(key) {
-            continue;
-        }
-        let (size, sha) =
-            crate::shard::file_sha256(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display()))?;
+    for (&i, (size, sha)) in owned.iter().zip(hashes) {
+        let (f, key) = (&args.files[i], &keys[i]);
         let entry = crate::shard::Entry {
             size,
             sha256: sha,
@@ -346,17 +351,25 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         eprintln!("shard {}/{}: {} of {} input(s) to run", shard.index, shard.count, chosen.len(), args.files.len());
     }
     manifest.write(&manifest_path)?;
-    let manifest = std::sync::Mutex::new(manifest);
+    // Statuses are written at most once a second and once at the end: rewriting the whole
+    // manifest after every input would cost O(inputs²) bytes on a large shard. An
+    // interruption loses at most the last second's statuses, and `--resume` reruns those
+    // inputs (pending or running), rewriting their outputs atomically.
+    let manifest = std::sync::Mutex::new((manifest, std::time::Instant::now()));
     let record = |key: &str, status: &str, error: Option<String>| -> Result<(), String> {
-        let mut m = match manifest.lock() {
+        let mut g = match manifest.lock() {
             Ok(g) => g,
             Err(e) => e.into_inner(),
         };
-        if let Some(e) = m.inputs.get_mut(key) {
+        if let Some(e) = g.0.inputs.get_mut(key) {
             e.status = status.into();
             e.error = error;
         }
-        m.write(&manifest_path)
+        if g.1.elapsed() < std::time::Duration::from_secs(1) {
+            return Ok(());
+        }
+        g.1 = std::time::Instant::now();
+        g.0.write(&manifest_path)
     };
     let files: Vec<PathBuf> = chosen.iter().map(|&i| args.files[i].clone()).collect();
     let dirs: Vec<PathBuf> = chosen.iter().map(|&i| all_dirs[i].clone()).collect();
@@ -399,6 +412,10 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     if let Some(b) = bar {
         b.finish_and_clear();
     }
+    let final_write = match manifest.into_inner() {
+        Ok(g) => g.0.write(&manifest_path),
+        Err(e) => e.into_inner().0.write(&manifest_path),
+    };
     let mut failed = 0;
     for (f, r) in files.iter().zip(&results) {
         if several {
@@ -413,6 +430,10 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         }
     }
     print_caution(&results);
+    if let Err(e) = final_write {
+        eprintln!("{e}");
+        return Ok(1);
+    }
     if failed > 0 {
         eprintln!("{failed} of {} file(s) failed", files.len());
         return Ok(1);

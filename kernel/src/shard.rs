@@ -12,8 +12,8 @@
 //! shards never write the same file) records the Stagna version, the script's SHA-256, and
 //! per input its size, SHA-256, output folder and status: `running` when started, then
 //! `done` or `failed` with the message. It is rewritten through a temporary file and a
-//! rename after every input, so an interrupted shard leaves a whole manifest whose
-//! `running` entries name the inputs to redo.
+//! rename at most once a second and at the end, so an interrupted shard leaves a whole
+//! manifest whose `pending` and `running` entries name the inputs to redo.
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};

@@ -305,31 +305,25 @@ impl Q {
     pub fn with_unit(value: f64, unit: &str) -> stagna::Result<Self> {
         Ok(Q { q: Quantity::new(value, unit)?, unit: Some(unit.into()) })
     }
-    /// Text in the display unit (explicit, else the session's preference, else SI).
-    /// The number has the session's significant figures ([`DisplayUnits::figures`]).
+    /// Text in the display unit (explicit, else the session's preference, else SI), the
+    /// number with the session's significant figures ([`DisplayUnits::figures`]).
     pub fn show(&self, display: &DisplayUnits) -> String {
-        use stagna::units::quantity::format_figures;
         let n = display.figures();
-        let unit = self.unit.as_deref().or_else(|| display.unit_for(self.q.dimension, self.q.absolute_temperature));
-        match unit.map(|u| self.q.value_in(u).map(|v| (v, u))) {
-            Some(Ok((v, u))) => pretty_unit(&format!("{} {}", format_figures(v, n), u.trim())),
-            _ => {
-                let sym = self.q.si_symbol();
-                let v = format_figures(self.q.si, n);
-                pretty_unit(&if sym.is_empty() { v } else { format!("{v} {sym}") })
-            }
-        }
+        self.show_with(display, |v| stagna::units::quantity::format_figures(v, n))
     }
 
-    /// As [`Q::show`], the number to `digits` significant figures.
+    /// As [`Q::show`], the number to `digits` significant figures (trailing zeros kept).
     pub fn show_sig(&self, display: &DisplayUnits, digits: u32) -> String {
-        use stagna::units::quantity::format_sig;
+        self.show_with(display, |v| stagna::units::quantity::format_sig(v, digits))
+    }
+
+    fn show_with(&self, display: &DisplayUnits, number: impl Fn(f64) -> String) -> String {
         let unit = self.unit.as_deref().or_else(|| display.unit_for(self.q.dimension, self.q.absolute_temperature));
         match unit.map(|u| self.q.value_in(u).map(|v| (v, u))) {
-            Some(Ok((v, u))) => pretty_unit(&format!("{} {}", format_sig(v, digits), u.trim())),
+            Some(Ok((v, u))) => pretty_unit(&format!("{} {}", number(v), u.trim())),
             _ => {
                 let sym = self.q.si_symbol();
-                let n = format_sig(self.q.si, digits);
+                let n = number(self.q.si);
                 pretty_unit(&if sym.is_empty() { n } else { format!("{n} {sym}") })
             }
         }
