@@ -7,5 +7,6 @@
 
 mod reduction;
 pub mod samples;
+pub mod stream;
 
 pub use reduction::*;

@@ -48,6 +48,34 @@ pub struct CampaignColumns {
 }
 
 impl CampaignColumns {
+    /// Every column a reduction reads, each once, the traverse column first: what a scan
+    /// projects.
+    pub fn names(&self) -> Vec<String> {
+        let mut out = vec![self.traverse.clone()];
+        let mut add = |n: &str| {
+            if !out.iter().any(|o| o == n) {
+                out.push(n.to_string());
+            }
+        };
+        add(&self.reading.0);
+        add(&self.fluid_temperature.0);
+        add(&self.size.0);
+        if let Some(r) = &self.rectangular {
+            add(&r.height.0);
+            add(&r.across.0);
+        }
+        if let Some(p) = &self.position {
+            add(&p.0);
+        }
+        if let Some(l) = &self.line {
+            add(l);
+        }
+        if let Some(g) = &self.gauge_temperature {
+            add(&g.0);
+        }
+        out
+    }
+
     /// Columns with the usual names and units: `traverse`, `deflection_mm`,
     /// `fluid_temp_c`, `diameter_mm`, `position_mm`.
     pub fn standard() -> Result<Self> {
@@ -494,6 +522,8 @@ struct Kernel<'a> {
     line: Option<SiColumn<'a>>,
     integrate: bool,
     wall_factor: f64,
+    /// Rows of the input before this frame (a scan's batch): row numbers in messages count from the input's start.
+    row_base: usize,
 }
 
 /// Per-thread memos and buffers, reused from traverse to traverse.
@@ -558,7 +588,7 @@ impl Kernel<'_> {
         for (k, row) in rows.clone().enumerate() {
             let at = |e: Error| Error::Inconsistent {
                 context: "traverse",
-                message: format!("point {} (row {}): {e}", k + 1, row + 1),
+                message: format!("point {} (row {}): {e}", k + 1, row + 1 + self.row_base),
             };
             if self.dia.at(row) != d || self.height.as_ref().is_some_and(|hc| hc.at(row) != depth) {
                 return Err(at(Error::Inconsistent {
@@ -786,6 +816,17 @@ const CHUNK: usize = 2048;
 
 /// Reduces every traverse of a campaign (see the module doc).
 pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignResult> {
+    reduce_campaign_with(df, spec, spec.progress.as_ref(), 0)
+}
+
+/// [`reduce_campaign`] reporting progress (traverses done of the table's) to `progress`
+/// rather than the spec's: a scan reports its own progress over the whole stream.
+pub(crate) fn reduce_campaign_with(
+    df: &DataFrame,
+    spec: &CampaignSpec,
+    progress: Option<&crate::progress::Progress>,
+    row_base: usize,
+) -> Result<CampaignResult> {
     use rayon::prelude::*;
     let cols = &spec.columns;
     let opt = |c: &Option<(String, Unit)>, what: &str| -> Result<Option<SiColumn<'_>>> {
@@ -809,6 +850,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
             Some(w) => crate::error::within("campaign", "wall adjustment factor", w.value(), "", 0.9, 1.0)?,
             None => 1.0,
         },
+        row_base,
     };
     if spec.flow.wall_factor.is_some() && !matches!(spec.averaging, Averaging::Arithmetic) {
         return Err(Error::Inconsistent {
@@ -866,7 +908,7 @@ pub fn reduce_campaign(df: &DataFrame, spec: &CampaignSpec) -> Result<CampaignRe
     let cond_of = |first: usize| lookup.at(first);
 
     // One result per traverse, in group order, computed in parallel chunks.
-    let counter = crate::progress::Counter::new(spec.progress.as_ref(), groups.len() as u64);
+    let counter = crate::progress::Counter::new(progress, groups.len() as u64);
     let results: Vec<(usize, Result<TraverseOut>)> = match &*groups {
         GroupsType::Slice { groups, .. } => groups
             .par_chunks(CHUNK)
@@ -1055,7 +1097,7 @@ pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::fluids::gauge_liquid::GaugeLiquid;
     use crate::fluids::gravity;
@@ -1065,7 +1107,7 @@ mod tests {
     use crate::units::quantity::{Length, Temperature};
     use crate::{HumidAir, UserLiquid};
 
-    fn air_spec() -> CampaignSpec {
+    pub(crate) fn air_spec() -> CampaignSpec {
         let oil =
             UserLiquid::new("oil", crate::Density::kg_m3(826.0), Temperature::celsius(20.0), Some(7.5e-4)).unwrap();
         CampaignSpec {

@@ -9,5 +9,6 @@
 pub mod evcxr;
 pub mod plot;
 pub mod record;
+pub mod scan;
 pub mod setup;
 pub mod table;

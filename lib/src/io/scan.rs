@@ -1,0 +1,534 @@
+//! Tables read a batch at a time: one file or a folder of files (CSV or Parquet), only the
+//! columns a reduction needs, in batches of about a given number of rows.
+//!
+//! A [`TableScan`] holds what is known before any data is read: the files, their columns
+//! and types, the units stored with them (as [`super::table::read_units`] finds them) and,
+//! for Parquet, the row count. [`TableScan::batches`] then yields `DataFrame`s in file
+//! order. Parquet batches are whole row groups (merged up to the batch size; a row group
+//! larger than the batch is one batch); CSV batches are runs of whole lines cut at a line
+//! end outside quotes. Memory therefore holds a batch or two, not the table.
+
+use std::collections::BTreeMap;
+use std::fs::File;
+use std::io::{BufRead, BufReader, Read};
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use polars::prelude::*;
+use polars_io::SerReader;
+use polars_io::prelude::{CsvReadOptions, ParquetReader};
+
+use super::table::{CsvLayout, read_units};
+use crate::error::{Error, Result, shorten};
+
+fn file_err(path: &Path, message: impl Into<String>) -> Error {
+    Error::File { path: path.display().to_string(), message: message.into() }
+}
+
+/// The kind of files a scan reads.
+#[derive(Debug, Clone)]
+enum Kind {
+    /// Parquet files and each file's row-group sizes.
+    Parquet(Vec<Vec<usize>>),
+    /// CSV files in this layout; the byte offset just past each file's header.
+    Csv(CsvLayout, Vec<u64>),
+}
+
+/// One file or a folder of files read batch by batch (see the module doc).
+#[derive(Debug, Clone)]
+pub struct TableScan {
+    files: Vec<PathBuf>,
+    kind: Kind,
+    schema: SchemaRef,
+    units: BTreeMap<String, String>,
+}
+
+fn extension(path: &Path) -> String {
+    path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase()
+}
+
+/// The table files under `dir`, in name order, folders included (hive partitions), hidden
+/// entries (`.stagna` run records, temporaries) left out.
+fn files_under(dir: &Path, out: &mut Vec<PathBuf>) -> Result<()> {
+    let mut entries: Vec<PathBuf> = std::fs::read_dir(dir)
+        .map_err(|e| file_err(dir, format!("cannot list the folder: {e}")))?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| !p.file_name().and_then(|n| n.to_str()).is_some_and(|n| n.starts_with('.')))
+        .collect();
+    entries.sort();
+    for p in entries {
+        if p.is_dir() {
+            files_under(&p, out)?;
+        } else if matches!(extension(&p).as_str(), "parquet" | "pq" | "csv" | "txt") && !is_sidecar(&p) {
+            out.push(p);
+        }
+    }
+    Ok(())
+}
+
+fn is_sidecar(p: &Path) -> bool {
+    p.file_name().and_then(|n| n.to_str()).is_some_and(|n| n.ends_with(".units.csv"))
+}
+
+impl TableScan {
+    /// A scan of one CSV or Parquet file, or of every such file in a folder and its
+    /// sub-folders, in name order (all of one format, all with the same columns).
+    pub fn open(path: &Path) -> Result<Self> {
+        Self::open_with(path, CsvLayout::default())
+    }
+
+    /// As [`TableScan::open`], CSV files laid out as `layout` says.
+    pub fn open_with(path: &Path, layout: CsvLayout) -> Result<Self> {
+        let files = if path.is_dir() {
+            let mut v = Vec::new();
+            files_under(path, &mut v)?;
+            if v.is_empty() {
+                return Err(file_err(path, "the folder holds no CSV or Parquet files"));
+            }
+            v
+        } else if path.exists() {
+            vec![path.to_path_buf()]
+        } else {
+            return Err(file_err(path, "no such file or folder"));
+        };
+        Self::of_files(files, layout)
+    }
+
+    /// A scan of these files in this order.
+    pub fn of_files(files: Vec<PathBuf>, layout: CsvLayout) -> Result<Self> {
+        let first =
+            files.first().ok_or_else(|| Error::Inconsistent { context: "scan", message: "no files to scan".into() })?;
+        let parquet = matches!(extension(first).as_str(), "parquet" | "pq");
+        for f in &files {
+            let ok = match extension(f).as_str() {
+                "parquet" | "pq" => parquet,
+                "csv" | "txt" => !parquet,
+                other => {
+                    return Err(file_err(f, format!("a scan reads CSV or Parquet files, not '.{other}'")));
+                }
+            };
+            if !ok {
+                return Err(file_err(
+                    f,
+                    format!("a scan reads files of one format; {} is {}", first.display(), extension(first)),
+                ));
+            }
+        }
+        let (schema, kind) = if parquet { parquet_schema(&files)? } else { csv_schema(&files, layout)? };
+        let mut empty = DataFrame::empty_with_schema(&schema);
+        let units = read_units(first, &mut empty)?;
+        Ok(Self { files, kind, schema: Arc::new(schema), units })
+    }
+
+    /// The files, in the order they are read.
+    pub fn files(&self) -> &[PathBuf] {
+        &self.files
+    }
+
+    /// Column names and types.
+    pub fn schema(&self) -> &SchemaRef {
+        &self.schema
+    }
+
+    /// The units stored with the first file (Parquet metadata or a CSV units sidecar).
+    pub fn units(&self) -> &BTreeMap<String, String> {
+        &self.units
+    }
+
+    /// The row count when the files record it (Parquet), else `None`.
+    pub fn rows(&self) -> Option<usize> {
+        match &self.kind {
+            Kind::Parquet(groups) => Some(groups.iter().flatten().sum()),
+            Kind::Csv(..) => None,
+        }
+    }
+
+    /// Total bytes of the files (the measure of progress through a CSV scan).
+    pub fn bytes(&self) -> u64 {
+        self.files.iter().filter_map(|f| f.metadata().ok()).map(|m| m.len()).sum()
+    }
+
+    /// Batches of the named columns (all columns when `columns` is empty), about
+    /// `rows` rows each, in file order. Each item reports its work (rows for Parquet,
+    /// bytes for CSV) with the batch.
+    pub fn batches(&self, columns: &[String], rows: usize) -> Result<Batches<'_>> {
+        for c in columns {
+            if self.schema.get(c).is_none() {
+                return Err(Error::Inconsistent {
+                    context: "scan",
+                    message: format!(
+                        "missing column '{c}'; the files have: {}",
+                        self.schema.iter_names().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
+                    ),
+                });
+            }
+        }
+        let columns = if columns.is_empty() {
+            self.schema.iter_names().map(|s| s.to_string()).collect()
+        } else {
+            columns.to_vec()
+        };
+        Ok(Batches { scan: self, columns, rows: rows.max(1), file: 0, group: 0, offset: 0, csv: None })
+    }
+}
+
+fn parquet_schema(files: &[PathBuf]) -> Result<(Schema, Kind)> {
+    let mut schema: Option<Schema> = None;
+    let mut groups = Vec::with_capacity(files.len());
+    for f in files {
+        let file = File::open(f).map_err(|e| file_err(f, format!("cannot open: {e}")))?;
+        let mut r = ParquetReader::new(file);
+        let bad =
+            |e: PolarsError| file_err(f, format!("not a readable Parquet file: {}", shorten(&e.to_string(), 300)));
+        let s = Schema::from_arrow_schema(r.schema().map_err(bad)?.as_ref());
+        let md = r.get_metadata().map_err(bad)?;
+        groups.push(md.row_groups.iter().map(|g| g.num_rows()).collect());
+        match &schema {
+            None => schema = Some(s),
+            Some(first) if first != &s => {
+                return Err(file_err(
+                    f,
+                    format!(
+                        "its columns ({}) differ from the first file's ({}); a scan reads files of one layout",
+                        describe(&s),
+                        describe(first)
+                    ),
+                ));
+            }
+            Some(_) => {}
+        }
+    }
+    Ok((schema.unwrap_or_default(), Kind::Parquet(groups)))
+}
+
+fn describe(s: &Schema) -> String {
+    s.iter().map(|(n, t)| format!("{n}: {t}")).collect::<Vec<_>>().join(", ")
+}
+
+fn csv_options(layout: CsvLayout) -> CsvReadOptions {
+    CsvReadOptions::default().map_parse_options(|o| {
+        o.with_comment_prefix(Some("#")).with_separator(layout.separator).with_decimal_comma(layout.decimal_comma)
+    })
+}
+
+/// The byte offset just past the header line (comment and blank lines before it
+/// skipped) and the header's raw text.
+fn csv_header_end(path: &Path) -> Result<(u64, Vec<u8>)> {
+    let file = File::open(path).map_err(|e| file_err(path, format!("cannot open: {e}")))?;
+    let mut r = BufReader::new(file);
+    let (mut at, mut buf) = (0u64, Vec::new());
+    loop {
+        buf.clear();
+        let n = r.read_until(b'\n', &mut buf).map_err(|e| file_err(path, format!("cannot read: {e}")))?;
+        if n == 0 {
+            return Err(file_err(path, "empty file: no header row"));
+        }
+        at += n as u64;
+        let line = String::from_utf8_lossy(&buf);
+        let t = line.trim();
+        if !t.is_empty() && !t.starts_with('#') {
+            return Ok((at, buf.clone()));
+        }
+    }
+}
+
+fn csv_schema(files: &[PathBuf], layout: CsvLayout) -> Result<(Schema, Kind)> {
+    let first = &files[0];
+    // Types as `read_table` infers them: from the first 10 000 rows of the first file.
+    let sample = csv_options(layout)
+        .with_has_header(true)
+        .with_n_rows(Some(10_000))
+        .with_infer_schema_length(Some(10_000))
+        .try_into_reader_with_file_path(Some(first.clone()))
+        .and_then(|r| r.finish())
+        .map_err(|e| file_err(first, format!("not a readable CSV table: {}", shorten(&e.to_string(), 300))))?;
+    if sample.width() == 0 {
+        return Err(file_err(first, "no columns"));
+    }
+    let schema = sample.schema().as_ref().clone();
+    let mut ends = Vec::with_capacity(files.len());
+    let mut header0: Option<Vec<u8>> = None;
+    for f in files {
+        let (end, header) = csv_header_end(f)?;
+        match &header0 {
+            None => header0 = Some(header),
+            Some(h) if trim_eol(h) != trim_eol(&header) => {
+                return Err(file_err(
+                    f,
+                    format!(
+                        "its header ({}) differs from the first file's ({}); a scan reads files of one layout",
+                        String::from_utf8_lossy(trim_eol(&header)),
+                        String::from_utf8_lossy(trim_eol(h))
+                    ),
+                ));
+            }
+            Some(_) => {}
+        }
+        ends.push(end);
+    }
+    Ok((schema, Kind::Csv(layout, ends)))
+}
+
+fn trim_eol(b: &[u8]) -> &[u8] {
+    let mut e = b.len();
+    while e > 0 && matches!(b[e - 1], b'\n' | b'\r') {
+        e -= 1;
+    }
+    &b[..e]
+}
+
+/// The frame's columns in the order asked for (readers give them in file order).
+fn in_order(df: DataFrame, columns: &[String], path: &Path) -> Result<DataFrame> {
+    df.select(columns.iter().map(|s| s.as_str())).map_err(|e| file_err(path, e.to_string()))
+}
+
+/// An open CSV file being cut into runs of lines.
+struct CsvCursor {
+    reader: BufReader<File>,
+    /// Bytes read but not yet parsed (the part of a line after the last cut).
+    rest: Vec<u8>,
+    done: bool,
+}
+
+/// The batches of a [`TableScan`]: `(frame, work done by this batch)`.
+pub struct Batches<'a> {
+    scan: &'a TableScan,
+    columns: Vec<String>,
+    rows: usize,
+    file: usize,
+    group: usize,
+    offset: usize,
+    csv: Option<CsvCursor>,
+}
+
+/// Where a run of lines may be cut: after the last line end that lies outside quotes
+/// (an even number of `"` before it in `buf`, counting from a line start).
+fn cut_point(buf: &[u8]) -> Option<usize> {
+    if !buf.contains(&b'"') {
+        return buf.iter().rposition(|&b| b == b'\n').map(|i| i + 1);
+    }
+    let mut inside = false;
+    let mut last = None;
+    for (i, &b) in buf.iter().enumerate() {
+        match b {
+            b'"' => inside = !inside,
+            b'\n' if !inside => last = Some(i + 1),
+            _ => {}
+        }
+    }
+    last
+}
+
+impl Batches<'_> {
+    fn next_parquet(&mut self, groups: &[Vec<usize>]) -> Option<Result<(DataFrame, u64)>> {
+        while self.file < groups.len() && self.group >= groups[self.file].len() {
+            self.file += 1;
+            self.group = 0;
+            self.offset = 0;
+        }
+        let sizes = groups.get(self.file)?;
+        let path = &self.scan.files[self.file];
+        let (start, mut n) = (self.offset, 0usize);
+        while self.group < sizes.len() && (n == 0 || n + sizes[self.group] <= self.rows) {
+            n += sizes[self.group];
+            self.group += 1;
+        }
+        self.offset += n;
+        let read = || -> Result<DataFrame> {
+            let file = File::open(path).map_err(|e| file_err(path, format!("cannot open: {e}")))?;
+            ParquetReader::new(file)
+                .with_columns(Some(self.columns.clone()))
+                .with_slice(Some((start, n)))
+                .finish()
+                .map_err(|e| file_err(path, format!("cannot read rows {start}…{}: {}", start + n, e)))
+        };
+        Some(read().and_then(|df| in_order(df, &self.columns, path)).map(|df| (df, n as u64)))
+    }
+
+    fn next_csv(&mut self, layout: CsvLayout, ends: &[u64]) -> Option<Result<(DataFrame, u64)>> {
+        use std::io::{Seek, SeekFrom};
+        // About this many bytes per batch: 24 bytes a row is a guess that holds for
+        // readings tables; a batch never splits a line.
+        let target = (self.rows as u64 * 24).clamp(1 << 16, 1 << 28) as usize;
+        loop {
+            if self.file >= self.scan.files.len() {
+                return None;
+            }
+            let path = self.scan.files[self.file].clone();
+            if self.csv.is_none() {
+                let open = || -> std::io::Result<CsvCursor> {
+                    let mut f = File::open(&path)?;
+                    f.seek(SeekFrom::Start(ends[self.file]))?;
+                    Ok(CsvCursor { reader: BufReader::with_capacity(1 << 20, f), rest: Vec::new(), done: false })
+                };
+                match open() {
+                    Ok(c) => self.csv = Some(c),
+                    Err(e) => return Some(Err(file_err(&path, format!("cannot open: {e}")))),
+                }
+            }
+            let cur = self.csv.as_mut()?;
+            let mut buf = std::mem::take(&mut cur.rest);
+            let mut got = 0u64;
+            let mut want = target;
+            let cut = loop {
+                while !cur.done && buf.len() < want {
+                    let old = buf.len();
+                    buf.resize(want, 0);
+                    match cur.reader.read(&mut buf[old..]) {
+                        Ok(0) => {
+                            buf.truncate(old);
+                            cur.done = true;
+                        }
+                        Ok(k) => {
+                            buf.truncate(old + k);
+                            got += k as u64;
+                        }
+                        Err(e) => return Some(Err(file_err(&path, format!("cannot read: {e}")))),
+                    }
+                }
+                if cur.done {
+                    break buf.len();
+                }
+                match cut_point(&buf) {
+                    Some(c) => break c,
+                    // One line (or a quoted field) longer than the batch: read on.
+                    None => want = buf.len() * 2,
+                }
+            };
+            cur.rest = buf.split_off(cut);
+            if cur.done && cur.rest.is_empty() {
+                self.csv = None;
+                self.file += 1;
+            }
+            if buf.iter().all(|b| b.is_ascii_whitespace()) {
+                continue;
+            }
+            let parsed = csv_options(layout)
+                .with_has_header(false)
+                .with_schema(Some(self.scan.schema.clone()))
+                .with_columns(Some(self.columns.iter().map(|c| c.as_str().into()).collect()))
+                .into_reader_with_file_handle(std::io::Cursor::new(buf))
+                .finish()
+                .map_err(|e| file_err(&path, format!("not a readable CSV table: {}", shorten(&e.to_string(), 300))));
+            let cols = &self.columns;
+            return Some(parsed.and_then(|df| in_order(df, cols, &path)).map(|df| (df, got)));
+        }
+    }
+}
+
+impl Iterator for Batches<'_> {
+    type Item = Result<(DataFrame, u64)>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        match &self.scan.kind {
+            Kind::Parquet(groups) => {
+                let groups = groups.clone();
+                self.next_parquet(&groups)
+            }
+            Kind::Csv(layout, ends) => {
+                let (layout, ends) = (*layout, ends.clone());
+                self.next_csv(layout, &ends)
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::io::table::{write_csv, write_parquet};
+
+    fn tmp(name: &str) -> PathBuf {
+        let d = std::env::temp_dir().join(format!("stagna-scan-{}-{name}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&d);
+        std::fs::create_dir_all(&d).unwrap();
+        d
+    }
+
+    fn frame(n: usize) -> DataFrame {
+        let id: Vec<i64> = (0..n as i64).map(|i| i / 7).collect();
+        let x: Vec<f64> = (0..n).map(|i| i as f64 * 0.5).collect();
+        let s: Vec<String> = (0..n).map(|i| format!("r\"{i}\"")).collect();
+        df!("id" => id, "x" => x, "s" => s).unwrap()
+    }
+
+    fn collect(scan: &TableScan, cols: &[&str], rows: usize) -> (DataFrame, usize) {
+        let cols: Vec<String> = cols.iter().map(|s| s.to_string()).collect();
+        let mut n = 0;
+        let mut out: Option<DataFrame> = None;
+        for b in scan.batches(&cols, rows).unwrap() {
+            let (df, _) = b.unwrap();
+            n += 1;
+            match &mut out {
+                None => out = Some(df),
+                Some(o) => {
+                    o.vstack_mut(&df).unwrap();
+                }
+            }
+        }
+        (out.unwrap(), n)
+    }
+
+    #[test]
+    fn parquet_and_csv_batches_reassemble_the_table() {
+        let d = tmp("whole");
+        let df = frame(10_000);
+        // Parquet in 10 row groups of 1000 rows, as a writer with that group size makes.
+        let pq = d.join("t.parquet");
+        let mut w = df.clone();
+        polars_io::prelude::ParquetWriter::new(File::create(&pq).unwrap())
+            .with_row_group_size(Some(1000))
+            .finish(&mut w)
+            .unwrap();
+        let scan = TableScan::open(&pq).unwrap();
+        assert_eq!(scan.rows(), Some(10_000));
+        let (back, n) = collect(&scan, &["id", "x"], 2500);
+        assert_eq!(n, 5, "row groups merged while they fit the batch size: 2 × 1000 a batch");
+        assert!(back.equals(&df.select(["id", "x"]).unwrap()));
+        // CSV (quoted fields with quotes inside) cut into many batches.
+        let csv = d.join("t.csv");
+        write_csv(&df, &csv).unwrap();
+        let scan = TableScan::open(&csv).unwrap();
+        let (back, n) = collect(&scan, &["s", "x"], 1);
+        assert!(std::fs::metadata(&csv).unwrap().len() > 3 * (1 << 16));
+        assert!(n > 3, "{n} batches");
+        assert!(back.equals(&df.select(["s", "x"]).unwrap()), "{back}\n{}", df.select(["s", "x"]).unwrap());
+    }
+
+    #[test]
+    fn folders_are_read_in_name_order_and_must_agree() {
+        let d = tmp("folder");
+        let df = frame(3000);
+        for (i, part) in ["b", "a", "c"].iter().enumerate() {
+            let sub = d.join(format!("site={part}"));
+            std::fs::create_dir_all(&sub).unwrap();
+            write_parquet(&df.slice((i * 1000) as i64, 1000), &sub.join("part.parquet")).unwrap();
+        }
+        std::fs::create_dir_all(d.join(".stagna")).unwrap();
+        std::fs::write(d.join(".stagna").join("x.parquet"), b"not parquet").unwrap();
+        let scan = TableScan::open(&d).unwrap();
+        assert_eq!(scan.files().len(), 3, "hidden folders are left out");
+        let (back, _) = collect(&scan, &[], 100_000);
+        // site=a holds rows 1000…1999, b 0…999, c 2000…2999.
+        let x = back.column("x").unwrap().f64().unwrap().get(0).unwrap();
+        assert_eq!(x, 500.0);
+        // A file with other columns is refused, naming it.
+        write_parquet(&df.select(["id"]).unwrap(), &d.join("site=d.parquet")).unwrap();
+        let e = TableScan::open(&d).unwrap_err().to_string();
+        assert!(e.contains("site=d.parquet") && e.contains("differ"), "{e}");
+        let e = TableScan::open(&d.join("none")).unwrap_err().to_string();
+        assert!(e.contains("no such file"), "{e}");
+        let e = TableScan::open(&tmp("empty")).unwrap_err().to_string();
+        assert!(e.contains("no CSV or Parquet"), "{e}");
+        let scan = TableScan::open(&d.join("site=a")).unwrap();
+        let e = scan.batches(&["nope".into()], 10).err().unwrap().to_string();
+        assert!(e.contains("missing column 'nope'") && e.contains("id, x, s"), "{e}");
+    }
+
+    #[test]
+    fn cut_points_respect_quotes() {
+        assert_eq!(cut_point(b"a,b\n1,2\n3,"), Some(8));
+        assert_eq!(cut_point(b"a,\"x\ny\"\n1"), Some(8));
+        assert_eq!(cut_point(b"a,\"x\ny"), None);
+    }
+}
