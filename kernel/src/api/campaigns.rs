@@ -23,7 +23,7 @@ pub struct Campaign {
 }
 
 /// Builds a campaign spec from a script map and the table's declared units.
-fn campaign_spec(t: &Tbl, o: &Map, p: &SharedPrefs) -> Res<CampaignSpec> {
+pub(super) fn campaign_spec(t: &Tbl, o: &Map, p: &SharedPrefs) -> Res<CampaignSpec> {
     check_keys(
         o,
         &[
@@ -380,7 +380,7 @@ fn reductions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let pp = prefs.clone();
     r.func(
         "reduce_campaign",
-        &Doc::new("reduce_campaign(table, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced.")
+        &Doc::new("reduce_campaign(table_or_scan, spec) -> Campaign", "Reduces every traverse in a table of readings in one pass in Rust: Δp, density and velocity per point, section mean, flows and (optionally) a GUM uncertainty per traverse. Column units come from the table's declared units. Traverses that fail are listed with the reason; the rest are reduced. Given a scan (scan_table) instead of a table, the readings are read a batch at a time, only the columns the spec names, with the same result for traverses whose rows lie together.")
             .param("spec", "map: fluid, static_pressure, manometer, probe, columns #{traverse, deflection (a manometer reading, length unit) or dp (a transducer's Δp, pressure unit; then no manometer is needed), fluid_temperature, size, position?, line?, gauge_temperature?, height?, across?}, averaging (\"arithmetic\" or a wall exponent m), min_points, reference, moisture, wall_factor, uncertainty #{u_rel_coefficient, u_rel_density, u_rel_diameter, u_rel_dp (relative standard uncertainties, fractions), u_dp (absolute standard uncertainty of each Δp), coverage, rule, terms (method terms as in traverse_budget: only the layout term by default)}, runs (a table, one row per traverse, keyed by the traverse column: static_pressure or barometric + static_gauge, co2/o2/co for a stack gas of that run, moisture, md) with run_columns (key → column name); method2 #{md?, report: \"physics\" | \"method\"} adds each traverse by US EPA Method 2 eq. 2-7 and 2-10 (epa_m2_velocity_m_s, epa_m2_dry_flow_20C_760mmHg_m3_h, physics_velocity_m_s, epa_m2_minus_physics_pct, reported_route; M_d per run from md, else Method 3 eq. 3-1 from co2/o2)")
             .returns("Campaign (.traverses table, .failures)")
             .example("let t = table_from(#{tr: [\"T1\",\"T1\",\"T1\",\"T1\"], h: [20.0, 30.0, 30.0, 20.0], t: [20.0, 20.0, 20.0, 20.0], d: [500.0, 500.0, 500.0, 500.0], y: [33.5, 125.0, 375.0, 466.5]})\n    .units(#{h: \"mm\", t: \"degC\", d: \"mm\", y: \"mm\"});\nlet spec = #{fluid: dry_air(), static_pressure: 101.kPa, manometer: u_tube(gauge_water()), probe: pitot_static(1.0),\n    columns: #{traverse: \"tr\", deflection: \"h\", fluid_temperature: \"t\", size: \"d\", position: \"y\"}};\nprint(reduce_campaign(t, spec).traverses);")

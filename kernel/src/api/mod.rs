@@ -31,6 +31,7 @@ pub mod profiles;
 pub mod quantities;
 pub mod reports;
 pub mod samples;
+pub mod scans;
 pub mod sections;
 pub mod setups;
 pub mod stack;
@@ -433,4 +434,5 @@ pub fn register_all(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     setups::register(r, prefs);
     reports::register(r, prefs);
     samples::register(r, prefs);
+    scans::register(r, prefs);
 }

@@ -282,7 +282,7 @@ fn demo_csv(p: &SharedPrefs, name: &str) -> Res<DataFrame> {
 }
 
 /// Checks that a column exists and holds numbers, without copying it.
-pub(super) fn numeric_column(df: &DataFrame, name: &str) -> Res<()> {
+pub fn numeric_column(df: &DataFrame, name: &str) -> Res<()> {
     match df.column(name) {
         Ok(c) if c.dtype().is_primitive_numeric() => Ok(()),
         Ok(c) => Err(rt(format!("column '{name}': holds {} values, not numbers", c.dtype()))),

@@ -23,6 +23,21 @@ use crate::io::scan::TableScan;
 /// each batch arrives as one chunk and is read in place.
 pub const DEFAULT_BATCH_ROWS: usize = 1 << 18;
 
+/// How a scan is read.
+#[derive(Debug, Clone, Default)]
+pub struct ScanOptions {
+    /// Rows per batch (0: [`DEFAULT_BATCH_ROWS`]).
+    pub batch_rows: usize,
+    /// Stops the reduction between batches ([`Error::Interrupted`]) when set.
+    pub cancel: Option<std::sync::Arc<std::sync::atomic::AtomicBool>>,
+}
+
+impl ScanOptions {
+    fn rows(&self) -> usize {
+        if self.batch_rows == 0 { DEFAULT_BATCH_ROWS } else { self.batch_rows }
+    }
+}
+
 /// What a scan reduction did, besides the traverse rows it handed on.
 #[derive(Debug, Clone, Default)]
 pub struct ScanReduction {
@@ -247,17 +262,17 @@ fn split_traverse(column: &str, key: &str) -> Error {
     }
 }
 
-/// Reduces every traverse of a scan, a batch of about `batch_rows` rows at a time, and
+/// Reduces every traverse of a scan, a batch of about `opts.batch_rows` rows at a time, and
 /// hands each batch's traverse rows to `each` in order (see the module doc). Progress
 /// goes to the spec's `progress` as rows (Parquet) or bytes (CSV) read of the total.
 pub fn reduce_campaign_scan_each(
     scan: &TableScan,
     spec: &CampaignSpec,
-    batch_rows: usize,
+    opts: &ScanOptions,
     each: &mut dyn FnMut(DataFrame) -> Result<()>,
 ) -> Result<ScanReduction> {
     let names = spec.columns.names();
-    let batches = scan.batches(&names, batch_rows)?;
+    let batches = scan.batches(&names, opts.rows())?;
     let total = scan.rows().map_or_else(|| scan.bytes(), |r| r as u64);
     let counter = crate::progress::Counter::new(spec.progress.as_ref(), total);
     let mut stream =
@@ -274,6 +289,9 @@ pub fn reduce_campaign_scan_each(
             }
         });
         for item in rx {
+            if opts.cancel.as_ref().is_some_and(|c| c.load(std::sync::atomic::Ordering::Relaxed)) {
+                return Err(Error::Interrupted { context: "campaign scan" });
+            }
             let (df, work) = item?;
             stream.batch(df)?;
             counter.add(work);
@@ -285,9 +303,9 @@ pub fn reduce_campaign_scan_each(
 
 /// Reduces every traverse of a scan into one result held in memory (one row per
 /// traverse; the readings themselves are never all held).
-pub fn reduce_campaign_scan(scan: &TableScan, spec: &CampaignSpec, batch_rows: usize) -> Result<CampaignResult> {
+pub fn reduce_campaign_scan(scan: &TableScan, spec: &CampaignSpec, opts: &ScanOptions) -> Result<CampaignResult> {
     let mut parts: Vec<DataFrame> = Vec::new();
-    let summary = reduce_campaign_scan_each(scan, spec, batch_rows, &mut |df| {
+    let summary = reduce_campaign_scan_each(scan, spec, opts, &mut |df| {
         parts.push(df);
         Ok(())
     })?;
@@ -326,7 +344,7 @@ pub fn reduce_campaign_scan(scan: &TableScan, spec: &CampaignSpec, batch_rows: u
 pub fn reduce_campaign_scan_to_parquet(
     scan: &TableScan,
     spec: &CampaignSpec,
-    batch_rows: usize,
+    opts: &ScanOptions,
     path: &std::path::Path,
     units: &dyn Fn(&DataFrame) -> std::collections::BTreeMap<String, String>,
 ) -> Result<ScanReduction> {
@@ -361,7 +379,7 @@ pub fn reduce_campaign_scan_to_parquet(
             };
             w.write_batch(&df).map_err(|e| Error::File { path: path.display().to_string(), message: e.to_string() })
         };
-        match reduce_campaign_scan_each(scan, spec, batch_rows, &mut sink) {
+        match reduce_campaign_scan_each(scan, spec, opts, &mut sink) {
             Ok(s) => summary = Some(s),
             Err(e) => {
                 failed = Some(e);
@@ -393,6 +411,10 @@ mod tests {
     use crate::campaign::reduction::tests::air_spec;
     use crate::io::table::{write_csv, write_parquet};
     use std::path::PathBuf;
+
+    fn o(batch_rows: usize) -> ScanOptions {
+        ScanOptions { batch_rows, cancel: None }
+    }
 
     fn tmp(name: &str) -> PathBuf {
         let d = std::env::temp_dir().join(format!("stagna-stream-{}-{name}", std::process::id()));
@@ -446,7 +468,7 @@ mod tests {
         for folder in [&d, &csv] {
             let scan = TableScan::open(folder).expect("scan");
             for rows in [1, 37, 50, 100_000] {
-                let r = reduce_campaign_scan(&scan, &spec, rows).expect("scan reduction");
+                let r = reduce_campaign_scan(&scan, &spec, &o(rows)).expect("scan reduction");
                 assert!(
                     r.traverses.equals(&whole.traverses),
                     "{rows} rows a batch:\n{}\n{}",
@@ -473,7 +495,7 @@ mod tests {
         write_parquet(&again, &d.join("t.parquet")).unwrap();
         let scan = TableScan::open(&d.join("t.parquet")).unwrap();
         for rows in [10, 100_000] {
-            let e = reduce_campaign_scan(&scan, &spec, rows).unwrap_err().to_string();
+            let e = reduce_campaign_scan(&scan, &spec, &o(rows)).unwrap_err().to_string();
             assert!(e.contains("traverse 3 ") && e.contains("two places") && e.contains("read_table"), "{e}");
         }
         // Text keys out of order but each together are fine.
@@ -483,7 +505,7 @@ mod tests {
         text.with_column(Column::new("traverse".into(), keys)).unwrap();
         write_parquet(&text, &d.join("text.parquet")).unwrap();
         let scan = TableScan::open(&d.join("text.parquet")).unwrap();
-        let r = reduce_campaign_scan(&scan, &spec, 30).unwrap();
+        let r = reduce_campaign_scan(&scan, &spec, &o(30)).unwrap();
         assert_eq!(r.traverses.height(), 59);
     }
 
@@ -497,7 +519,7 @@ mod tests {
         let out = d.join("out").join("traverses.parquet");
         std::fs::create_dir_all(out.parent().unwrap()).unwrap();
         let units = |_: &DataFrame| [("volume_flow_m3_s".to_string(), "m3/s".to_string())].into_iter().collect();
-        let s = reduce_campaign_scan_to_parquet(&scan, &spec, 50, &out, &units).unwrap();
+        let s = reduce_campaign_scan_to_parquet(&scan, &spec, &o(50), &out, &units).unwrap();
         assert_eq!((s.traverses, s.failures.len(), s.rows), (59, 1, df.height() as u64));
         let back = crate::io::table::read_parquet(&out).unwrap();
         let whole = reduce_campaign(&df, &spec).unwrap();
@@ -509,7 +531,7 @@ mod tests {
         let before = std::fs::read(&out).unwrap();
         let mut bad = spec.clone();
         bad.columns.fluid_temperature.0 = "no_such_column".into();
-        let e = reduce_campaign_scan_to_parquet(&scan, &bad, 50, &out, &units).unwrap_err().to_string();
+        let e = reduce_campaign_scan_to_parquet(&scan, &bad, &o(50), &out, &units).unwrap_err().to_string();
         assert!(e.contains("no_such_column"), "{e}");
         assert_eq!(std::fs::read(&out).unwrap(), before);
         assert_eq!(std::fs::read_dir(out.parent().unwrap()).unwrap().count(), 1);
@@ -524,7 +546,11 @@ mod tests {
         let d = tmp("progress");
         parquet_groups(&readings(), &d.join("t.parquet"), 40);
         let scan = TableScan::open(&d.join("t.parquet")).unwrap();
-        reduce_campaign_scan(&scan, &spec, 40).unwrap();
+        reduce_campaign_scan(&scan, &spec, &o(40)).unwrap();
+        // A set cancel flag stops the scan.
+        let cancel = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(true));
+        let e = reduce_campaign_scan(&scan, &spec, &ScanOptions { batch_rows: 40, cancel: Some(cancel) }).unwrap_err();
+        assert_eq!(e, Error::Interrupted { context: "campaign scan" });
         let seen = seen.lock().unwrap();
         let n = readings().height() as u64;
         assert!(seen.len() > 5);
