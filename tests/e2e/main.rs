@@ -4,5 +4,6 @@ mod bad_inputs;
 mod demo;
 mod layout;
 mod repl;
+mod scans;
 mod scripts;
 mod shards;
