@@ -19,7 +19,7 @@ use rayon::prelude::*;
 use rhai::Dynamic;
 
 use crate::api::Q;
-use crate::session::{LimitArgs, Limits, Session};
+use crate::session::{LimitArgs, Session};
 
 /// Arguments of `stagna run`.
 #[derive(clap::Args, Debug)]
@@ -88,14 +88,14 @@ struct RunResult {
 }
 
 fn run_one(
+    session: &mut Session,
     args: &RunArgs,
-    limits: Limits,
     script: &str,
     file: Option<&Path>,
     out_dir: &Path,
     protected: &[PathBuf],
 ) -> RunResult {
-    let mut session = Session::with_limits(limits);
+    session.start_over();
     let printed = Arc::new(Mutex::new(Vec::new()));
     let sink = printed.clone();
     session.set_output(move |s| {
@@ -271,7 +271,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         .map_err(|e| format!("{}: cannot create the output folder: {e}", args.out.display()))?;
 
     if args.files.is_empty() {
-        let r = run_one(args, limits, &script, None, &args.out, &protected);
+        let r = run_one(&mut Session::with_limits(limits), args, &script, None, &args.out, &protected);
         for l in &r.printed {
             println!("{l}");
         }
@@ -390,23 +390,29 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
             .par_iter()
             .zip(dirs.par_iter())
             .zip(chosen_keys.par_iter())
-            .map(|((f, dir), key)| {
-                let mut r = match record(key, "running", None).and_then(|()| {
-                    std::fs::create_dir_all(dir).map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
-                }) {
-                    Ok(()) => run_one(args, limits, &script, Some(f), dir, &protected),
-                    Err(e) => RunResult { printed: vec![], error: Some(e) },
-                };
-                let status = if r.error.is_some() { "failed" } else { "done" };
-                if let Err(e) = record(key, status, r.error.clone()) {
-                    r.error.get_or_insert(e);
-                }
-                if let Some(b) = &bar {
-                    b.set_message(f.file_name().map(|s| s.to_string_lossy().to_string()).unwrap_or_default());
-                    b.inc(1);
-                }
-                r
-            })
+            // One session per worker, started over for each input (building one costs more
+            // than a small input's whole reduction).
+            .map_init(
+                || Session::with_limits(limits),
+                |session, ((f, dir), key)| {
+                    let mut r = match record(key, "running", None).and_then(|()| {
+                        std::fs::create_dir_all(dir)
+                            .map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
+                    }) {
+                        Ok(()) => run_one(session, args, &script, Some(f), dir, &protected),
+                        Err(e) => RunResult { printed: vec![], error: Some(e) },
+                    };
+                    let status = if r.error.is_some() { "failed" } else { "done" };
+                    if let Err(e) = record(key, status, r.error.clone()) {
+                        r.error.get_or_insert(e);
+                    }
+                    if let Some(b) = &bar {
+                        b.set_message(f.file_name().map(|s| s.to_string_lossy().to_string()).unwrap_or_default());
+                        b.inc(1);
+                    }
+                    r
+                },
+            )
             .collect()
     });
     if let Some(b) = bar {

@@ -92,8 +92,40 @@ fn a_traverse_met_twice_in_a_scan_is_refused_and_nothing_is_written() {
         .expect("runs");
     let stderr = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success());
-    assert!(stderr.contains("traverse 0 ") && stderr.contains("two places") && stderr.contains("sort the readings"), "{stderr}");
+    assert!(
+        stderr.contains("traverse 0 ") && stderr.contains("two places") && stderr.contains("sort the readings"),
+        "{stderr}"
+    );
     assert!(!out.join("scan.parquet").exists(), "no result file from a refused scan");
-    let leftovers: Vec<_> = std::fs::read_dir(&out).map(|r| r.flatten().map(|e| e.file_name()).collect()).unwrap_or_default();
+    let leftovers: Vec<_> =
+        std::fs::read_dir(&out).map(|r| r.flatten().map(|e| e.file_name()).collect()).unwrap_or_default();
     assert!(leftovers.iter().all(|n| !n.to_string_lossy().contains("stagna-tmp")), "{leftovers:?}");
+}
+
+/// The batch runner reuses one session per worker: nothing a script sets reaches the next input.
+#[test]
+fn each_input_starts_from_a_fresh_session() {
+    let dir = tempdir("fresh");
+    let mut files = Vec::new();
+    for name in ["a", "b", "c"] {
+        let f = dir.join(format!("{name}.csv"));
+        std::fs::write(&f, "x\n1\n").expect("write");
+        files.push(f.display().to_string());
+    }
+    let script = dir.join("s.rhai");
+    std::fs::write(
+        &script,
+        "print(`${input_name}: figures ${display_figures()} x ${is_def_var(\"x\")} length ${1.m}`);\n\
+         display_figures(9); display_units(\"US\"); let x = 1;\n",
+    )
+    .expect("script");
+    let out = dir.join("out");
+    let mut args = vec!["run", script.to_str().unwrap_or_default(), "-o", out.to_str().unwrap_or_default(), "-j", "1"];
+    args.extend(files.iter().map(String::as_str));
+    let o = Command::new(env!("CARGO_BIN_EXE_stagna")).args(&args).output().expect("runs");
+    let stdout = String::from_utf8_lossy(&o.stdout);
+    assert!(o.status.success(), "{stdout}\n{}", String::from_utf8_lossy(&o.stderr));
+    for name in ["a", "b", "c"] {
+        assert!(stdout.contains(&format!("{name}: figures 4 x false length 1 m")), "{stdout}");
+    }
 }

@@ -38,7 +38,8 @@ impl Scan {
         lib(Unit::parse(u))?;
         let mut out = self.clone();
         if let Some(old) = out.units.insert(c.to_string(), u.to_string()).filter(|o| o != u) {
-            let msg = format!("warning: column '{c}': unit {u} replaces {old} (stored with the file or declared before)");
+            let msg =
+                format!("warning: column '{c}': unit {u} replaces {old} (stored with the file or declared before)");
             ctx.call_native_fn::<()>("eprint", (rhai::ImmutableString::from(msg),))?;
         }
         Ok(out)
@@ -74,9 +75,14 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.method(
         "Scan",
         "unit",
-        &Doc::new("scan.unit(column, unit) -> Scan", "Declares the unit of a numeric column of a scan, as t.unit does for a table.")
-            .example("table_from(#{h: [12.5]}).write(\"h.parquet\");\nprint(scan_table(\"h.parquet\").unit(\"h\", \"mm\"));")
-            .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
+        &Doc::new(
+            "scan.unit(column, unit) -> Scan",
+            "Declares the unit of a numeric column of a scan, as t.unit does for a table.",
+        )
+        .example(
+            "table_from(#{h: [12.5]}).write(\"h.parquet\");\nprint(scan_table(\"h.parquet\").unit(\"h\", \"mm\"));",
+        )
+        .source("unit factors: NIST SP 811 (2008) Appendix B.8"),
         |ctx: NativeCallContext, s: &mut Scan, c: &str, u: &str| -> Res<Scan> { s.declare(&ctx, c, u) },
     );
     r.method(
