@@ -308,16 +308,30 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         )
         .into());
     }
-    // This shard's inputs, less those an earlier run finished with the same contents; the
-    // inputs are hashed in parallel (the reads also warm the page cache for the run).
+    // This shard's inputs, less those an earlier run finished with the same contents. When
+    // resuming, the inputs are hashed first (in parallel) to compare with the manifest;
+    // otherwise each input is hashed while its own script runs (a large input's hash then
+    // costs no time of its own), and the manifest holds its size until then.
     let owned: Vec<usize> = (0..args.files.len()).filter(|&i| shard.owns(&keys[i])).collect();
-    let hashes: Vec<(u64, String)> = owned
-        .par_iter()
-        .map(|&i| {
-            let f = &args.files[i];
-            crate::shard::file_sha256(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display()))
-        })
-        .collect::<Result<_, String>>()?;
+    let hashes: Vec<(u64, String)> = if earlier.is_some() {
+        owned
+            .par_iter()
+            .map(|&i| {
+                let f = &args.files[i];
+                crate::shard::file_sha256(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display()))
+            })
+            .collect::<Result<_, String>>()?
+    } else {
+        owned
+            .iter()
+            .map(|&i| {
+                let f = &args.files[i];
+                std::fs::metadata(f)
+                    .map(|m| (m.len(), String::new()))
+                    .map_err(|e| format!("{}: cannot read the input file: {e}", f.display()))
+            })
+            .collect::<Result<_, String>>()?
+    };
     let mut chosen: Vec<usize> = Vec::new();
     let mut skipped = 0usize;
     for (&i, (size, sha)) in owned.iter().zip(hashes) {
@@ -356,7 +370,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     // interruption loses at most the last second's statuses, and `--resume` reruns those
     // inputs (pending or running), rewriting their outputs atomically.
     let manifest = std::sync::Mutex::new((manifest, std::time::Instant::now()));
-    let record = |key: &str, status: &str, error: Option<String>| -> Result<(), String> {
+    let record = |key: &str, status: &str, error: Option<String>, hash: Option<(u64, String)>| -> Result<(), String> {
         let mut g = match manifest.lock() {
             Ok(g) => g,
             Err(e) => e.into_inner(),
@@ -364,6 +378,10 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         if let Some(e) = g.0.inputs.get_mut(key) {
             e.status = status.into();
             e.error = error;
+            if let Some((size, sha)) = hash {
+                e.size = size;
+                e.sha256 = sha;
+            }
         }
         if g.1.elapsed() < std::time::Duration::from_secs(1) {
             return Ok(());
@@ -395,15 +413,22 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
             .map_init(
                 || Session::with_limits(limits),
                 |session, ((f, dir), key)| {
-                    let mut r = match record(key, "running", None).and_then(|()| {
+                    let mut hash = None;
+                    let mut r = match record(key, "running", None, None).and_then(|()| {
                         std::fs::create_dir_all(dir)
                             .map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
                     }) {
-                        Ok(()) => run_one(session, args, &script, Some(f), dir, &protected),
+                        // The input is hashed for the manifest while its script runs.
+                        Ok(()) => std::thread::scope(|sc| {
+                            let hashing = sc.spawn(|| crate::shard::file_sha256(f).ok());
+                            let r = run_one(session, args, &script, Some(f), dir, &protected);
+                            hash = hashing.join().ok().flatten();
+                            r
+                        }),
                         Err(e) => RunResult { printed: vec![], error: Some(e) },
                     };
                     let status = if r.error.is_some() { "failed" } else { "done" };
-                    if let Err(e) = record(key, status, r.error.clone()) {
+                    if let Err(e) = record(key, status, r.error.clone(), hash) {
                         r.error.get_or_insert(e);
                     }
                     if let Some(b) = &bar {
