@@ -31,12 +31,14 @@ import tempfile
 import time
 
 # The synthetic campaign: 20 readings a traverse (2 lines × 10 equal-area points), ducts of
-# 400–1600 mm, a power-law-like deflection pattern, a temperature per traverse, and two
-# columns the reduction does not need (a time stamp and an operator number), as logged files have.
+# 400–1600 mm, a power-law-like deflection pattern with 1 % scatter read to 0.01 mm, a
+# temperature per traverse with 0.15 K scatter read to 0.1 °C (so that files compress as logged
+# readings do, not as a repeating pattern), and two columns the reduction does not need (a time
+# stamp and an operator number), as logged files have. Seeded: every run makes the same files.
 USED = ["traverse", "line", "position_mm", "deflection_mm", "fluid_temp_c", "diameter_mm"]
 
 
-def make_campaign(readings, path):
+def make_campaign(readings, path, first=0, seed=20261203):
     import numpy as np
     import polars as pl
 
@@ -44,17 +46,21 @@ def make_campaign(readings, path):
     traverses = readings // per
     ea = [(1.0 - math.sqrt((2 * i - 1) / 10.0)) / 2.0 for i in range(1, 6)][::-1]
     frac = np.array(ea + [1.0 - y for y in ea[::-1]])
-    t = np.repeat(np.arange(traverses, dtype=np.int64), per)
+    rng = np.random.default_rng(seed)
+    t = np.repeat(np.arange(first, first + traverses, dtype=np.int64), per)
     k = np.tile(np.arange(per, dtype=np.int64), traverses)
     y = frac[k % 10]
     d = 400.0 + (t % 13) * 100.0
+    n = traverses * per
+    h = (20.0 + (t % 29)) * (2.0 * np.minimum(y, 1.0 - y)) ** (2.0 / 7.0) * (1.0 + 0.01 * rng.standard_normal(n))
+    tc = 15.0 + (t % 17).astype(np.float64) + 0.15 * rng.standard_normal(n)
     df = pl.DataFrame(
         {
             "traverse": t,
             "line": k // 10,
             "position_mm": y * d,
-            "deflection_mm": (20.0 + (t % 29)) * (2.0 * np.minimum(y, 1.0 - y)) ** (2.0 / 7.0),
-            "fluid_temp_c": 15.0 + (t % 17).astype(np.float64),
+            "deflection_mm": np.round(h, 2),
+            "fluid_temp_c": np.round(tc, 1),
             "diameter_mm": d,
             "time_s": t * 90.0 + k * 3.0,
             "operator": t % 7,
@@ -68,7 +74,7 @@ def make_campaign(readings, path):
 
 STAGNA_SCRIPT = r"""
 let units = #{deflection_mm: "mm", fluid_temp_c: "degC", diameter_mm: "mm", position_mm: "mm"};
-let readings = if ROUTE == "scan" { scan_table(input).units(units) } else { read_table(input).units(units) };
+let readings = if ROUTE == "sink" { () } else if ROUTE == "scan" { scan_table(input).units(units) } else { read_table(input).units(units) };
 let spec = #{
     fluid: humid_air(0.5), static_pressure: 101.kPa,
     manometer: inclined_gauge(gauge_liquid("oil", 826.kg_m3, 20.degC, 7.5e-4), 30, 0.002),
@@ -77,6 +83,12 @@ let spec = #{
                size: "diameter_mm", position: "position_mm", line: "line"},
     min_points: 20
 };
+if ROUTE == "sink" {
+    // A folder too large to hold (given with --set source=FOLDER), straight into a file.
+    let r = reduce_campaign_to(scan_table(source).units(units), spec, "traverses.parquet");
+    print(`RESULT n=${r.traverses} q=0 m=0 points=${r.readings}`);
+    return;
+}
 let t = reduce_campaign(readings, spec).traverses;
 print(`RESULT n=${t.len} q=${t["volume_flow_m3_s"].sum().value} m=${t["mass_flow_kg_s"].sum().value} points=${t["points"].sum().value}`);
 """
@@ -139,6 +151,26 @@ def peer_polars(path, engine):
     print(f"RESULT n={t.height} q={t['q'].sum()} m={t['m'].sum()} points={t['points'].sum()}")
 
 
+def peer_polars_sink(folder, out):
+    """The larger-than-memory peer: the same query over a folder, streamed into a Parquet file."""
+    import polars as pl
+
+    lf = pl.scan_parquet(os.path.join(folder, "*.parquet"))
+    tc, h = pl.col("fluid_temp_c"), pl.col("deflection_mm")
+    rho, dp, v = physics(tc, h, lambda x: x.exp(), lambda x: x.sqrt(), lambda x: x.abs(), lambda x: x.sign())
+    (
+        lf.select(pl.col("traverse"), pl.col("diameter_mm"), rho.alias("rho"), dp.alias("dp"), v.alias("v"))
+        .group_by("traverse")
+        .agg(points=pl.len(), mean_v=pl.col("v").mean(), rho=pl.col("rho").mean(), vmax=pl.col("v").max(),
+             d=pl.col("diameter_mm").first(), reversed=(pl.col("dp") < 0).sum())
+        .with_columns(q=pl.col("mean_v") * math.pi * (pl.col("d") / 1000.0) ** 2 / 4.0)
+        .with_columns(m=pl.col("q") * pl.col("rho"), flatness=pl.col("mean_v") / pl.col("vmax"))
+        .sink_parquet(out)
+    )
+    t = pl.scan_parquet(out).select(pl.len(), pl.col("points").sum()).collect()
+    print(f"RESULT n={t[0, 0]} q=0 m=0 points={t[0, 1]}")
+
+
 def peer_pandas(path):
     import numpy as np
     import pandas as pd
@@ -187,12 +219,15 @@ def main():
         return peer_polars(sys.argv[2], sys.argv[3])
     if len(sys.argv) > 1 and sys.argv[1] == "peer-pandas":
         return peer_pandas(sys.argv[2])
+    if len(sys.argv) > 1 and sys.argv[1] == "peer-polars-sink":
+        return peer_polars_sink(sys.argv[2], sys.argv[3])
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--stagna", required=True)
     ap.add_argument("--sizes", default="1e6,1e7")
     ap.add_argument("--formats", default="parquet,csv")
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--dir", default=None)
+    ap.add_argument("--large", default="0", help="also reduce a folder of this many readings (e.g. 2e8) into a Parquet file")
     a = ap.parse_args()
     import numpy, pandas, polars
 
@@ -201,7 +236,7 @@ def main():
     work = a.dir or tempfile.mkdtemp(prefix="stagna-peers-")
     os.makedirs(work, exist_ok=True)
     scripts = {}
-    for route in ["scan", "read"]:
+    for route in ["scan", "read", "sink"]:
         p = os.path.join(work, f"reduce-{route}.rhai")
         with open(p, "w") as f:
             f.write(STAGNA_SCRIPT.replace("ROUTE", f'"{route}"'))
@@ -244,6 +279,27 @@ def main():
             for k in contestants:
                 print(f"  {k:<14} {med[k]:8.3f} {max(rss[k]):9.0f} {max(rss[k]) * 2**20 / raw:9.2f} {med[k] / med['stagna-scan']:14.2f}×")
             print(f"  goals: ≥ 2× best python-polars: {best_polars / med['stagna-scan']:.2f}×; ≥ 5× pandas: {med['pandas'] / med['stagna-scan']:.2f}×; peak ≤ 0.5× raw: {max(rss['stagna-scan']) * 2**20 / raw:.2f}×")
+    large = int(float(a.large))
+    if large:
+        folder = os.path.join(work, f"campaign-{large}")
+        step = 10_000_000
+        if not os.path.isdir(folder):
+            os.makedirs(folder)
+            for i, lo in enumerate(range(0, large, step)):
+                make_campaign(min(step, large - lo), os.path.join(folder, f"part-{i:04}.parquet"), first=lo // 20, seed=i)
+        disk = sum(os.path.getsize(os.path.join(folder, f)) for f in os.listdir(folder))
+        raw = large * len(USED) * 8
+        print(f"\nlarger than memory: {large:,} readings in {len(os.listdir(folder))} Parquet files ({disk / 2**20:.0f} MiB on disk; raw bytes of the columns used {raw / 2**30:.1f} GiB), straight into a Parquet file of traverses")
+        for name, cmd in {
+            "stagna-sink": [a.stagna, "run", scripts["sink"], "--set", f"source={folder}", "-o", os.path.join(work, "out-large")],
+            "polars-sink": [py, __file__, "peer-polars-sink", folder, os.path.join(work, "polars-large.parquet")],
+        }.items():
+            w, m, line = measured(cmd)
+            n, _, _, pts = parse(line)
+            per_reading = w / large * 1e9
+            ref = results.get((max(s for s, _ in results), "parquet"), {}).get("stagna-scan") if name == "stagna-sink" and results else None
+            scale = f"; per reading {per_reading:.1f} ns" + (f" (10 M-reading run: {ref / max(s for s, _ in results) * 1e9:.1f} ns)" if ref else "")
+            print(f"  {name:<12} {w:8.1f} s  peak {m:7.0f} MiB  {n:,} traverses, {pts:,} readings{scale}")
     sizes = sorted({s for s, _ in results})
     if len(sizes) >= 2:
         lo, hi = sizes[0], sizes[-1]

@@ -10,10 +10,13 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
-/// The system allocator with a running count of the bytes held, which the session's
-/// memory limit reads at every script operation (tracking only: it never refuses).
+/// mimalloc with a running count of the bytes held, which the session's memory limit reads
+/// at every script operation (tracking only: it never refuses). mimalloc rather than the
+/// system allocator: a scan allocates and frees each batch's columns, and glibc's malloc
+/// returned them to the system and faulted them back in (a third of a 10 M-reading scan's
+/// CPU time in the kernel); measured A/B in DEVELOPERS.md.
 #[global_allocator]
-static ALLOCATOR: cap::Cap<std::alloc::System> = cap::Cap::new(std::alloc::System, usize::MAX);
+static ALLOCATOR: cap::Cap<mimalloc::MiMalloc> = cap::Cap::new(mimalloc::MiMalloc, usize::MAX);
 
 /// Stack of the thread that runs every command: deep script data (arrays nested
 /// thousands deep) is dropped and displayed recursively. Reserved, not committed.

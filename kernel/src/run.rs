@@ -318,7 +318,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
             .par_iter()
             .map(|&i| {
                 let f = &args.files[i];
-                crate::shard::file_sha256(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display()))
+                crate::shard::file_hash(f).map_err(|e| format!("{}: cannot read the input file: {e}", f.display()))
             })
             .collect::<Result<_, String>>()?
     } else {
@@ -338,13 +338,18 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
         let (f, key) = (&args.files[i], &keys[i]);
         let entry = crate::shard::Entry {
             size,
-            sha256: sha,
+            xxh3_128: sha,
             output: all_dirs[i].display().to_string(),
             status: "pending".into(),
             error: None,
         };
         match earlier.as_ref().and_then(|m| m.inputs.get(key)) {
-            Some(e) if e.status == "done" && e.sha256 == entry.sha256 && e.size == entry.size => {
+            Some(e)
+                if e.status == "done"
+                    && !e.xxh3_128.is_empty()
+                    && e.xxh3_128 == entry.xxh3_128
+                    && e.size == entry.size =>
+            {
                 skipped += 1;
                 manifest.inputs.insert(key.clone(), e.clone());
                 continue;
@@ -380,7 +385,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
             e.error = error;
             if let Some((size, sha)) = hash {
                 e.size = size;
-                e.sha256 = sha;
+                e.xxh3_128 = sha;
             }
         }
         if g.1.elapsed() < std::time::Duration::from_secs(1) {
@@ -420,7 +425,7 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
                     }) {
                         // The input is hashed for the manifest while its script runs.
                         Ok(()) => std::thread::scope(|sc| {
-                            let hashing = sc.spawn(|| crate::shard::file_sha256(f).ok());
+                            let hashing = sc.spawn(|| crate::shard::file_hash(f).ok());
                             let r = run_one(session, args, &script, Some(f), dir, &protected);
                             hash = hashing.join().ok().flatten();
                             r

@@ -15,7 +15,7 @@ use polars::prelude::*;
 use crate::error::{Error, Result};
 use crate::fluids::fluid::Fluid;
 use crate::instruments::manometer::Manometer;
-use crate::instruments::probe::{Probe, incompressible, isentropic};
+use crate::instruments::probe::{Probe, incompressible};
 use crate::section::integration::{Averaging, section_mean};
 use crate::section::layout::Position;
 use crate::units::quantity::Pressure;
@@ -226,10 +226,27 @@ impl TraverseConditions {
 struct Cond<'a> {
     p: f64,
     fluid: &'a Fluid,
-    gamma: Option<f64>,
     dry: Option<f64>,
     /// Dry molecular weight for the Method 2 route, g/g-mol.
     md: Option<f64>,
+    /// The isentropic velocity's constants (gases).
+    isen: Option<crate::instruments::probe::Isentropic>,
+}
+
+impl<'a> Cond<'a> {
+    fn new(p: f64, fluid: &'a Fluid, dry: Option<f64>, md: Option<f64>, coefficient: f64) -> Self {
+        let isen = fluid.isentropic_exponent().map(|g| crate::instruments::probe::Isentropic::new(coefficient, p, g));
+        Self { p, fluid, dry, md, isen }
+    }
+
+    /// Velocity (m/s) from Δp (Pa) and the fluid's density (kg/m³): isentropic for a gas.
+    #[inline(always)]
+    fn velocity(&self, coefficient: f64, dp: f64, rho: f64) -> f64 {
+        match &self.isen {
+            Some(k) => k.velocity(dp, rho),
+            None => incompressible(coefficient, dp, rho),
+        }
+    }
 }
 
 /// Relative standard uncertainties for the per-traverse GUM budget of the flow
@@ -363,24 +380,47 @@ fn column<'a>(df: &'a DataFrame, name: &str, unit: &Unit, what: &str) -> Result<
     Ok(SiColumn { data, factor: unit.factor, offset: unit.offset })
 }
 
-/// Memo of the last input and result of an expensive scalar function: readings
-/// of one traverse usually repeat their temperatures.
+/// Slots of a [`Memo`].
+const MEMO_SLOTS: usize = 64;
+
+/// Memo of an expensive scalar function of a temperature (a density): a small
+/// direct-mapped table keyed by the input's exact bits. Readings repeat their
+/// temperatures (one per traverse, or a handful read to 0.1 K), so nearly every row is
+/// answered from it; a value is the function's own, never an interpolation.
 struct Memo {
-    key: u64,
-    value: f64,
+    keys: [u64; MEMO_SLOTS],
+    gens: [u32; MEMO_SLOTS],
+    vals: [f64; MEMO_SLOTS],
+    /// Slots of another generation are empty (a traverse with other conditions).
+    generation: u32,
 }
 
 impl Memo {
     fn new() -> Self {
-        Self { key: f64::NAN.to_bits() ^ 1, value: 0.0 }
+        Self { keys: [0; MEMO_SLOTS], gens: [0; MEMO_SLOTS], vals: [0.0; MEMO_SLOTS], generation: 1 }
     }
+
+    /// Forgets every value (in constant time).
+    fn clear(&mut self) {
+        self.generation = self.generation.wrapping_add(1);
+        if self.generation == 0 {
+            *self = Self::new();
+        }
+    }
+
     #[inline(always)]
     fn get(&mut self, x: f64, f: impl FnOnce(f64) -> Result<f64>) -> Result<f64> {
-        if x.to_bits() != self.key {
-            self.value = f(x)?;
-            self.key = x.to_bits();
+        if !x.is_finite() {
+            return f(x);
         }
-        Ok(self.value)
+        let b = x.to_bits();
+        let i = (b.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> (64 - MEMO_SLOTS.trailing_zeros())) as usize;
+        if self.gens[i] == self.generation && self.keys[i] == b {
+            return Ok(self.vals[i]);
+        }
+        let v = f(x)?;
+        (self.keys[i], self.gens[i], self.vals[i]) = (b, self.generation, v);
+        Ok(v)
     }
 }
 
@@ -455,6 +495,12 @@ impl Memos {
     fn new() -> Self {
         Self { rho_f: Memo::new(), rho_m: Memo::new(), light: Memo::new() }
     }
+
+    fn clear(&mut self) {
+        self.rho_f.clear();
+        self.rho_m.clear();
+        self.light.clear();
+    }
 }
 
 impl<'a> RowPhysics<'a> {
@@ -490,10 +536,7 @@ impl<'a> RowPhysics<'a> {
         let t = self.temp.at(row);
         if self.dp_reading {
             let rho_f = m.rho_f.get(t, |t| c.fluid.density_si(c.p, t))?;
-            let v = match c.gamma {
-                Some(g) => isentropic(spec.probe.coefficient, h, rho_f, c.p, g),
-                None => incompressible(spec.probe.coefficient, h, rho_f),
-            };
+            let v = c.velocity(spec.probe.coefficient, h, rho_f);
             return Ok((h, rho_f, v, t));
         }
         let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
@@ -505,10 +548,7 @@ impl<'a> RowPhysics<'a> {
             None
         };
         let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f)?;
-        let v = match c.gamma {
-            Some(g) => isentropic(spec.probe.coefficient, dp, rho_f, c.p, g),
-            None => incompressible(spec.probe.coefficient, dp, rho_f),
-        };
+        let v = c.velocity(spec.probe.coefficient, dp, rho_f);
         Ok((dp, rho_f, v, t))
     }
 }
@@ -578,7 +618,7 @@ impl Kernel<'_> {
         if spec.conditions.is_some() {
             // The density memos are keyed by temperature alone: another traverse's fluid or
             // pressure must not answer from them.
-            sc.memos = Memos::new();
+            sc.memos.clear();
         }
         sc.lines.clear();
         sc.pos.clear();
@@ -893,7 +933,7 @@ pub(crate) fn reduce_campaign_with(
         .map(|b| 1.0 - b);
     let key_series = df.column(&cols.traverse).map_err(table_err)?.as_materialized_series().clone();
     let groups = groups(df, &cols.traverse)?;
-    let base = Cond { p: spec.static_pressure.si(), fluid: &spec.fluid, gamma, dry, md: None };
+    let base = Cond::new(spec.static_pressure.si(), &spec.fluid, dry, None, spec.probe.coefficient);
     if let Some(c) = &spec.conditions
         && c.fluid.iter().any(|f| f.isentropic_exponent().is_some() != gamma.is_some())
     {
@@ -909,9 +949,12 @@ pub(crate) fn reduce_campaign_with(
 
     // One result per traverse, in group order, computed in parallel chunks.
     let counter = crate::progress::Counter::new(progress, groups.len() as u64);
+    // Enough work items for every thread several times over (a scan's batch holds a few
+    // thousand traverses), at most CHUNK traverses each.
+    let chunk = (groups.len() / (rayon::current_num_threads() * 8)).clamp(16, CHUNK);
     let results: Vec<(usize, Result<TraverseOut>)> = match &*groups {
         GroupsType::Slice { groups, .. } => groups
-            .par_chunks(CHUNK)
+            .par_chunks(chunk)
             .flat_map_iter(|chunk| {
                 let mut sc = Scratch::new();
                 let out = chunk
@@ -927,8 +970,8 @@ pub(crate) fn reduce_campaign_with(
             .collect(),
         GroupsType::Idx(idx) => idx
             .first()
-            .par_chunks(CHUNK)
-            .zip(idx.all().par_chunks(CHUNK))
+            .par_chunks(chunk)
+            .zip(idx.all().par_chunks(chunk))
             .flat_map_iter(|(firsts, alls)| {
                 let mut sc = Scratch::new();
                 let out = firsts
@@ -1015,6 +1058,8 @@ pub(crate) fn reduce_campaign_with(
 /// keys indexed once (a campaign can hold hundreds of thousands of traverses).
 struct CondLookup<'a> {
     base: Cond<'a>,
+    /// The probe coefficient (for each traverse's velocity constants).
+    coefficient: f64,
     /// The traverse column cast to text, when per-traverse conditions are given.
     keys: Option<(StringChunked, &'a TraverseConditions, std::collections::HashMap<&'a str, usize>)>,
 }
@@ -1031,7 +1076,7 @@ impl<'a> CondLookup<'a> {
                 Some((text, c, index))
             }
         };
-        Ok(Self { base, keys })
+        Ok(Self { base, coefficient: spec.probe.coefficient, keys })
     }
 
     /// The key of row `row` as text (None without per-traverse conditions).
@@ -1049,13 +1094,13 @@ impl<'a> CondLookup<'a> {
                 message: format!("no conditions (static pressure, fluid, moisture) are given for traverse {key}"),
             });
         };
-        Ok(Cond {
-            p: c.static_pressure_pa[i],
-            fluid: &c.fluid[i],
-            gamma: c.fluid[i].isentropic_exponent(),
-            dry: c.moisture[i].map(|b| 1.0 - b).or(self.base.dry),
-            md: c.dry_molecular_weight.get(i).copied().flatten(),
-        })
+        Ok(Cond::new(
+            c.static_pressure_pa[i],
+            &c.fluid[i],
+            c.moisture[i].map(|b| 1.0 - b).or(self.base.dry),
+            c.dry_molecular_weight.get(i).copied().flatten(),
+            self.coefficient,
+        ))
     }
 }
 
@@ -1066,13 +1111,7 @@ pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame
     let n = df.height();
     let (mut dps, mut rhos, mut vs) = (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
     let mut memos = Memos::new();
-    let base = Cond {
-        p: spec.static_pressure.si(),
-        fluid: &spec.fluid,
-        gamma: spec.fluid.isentropic_exponent(),
-        dry: None,
-        md: None,
-    };
+    let base = Cond::new(spec.static_pressure.si(), &spec.fluid, None, None, spec.probe.coefficient);
     let lookup = CondLookup::new(df, spec, base)?;
     let mut last_key: Option<&str> = None;
     let mut cond = base;
@@ -1081,7 +1120,7 @@ pub fn point_velocities(df: &DataFrame, spec: &CampaignSpec) -> Result<DataFrame
             && last_key != Some(key)
         {
             cond = lookup.at(row).map_err(|e| e.at_row(row))?;
-            memos = Memos::new();
+            memos.clear();
             last_key = Some(key);
         }
         let (dp, rho_f, v, _) = phys.point(row, &cond, &mut memos).map_err(|e| e.at_row(row))?;
