@@ -129,7 +129,7 @@ fn run_one(
         }
     }
     let name = args.script.display().to_string();
-    let result = session.eval(script);
+    let result = session.eval_same_script(script);
     let report_error = args.report.as_ref().and_then(|r| {
         let title = match file {
             Some(f) => format!("{} on {}", args.script.file_stem().unwrap_or_default().to_string_lossy(), f.display()),
@@ -423,13 +423,20 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
                         std::fs::create_dir_all(dir)
                             .map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
                     }) {
-                        // The input is hashed for the manifest while its script runs.
-                        Ok(()) => std::thread::scope(|sc| {
+                        // A large input is hashed for the manifest on its own thread while its
+                        // script runs; a small one after (a thread per small input cost more
+                        // than its hash: a fresh allocator heap for each).
+                        Ok(()) if std::fs::metadata(f).is_ok_and(|m| m.len() > 8 << 20) => std::thread::scope(|sc| {
                             let hashing = sc.spawn(|| crate::shard::file_hash(f).ok());
                             let r = run_one(session, args, &script, Some(f), dir, &protected);
                             hash = hashing.join().ok().flatten();
                             r
                         }),
+                        Ok(()) => {
+                            let r = run_one(session, args, &script, Some(f), dir, &protected);
+                            hash = crate::shard::file_hash(f).ok();
+                            r
+                        }
                         Err(e) => RunResult { printed: vec![], error: Some(e) },
                     };
                     let status = if r.error.is_some() { "failed" } else { "done" };

@@ -272,6 +272,8 @@ pub struct Session {
     sink: Arc<RwLock<Sink>>,
     input: Arc<RwLock<Option<InputHook>>>,
     limits: Limits,
+    /// The last script compiled by [`Session::eval_same_script`].
+    compiled: Option<(String, AST)>,
 }
 
 fn stdout_sink() -> Sink {
@@ -441,7 +443,18 @@ impl Session {
         });
         let help_catalog = catalog.clone();
         engine.register_fn("help", move |name: &str| -> String { help_text(&help_catalog, name) });
-        Session { engine, scope: Scope::new(), functions: AST::empty(), catalog, prefs, interrupt, sink, input, limits }
+        Session {
+            engine,
+            scope: Scope::new(),
+            functions: AST::empty(),
+            catalog,
+            prefs,
+            interrupt,
+            sink,
+            input,
+            limits,
+            compiled: None,
+        }
     }
 
     /// Where `print` and `display` go (as text); `eprint` still goes to standard error.
@@ -538,6 +551,27 @@ impl Session {
     pub fn eval(&mut self, src: &str) -> Result<Outcome, ScriptError> {
         self.interrupt.store(false, Ordering::Relaxed);
         let ast = self.engine.compile_with_scope(&self.scope, src).map_err(|e| self.parse_error(&e))?;
+        self.run_ast(ast)
+    }
+
+    /// As [`Session::eval`], compiling `src` once for every call with the same text: the
+    /// batch runner runs one script over many inputs, each after [`Session::start_over`],
+    /// whose scope holds the same variables (none constant, so the compiled form does not
+    /// depend on their values).
+    pub fn eval_same_script(&mut self, src: &str) -> Result<Outcome, ScriptError> {
+        self.interrupt.store(false, Ordering::Relaxed);
+        let ast = match &self.compiled {
+            Some((text, ast)) if text == src => ast.clone(),
+            _ => {
+                let ast = self.engine.compile_with_scope(&self.scope, src).map_err(|e| self.parse_error(&e))?;
+                self.compiled = Some((src.to_string(), ast.clone()));
+                ast
+            }
+        };
+        self.run_ast(ast)
+    }
+
+    fn run_ast(&mut self, ast: AST) -> Result<Outcome, ScriptError> {
         let fns = ast.clone_functions_only();
         let runnable = self.functions.merge(&ast);
         let engine = &self.engine;

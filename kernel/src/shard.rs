@@ -115,10 +115,16 @@ pub struct Manifest {
     pub inputs: BTreeMap<String, Entry>,
 }
 
-/// Size and XXH3-128 of a file's contents, hex.
+/// Size and XXH3-128 of a file's contents, hex (a small file read whole, a large one a
+/// MiB at a time).
 pub fn file_hash(path: &Path) -> std::io::Result<(u64, String)> {
     use std::io::Read;
     let mut f = std::fs::File::open(path)?;
+    if f.metadata()?.len() <= 8 << 20 {
+        let mut bytes = Vec::new();
+        f.read_to_end(&mut bytes)?;
+        return Ok((bytes.len() as u64, format!("{:032x}", xxhash_rust::xxh3::xxh3_128(&bytes))));
+    }
     let mut h = xxhash_rust::xxh3::Xxh3Default::new();
     let mut buf = vec![0u8; 1 << 20];
     let mut size = 0u64;

@@ -347,9 +347,11 @@ impl Batches<'_> {
 
     fn next_csv(&mut self, layout: CsvLayout, ends: &[u64]) -> Option<Result<(DataFrame, u64)>> {
         use std::io::{Seek, SeekFrom};
-        // About this many bytes per batch: 24 bytes a row is a guess that holds for
-        // readings tables; a batch never splits a line.
-        let target = (self.rows as u64 * 24).clamp(1 << 16, 1 << 28) as usize;
+        // About 64 bytes a row, never splitting a line, and at least 16 MiB for batches of
+        // thousands of rows. Measured on a 10 M-reading CSV (546 MiB, 2 cores): 3 MB batches
+        // took 1.9 s, 16 MiB 1.55 s, 64 MiB 1.5–1.9 s with more memory.
+        let target =
+            if self.rows < 4096 { (self.rows * 64).max(4096) } else { (self.rows * 64).clamp(16 << 20, 1 << 28) };
         loop {
             if self.file >= self.scan.files.len() {
                 return None;
