@@ -129,3 +129,44 @@ fn each_input_starts_from_a_fresh_session() {
         assert!(stdout.contains(&format!("{name}: figures 4 x false length 1 m")), "{stdout}");
     }
 }
+
+/// A full disk, simulated by a file-size limit (`ulimit -f`, with SIGXFSZ ignored so that a
+/// write fails instead of killing the process): a result that does not fit is refused with a
+/// clear message, the earlier file of that name stays whole, and no temporary is left.
+#[test]
+fn a_full_disk_leaves_earlier_results_whole() {
+    let dir = tempdir("full");
+    std::fs::write(dir.join("r.csv"), format!("{HEADER}\n{}\n", rows(4000).join("\n"))).expect("write");
+    let out = dir.join("out");
+    std::fs::create_dir_all(&out).expect("out");
+    std::fs::write(out.join("big.csv"), "earlier,result\n").expect("earlier");
+    std::fs::write(out.join("traverses.parquet"), b"earlier parquet").expect("earlier");
+    for (name, body) in [
+        ("table", "let a = []; for i in 0..200000 { a.push(i * 1.0) }\ntable_from(#{x: a}).write(\"big.csv\");\n"),
+        ("sink", &SCRIPT
+            .replace("let whole = reduce_campaign(read_table(WHOLE).units(units), spec).traverses;\nwhole.write(\"whole.csv\");\n", "")
+            .replace("reduce_campaign(scan, spec).traverses.write(\"scan.csv\");\n", "")
+            .replace("\"scan.parquet\"", "\"traverses.parquet\"")
+            .replace("PARTS", &format!("{:?}", dir.join("r.csv").display().to_string()))),
+    ] {
+        let script = dir.join(format!("{name}.rhai"));
+        std::fs::write(&script, body).expect("script");
+        // 20 blocks of 512 bytes: the earlier files fit, the new results do not.
+        let cmd = format!(
+            "ulimit -f 20; trap '' XFSZ; exec {:?} run {:?} -o {:?}",
+            env!("CARGO_BIN_EXE_stagna"),
+            script.display().to_string(),
+            out.display().to_string()
+        );
+        let o = Command::new("sh").args(["-c", &cmd]).output().expect("sh runs");
+        let stderr = String::from_utf8_lossy(&o.stderr);
+        assert!(!o.status.success(), "{name}: {stderr}");
+        assert!(stderr.contains("is full") && stderr.contains("earlier file stays as it was"), "{name}: {stderr}");
+    }
+    assert_eq!(std::fs::read_to_string(out.join("big.csv")).unwrap_or_default(), "earlier,result\n");
+    assert!(std::fs::read(out.join("traverses.parquet")).unwrap_or_default() == b"earlier parquet");
+    let names: Vec<String> = std::fs::read_dir(&out)
+        .map(|r| r.flatten().map(|e| e.file_name().to_string_lossy().to_string()).collect())
+        .unwrap_or_default();
+    assert!(names.iter().all(|n| !n.contains("stagna-tmp")), "{names:?}");
+}

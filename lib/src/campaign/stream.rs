@@ -351,6 +351,34 @@ pub fn reduce_campaign_scan_to_parquet(
     units: &dyn Fn(&DataFrame) -> std::collections::BTreeMap<String, String>,
 ) -> Result<ScanReduction> {
     use polars_io::parquet::write::{BatchedWriter, KeyValueMetadata, ParquetWriter};
+    /// The file under the Parquet writer, keeping the system's last error: the writer
+    /// reports a failed write as a garbled encoding error.
+    struct Recording {
+        file: std::fs::File,
+        last: std::sync::Arc<std::sync::Mutex<Option<std::io::Error>>>,
+    }
+    impl std::io::Write for Recording {
+        fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+            self.file.write(buf).inspect_err(|e| self.keep(e))
+        }
+        fn flush(&mut self) -> std::io::Result<()> {
+            self.file.flush().inspect_err(|e| self.keep(e))
+        }
+    }
+    impl Recording {
+        fn keep(&self, e: &std::io::Error) {
+            if let Ok(mut g) = self.last.lock() {
+                *g = Some(std::io::Error::new(e.kind(), e.to_string()));
+            }
+        }
+    }
+    let last_io: std::sync::Arc<std::sync::Mutex<Option<std::io::Error>>> = Default::default();
+    let written_error = |e: PolarsError| -> Error {
+        match last_io.lock().ok().and_then(|mut g| g.take()) {
+            Some(io) => crate::io::table::write_failure(path, &io),
+            None => Error::File { path: path.display().to_string(), message: e.to_string() },
+        }
+    };
     let mut failed: Option<Error> = None;
     let mut summary = None;
     let written = crate::io::table::write_atomically(path, |f| {
@@ -358,7 +386,7 @@ pub fn reduce_campaign_scan_to_parquet(
         // and renames it when this returns Ok.
         let handle = f.try_clone()?;
         let mut handle = Some(handle);
-        let mut writer: Option<BatchedWriter<std::fs::File>> = None;
+        let mut writer: Option<BatchedWriter<Recording>> = None;
         let mut sink = |df: DataFrame| -> Result<()> {
             let w = match &mut writer {
                 Some(w) => w,
@@ -372,14 +400,14 @@ pub fn reduce_campaign_scan_to_parquet(
                         context: "campaign scan",
                         message: "the output file was already taken".into(),
                     })?;
-                    let w = ParquetWriter::new(file)
+                    let w = ParquetWriter::new(Recording { file, last: last_io.clone() })
                         .with_key_value_metadata(meta)
                         .batched(&df.schema().clone())
                         .map_err(table_err)?;
                     writer.insert(w)
                 }
             };
-            w.write_batch(&df).map_err(|e| Error::File { path: path.display().to_string(), message: e.to_string() })
+            w.write_batch(&df).map_err(written_error)
         };
         match reduce_campaign_scan_each(scan, spec, opts, &mut sink) {
             Ok(s) => summary = Some(s),
@@ -389,7 +417,10 @@ pub fn reduce_campaign_scan_to_parquet(
             }
         }
         match writer {
-            Some(w) => w.finish().map(|_| ()).map_err(|e| std::io::Error::other(e.to_string())),
+            Some(w) => w.finish().map(|_| ()).map_err(|e| {
+                failed = Some(written_error(e));
+                std::io::Error::other("the write failed")
+            }),
             None => {
                 failed = Some(Error::Inconsistent {
                     context: "campaign scan",

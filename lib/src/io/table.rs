@@ -331,9 +331,26 @@ pub fn write_atomically(path: &Path, write: impl FnOnce(&mut File) -> std::io::R
         Ok(()) => Ok(()),
         Err(e) => {
             let _ = std::fs::remove_file(&tmp);
-            Err(file_err(path, format!("cannot write: {e}")))
+            Err(write_failure(path, &e))
         }
     }
+}
+
+/// The error of a failed write to `path`, saying so when the disk (or a size limit) is full.
+pub fn write_failure(path: &Path, e: &std::io::Error) -> Error {
+    // Writers that go through polars report the system's error as text.
+    let text = e.to_string();
+    let full = matches!(
+        e.kind(),
+        std::io::ErrorKind::StorageFull | std::io::ErrorKind::FileTooLarge | std::io::ErrorKind::QuotaExceeded
+    ) || ["(os error 28)", "(os error 27)", "(os error 122)"].iter().any(|c| text.contains(c));
+    let hint = if full {
+        "; the disk (or a size limit on it) is full: free space or write elsewhere. Nothing under this name was \
+         changed (an earlier file stays as it was)"
+    } else {
+        ""
+    };
+    file_err(path, format!("cannot write: {e}{hint}"))
 }
 
 fn io_err(e: PolarsError) -> std::io::Error {
