@@ -24,6 +24,14 @@ fn rows(n: usize) -> Vec<String> {
     out
 }
 
+/// `stagna run SCRIPT -o OUT`.
+fn run(script: &std::path::Path, out: &std::path::Path) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_stagna"))
+        .args(["run", script.to_str().unwrap_or_default(), "-o", out.to_str().unwrap_or_default()])
+        .output()
+        .expect("runs")
+}
+
 const HEADER: &str = "traverse,deflection_mm,fluid_temp_c,diameter_mm,position_mm";
 
 const SCRIPT: &str = r#"
@@ -59,10 +67,7 @@ fn a_folder_scan_reduces_as_the_whole_table() {
         .replace("PARTS", &format!("{:?}", parts.display().to_string()));
     std::fs::write(&script, text).expect("script");
     let out = dir.join("out");
-    let o = Command::new(env!("CARGO_BIN_EXE_stagna"))
-        .args(["run", script.to_str().unwrap_or_default(), "-o", out.to_str().unwrap_or_default()])
-        .output()
-        .expect("runs");
+    let o = run(&script, &out);
     let stdout = String::from_utf8_lossy(&o.stdout);
     assert!(o.status.success(), "{stdout}\n{}", String::from_utf8_lossy(&o.stderr));
     assert!(stdout.contains("files 3 traverses 40 readings 240"), "{stdout}");
@@ -86,10 +91,7 @@ fn a_traverse_met_twice_in_a_scan_is_refused_and_nothing_is_written() {
         .replace("PARTS", &format!("{:?}", dir.join("r.csv").display().to_string()));
     std::fs::write(&script, text).expect("script");
     let out = dir.join("out");
-    let o = Command::new(env!("CARGO_BIN_EXE_stagna"))
-        .args(["run", script.to_str().unwrap_or_default(), "-o", out.to_str().unwrap_or_default()])
-        .output()
-        .expect("runs");
+    let o = run(&script, &out);
     let stderr = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success());
     assert!(

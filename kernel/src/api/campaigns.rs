@@ -429,17 +429,19 @@ fn reductions(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("campaign.failures -> array", "Traverses that could not be reduced: maps #{traverse, message}.")
             .example("// see reduce_campaign\nprint(\"see reduce_campaign\");")
             .source("common practice, no source"),
-        |c: &mut Campaign| {
-            c.res
-                .failures
-                .iter()
-                .map(|f| {
-                    let mut m = Map::new();
-                    m.insert("traverse".into(), Dynamic::from(f.traverse.clone()));
-                    m.insert("message".into(), Dynamic::from(f.message.clone()));
-                    Dynamic::from(m)
-                })
-                .collect::<Array>()
-        },
+        |c: &mut Campaign| failures_array(&c.res.failures),
     );
+}
+
+/// Traverses that failed, as script maps `#{traverse, message}`.
+pub(super) fn failures_array(failures: &[stagna::campaign::TraverseFailure]) -> Array {
+    failures
+        .iter()
+        .map(|f| {
+            let mut m = Map::new();
+            m.insert("traverse".into(), Dynamic::from(f.traverse.clone()));
+            m.insert("message".into(), Dynamic::from(f.message.clone()));
+            Dynamic::from(m)
+        })
+        .collect()
 }

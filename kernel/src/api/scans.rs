@@ -9,7 +9,7 @@ use rhai::{Array, Dynamic, Map, NativeCallContext};
 use stagna::campaign::stream::{ScanOptions, reduce_campaign_scan, reduce_campaign_scan_to_parquet};
 use stagna::io::scan::TableScan;
 
-use super::campaigns::{Campaign, campaign_spec};
+use super::campaigns::{Campaign, campaign_spec, failures_array};
 use super::tables::{Tbl, in_path, numeric_column, out_path, with_result_units};
 use super::*;
 use crate::catalog::Doc;
@@ -164,17 +164,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             m.insert("traverses".into(), Dynamic::from(r.traverses as i64));
             m.insert("readings".into(), Dynamic::from(r.rows as i64));
             m.insert("batches".into(), Dynamic::from(r.batches as i64));
-            let failures: Array = r
-                .failures
-                .iter()
-                .map(|f| {
-                    let mut fm = Map::new();
-                    fm.insert("traverse".into(), Dynamic::from(f.traverse.clone()));
-                    fm.insert("message".into(), Dynamic::from(f.message.clone()));
-                    Dynamic::from(fm)
-                })
-                .collect();
-            m.insert("failures".into(), Dynamic::from(failures));
+            m.insert("failures".into(), Dynamic::from(failures_array(&r.failures)));
             Ok(m)
         },
     );
