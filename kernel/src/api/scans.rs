@@ -10,7 +10,7 @@ use stagna::campaign::stream::{ScanOptions, reduce_campaign_scan, reduce_campaig
 use stagna::io::scan::TableScan;
 
 use super::campaigns::{Campaign, campaign_spec, failures_array};
-use super::tables::{Tbl, in_path, numeric_column, out_path, with_result_units};
+use super::tables::{Tbl, in_path, numeric_column, out_path, warn_unit_change, with_result_units};
 use super::*;
 use crate::catalog::Doc;
 
@@ -38,9 +38,7 @@ impl Scan {
         lib(Unit::parse(u))?;
         let mut out = self.clone();
         if let Some(old) = out.units.insert(c.to_string(), u.to_string()).filter(|o| o != u) {
-            let msg =
-                format!("warning: column '{c}': unit {u} replaces {old} (stored with the file or declared before)");
-            ctx.call_native_fn::<()>("eprint", (rhai::ImmutableString::from(msg),))?;
+            warn_unit_change(ctx, c, &old, u)?;
         }
         Ok(out)
     }

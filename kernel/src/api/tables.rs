@@ -158,7 +158,7 @@ fn with_stored_units(mut df: DataFrame, path: &Path) -> Res<Tbl> {
 
 /// Says on the error stream that a declaration replaced a different unit (one stored
 /// with the file, or declared earlier); the new declaration wins.
-fn warn_unit_change(ctx: &NativeCallContext, column: &str, old: &str, new: &str) -> Res<()> {
+pub(super) fn warn_unit_change(ctx: &NativeCallContext, column: &str, old: &str, new: &str) -> Res<()> {
     let msg = format!(
         "warning: column '{column}': unit {} replaces {} (stored with the file or declared before); the new declaration wins",
         pretty_unit(new),

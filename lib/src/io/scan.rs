@@ -425,15 +425,10 @@ impl Iterator for Batches<'_> {
     type Item = Result<(DataFrame, u64)>;
 
     fn next(&mut self) -> Option<Self::Item> {
-        match &self.scan.kind {
-            Kind::Parquet(groups) => {
-                let groups = groups.clone();
-                self.next_parquet(&groups)
-            }
-            Kind::Csv(layout, ends) => {
-                let (layout, ends) = (*layout, ends.clone());
-                self.next_csv(layout, &ends)
-            }
+        let scan = self.scan;
+        match &scan.kind {
+            Kind::Parquet(groups) => self.next_parquet(groups),
+            Kind::Csv(layout, ends) => self.next_csv(*layout, ends),
         }
     }
 }
