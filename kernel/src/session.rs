@@ -1999,6 +1999,41 @@ mod tests {
         );
     }
 
+    /// Local corrections from a script: the turbulence correction of a point is
+    /// 1/√(1 + Tu²) − 1 (derived), the corrected column is the read one times each point's
+    /// factor, and the budget term carries the mean factor into the budget's value.
+    #[test]
+    fn local_corrections_from_a_script() {
+        let mut s = Session::new();
+        let setup = "let t = table_from(#{y: [30.0, 150.0, 450.0, 570.0], v: [9.0, 11.5, 11.5, 9.0], tu: [6.0, 4.0, 4.0, 6.0]}).units(#{y: \"mm\", v: \"m/s\", tu: \"%\"});\n\
+            let c = local_corrections(t[\"y\"], t[\"v\"], round_section(600.mm), #{turbulence: t[\"tu\"]});";
+        eval(&mut s, setup);
+        let v0: f64 = eval(&mut s, "c.velocity.at(0).value_in(\"m/s\")").parse().unwrap_or(f64::NAN);
+        // Printed to 10 significant figures.
+        assert!((v0 - 9.0 / 1.0036f64.sqrt()).abs() < 1e-8, "{v0}");
+        let f: f64 = eval(&mut s, "c.factor").parse().unwrap_or(f64::NAN);
+        let want = (2.0 * 9.0 / 1.0036f64.sqrt() + 2.0 * 11.5 / 1.0016f64.sqrt()) / 41.0;
+        assert!((f - want).abs() < 1e-9, "{f}");
+        // The budget's value is the plain one times the factor.
+        let plain = "traverse_budget([98.Pa, 112.Pa, 118.Pa, 115.Pa], #{coefficient: 1.0, u_coefficient: 0.003, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 600.mm, u_diameter: 0.5.mm";
+        let q0: f64 = eval(&mut s, &format!("{plain}}}).value")).parse().unwrap_or(f64::NAN);
+        let q1: f64 = eval(&mut s, &format!("{plain}, terms: #{{local_corrections: c.budget_term()}}}}).value"))
+            .parse()
+            .unwrap_or(f64::NAN);
+        assert!((q1 / q0 - want).abs() < 1e-8, "{q0} {q1}");
+        let t = eval(&mut s, "c.table()");
+        assert!(t.contains("turbulence_pct") && t.contains("velocity_corrected"), "{t}");
+        // Bad input is named.
+        let e = err(&mut s, "local_corrections(t[\"y\"], t[\"v\"], round_section(600.mm), #{gradient: true})");
+        assert!(e.message.contains("head_diameter"), "{}", e.message);
+        let e = err(&mut s, "local_corrections(t[\"y\"], t[\"v\"], rect_section(600.mm, 400.mm), #{})");
+        assert!(e.message.contains("round conduit"), "{}", e.message);
+        let e = err(&mut s, "local_corrections(t[\"y\"], t[\"v\"], round_section(600.mm), #{turbulence: 6.0})");
+        assert!(e.message.contains("turbulence intensity"), "{}", e.message);
+        let e = err(&mut s, "local_corrections(t[\"y\"], t[\"v\"], round_section(600.mm), #{wall: true})");
+        assert!(e.message.contains("wall_proximity"), "{}", e.message);
+    }
+
     /// Annulus points: r₁ = √(150² + (1/8)(400² − 150²)) = 199.2 mm on an 800/300 mm annulus
     /// (hand-worked from the equal-area rule).
     #[test]

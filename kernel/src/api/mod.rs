@@ -21,6 +21,7 @@ mod args;
 pub mod campaigns;
 pub mod charts;
 pub mod columns;
+pub mod corrections;
 pub mod expressions;
 pub mod flows;
 pub mod fluids;
@@ -422,6 +423,7 @@ pub fn register_all(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     sections::register(r, prefs);
     profiles::register(r, prefs);
     flows::register(r, prefs);
+    corrections::register(r, prefs);
     layouts::register(r, prefs);
     steps::register(r, prefs);
     tables::register(r, prefs);

@@ -111,7 +111,7 @@ fn budgets(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     let tb_prefs = prefs.clone();
     r.func(
         "traverse_budget",
-        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter for a round section, or width, u_width, height, u_height for a rectangle (its own area W·H, each side an input; sources.diameter names their source); u_rel_dp (relative standard uncertainty of each Δp, a fraction, default 0.005) and u_dp (absolute standard uncertainty of each Δp, default 0.5 Pa), combined in quadrature; transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and u_rel_dp and u_dp count only when given). The earlier dp_rel and dp_abs still work, with a deprecation warning; sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (the layout/integration term: \"equal-area\", \"log-linear\", \"log-chebyshev\"); terms (method terms: by default only the layout term, which is derived; a map sets, adds or removes terms: name: () removes, name: u_rel or #{u_rel, distribution: \"normal\"|\"rectangular\"|\"triangular\", source} sets; known names layout, positioning, unsteadiness, turbulence, alignment, any other name adds a term; typical_method_terms() gives typical unsourced magnitudes to opt into); coverage (0.95); output (\"flow\" or \"velocity\"). dp may also be the table of sample_stats: each point's mean Δp then carries its Type A u from the samples, combined with u_rel_dp and u_dp (which default to 0 there), with Welch–Satterthwaite degrees of freedom.")
+        &Doc::new("traverse_budget(dp, options) -> Budget", "GUM uncertainty budget of a traverse's volume flow Q = k D² · C √(2/ρ) · mean √Δp × method terms, from the point Δp values and the standard uncertainties of the shared inputs. Options: coefficient, u_coefficient; density, u_density; diameter, u_diameter for a round section, or width, u_width, height, u_height for a rectangle (its own area W·H, each side an input; sources.diameter names their source); u_rel_dp (relative standard uncertainty of each Δp, a fraction, default 0.005) and u_dp (absolute standard uncertainty of each Δp, default 0.5 Pa), combined in quadrature; transducer (a calibrated Transducer: each Δp's u comes from its calibration, √(s² + u_curve²), and u_rel_dp and u_dp count only when given). The earlier dp_rel and dp_abs still work, with a deprecation warning; sources #{coefficient, density, diameter, dp} (where each value and its u come from, printed in the budget's source column); rule (the layout/integration term: \"equal-area\", \"log-linear\", \"log-chebyshev\"); terms (method terms: by default only the layout term, which is derived; a map sets, adds or removes terms: name: () removes, name: u_rel or #{u_rel, distribution: \"normal\"|\"rectangular\"|\"triangular\", source, value} sets (value: a correction factor the model applies, default 1, e.g. local_corrections(...).budget_term()); known names layout, positioning, unsteadiness, turbulence, alignment, any other name adds a term; typical_method_terms() gives typical unsourced magnitudes to opt into); coverage (0.95); output (\"flow\" or \"velocity\"). dp may also be the table of sample_stats: each point's mean Δp then carries its Type A u from the samples, combined with u_rel_dp and u_dp (which default to 0 there), with Welch–Satterthwaite degrees of freedom.")
             .param("dp", "pressure column or array of pressures, one per point (all > 0)")
             .example("let dps = [98.Pa, 112.Pa, 118.Pa, 115.Pa, 101.Pa, 95.Pa];\nlet b = traverse_budget(dps, #{coefficient: 0.998, u_coefficient: 0.0025, density: 1.19.kg_m3, u_density: 0.0018.kg_m3, diameter: 600.mm, u_diameter: 0.9.mm, u_rel_dp: 0.005, u_dp: 0.4.Pa});\nprint(b);")
             .source("JCGM 100:2008 (GUM) §5, §G; method terms as documented in the library (ISO 3966 §10 and common practice)"),
@@ -749,7 +749,7 @@ pub fn method_terms(spec: Option<&Dynamic>, rule: stagna::LayoutRule, what: &str
             let t: Map = v.try_cast().ok_or_else(|| {
                 rt(format!("{what}: terms.{key} must be (), a number (relative standard uncertainty) or #{{u_rel, distribution, source}}"))
             })?;
-            check_keys(&t, &["u_rel", "distribution", "source"], &format!("{what} terms.{key}"))?;
+            check_keys(&t, &["u_rel", "distribution", "source", "value"], &format!("{what} terms.{key}"))?;
             let u = number(
                 field(&t, "u_rel").ok_or_else(|| {
                     rt(format!("{what}: terms.{key} needs u_rel (relative standard uncertainty, a fraction)"))
@@ -761,7 +761,11 @@ pub fn method_terms(spec: Option<&Dynamic>, rule: stagna::LayoutRule, what: &str
                 Some(d) => lib(TermDistribution::parse(&text(d, "distribution")?))?,
                 None => TermDistribution::Normal,
             };
-            lib(MethodTerm::new(&name, u, &source))?.with_distribution(dist)
+            let term = lib(MethodTerm::new(&name, u, &source))?.with_distribution(dist);
+            match field(&t, "value") {
+                Some(x) => lib(term.with_value(number(x, &format!("terms.{key}.value"))?))?,
+                None => term,
+            }
         };
         terms.push(term);
     }

@@ -60,7 +60,10 @@ impl TermDistribution {
 pub struct MethodTerm {
     /// Name of the budget line.
     pub name: String,
-    /// Relative standard uncertainty (e.g. 0.005 for 0.5 %).
+    /// The factor's value: 1 for a term that only carries uncertainty, another value for a
+    /// correction applied in the model (e.g. 0.9968 for ISO 3966 local corrections).
+    pub value: f64,
+    /// Relative standard uncertainty (e.g. 0.005 for 0.5 %), relative to `value`.
     pub relative_u: f64,
     /// Where the value comes from.
     pub source: String,
@@ -72,7 +75,20 @@ impl MethodTerm {
     /// A term of your own (normal).
     pub fn new(name: &str, relative_u: f64, source: &str) -> Result<Self> {
         crate::error::within("method term", "relative standard uncertainty", relative_u, "", 0.0, 0.5)?;
-        Ok(Self { name: name.into(), relative_u, source: source.into(), distribution: TermDistribution::Normal })
+        Ok(Self {
+            name: name.into(),
+            value: 1.0,
+            relative_u,
+            source: source.into(),
+            distribution: TermDistribution::Normal,
+        })
+    }
+
+    /// The same term as a correction: a factor `value` (0.5 … 2) applied in the model, its
+    /// relative standard uncertainty unchanged.
+    pub fn with_value(mut self, value: f64) -> Result<Self> {
+        self.value = crate::error::within("method term", "value (a factor)", value, "", 0.5, 2.0)?;
+        Ok(self)
     }
 
     /// The same term with another distribution (same standard uncertainty).
@@ -81,13 +97,13 @@ impl MethodTerm {
         self
     }
 
-    /// The input this term becomes: a factor of 1 with `relative_u`, of its distribution.
+    /// The input this term becomes: a factor of `value` with `relative_u`, of its distribution.
     pub fn input(&self) -> Result<Input> {
-        let u = self.relative_u;
+        let (x, u) = (self.value, self.relative_u * self.value);
         let i = match self.distribution {
-            TermDistribution::Normal => Input::normal(&self.name, "1", 1.0, u)?,
-            TermDistribution::Rectangular => Input::rectangular(&self.name, "1", 1.0, u * 3f64.sqrt())?,
-            TermDistribution::Triangular => Input::triangular(&self.name, "1", 1.0, u * 6f64.sqrt())?,
+            TermDistribution::Normal => Input::normal(&self.name, "1", x, u)?,
+            TermDistribution::Rectangular => Input::rectangular(&self.name, "1", x, u * 3f64.sqrt())?,
+            TermDistribution::Triangular => Input::triangular(&self.name, "1", x, u * 6f64.sqrt())?,
         };
         Ok(i.with_source(&self.source))
     }
@@ -99,6 +115,7 @@ impl MethodTerm {
         let u = if rule == crate::section::layout::LayoutRule::EqualArea { 0.005 } else { 0.002 };
         MethodTerm {
             name: format!("layout/integration ({rule})"),
+            value: 1.0,
             relative_u: u,
             source: "bias of the layout's arithmetic mean on power-law profiles, n = 6 to 10 (derived: computed in the library's integration tests)".into(),
             distribution: TermDistribution::Normal,
@@ -119,6 +136,7 @@ impl MethodTerm {
         let cp = "common practice, no source (typical magnitude)";
         let t = |name: &str, u: f64| MethodTerm {
             name: name.into(),
+            value: 1.0,
             relative_u: u,
             source: cp.into(),
             distribution: TermDistribution::Normal,

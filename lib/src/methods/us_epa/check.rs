@@ -14,6 +14,8 @@ pub enum Citation {
     Verified,
     /// Recalled, not yet read in the published text for this release.
     FromMemory,
+    /// Follows from geometry or physics by derivation, not from a method's text.
+    Derived,
 }
 
 /// One acceptance check with its number.
@@ -54,6 +56,7 @@ impl MethodCheck {
         match self.citation {
             Citation::Verified => self.source.to_string(),
             Citation::FromMemory => format!("{} (from memory, unverified)", self.source),
+            Citation::Derived => format!("{} (derived)", self.source),
         }
     }
 }
