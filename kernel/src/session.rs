@@ -1999,6 +1999,30 @@ mod tests {
         );
     }
 
+    /// The point of mean velocity's budget terms replace the layout term: the budget of its
+    /// readings carries the profile-model spread (derived in the library, checked there
+    /// against the log law's defect form) and the positioning term when u_position is given.
+    #[test]
+    fn mean_point_budget_terms_replace_the_layout_term() {
+        let mut s = Session::new();
+        eval(
+            &mut s,
+            "let w = water().state(350.kPa, 11.degC); let mp = mean_point([1.52.m_s, 1.49.m_s], w, round_section(400.mm), #{});",
+        );
+        let b = eval(
+            &mut s,
+            "traverse_budget([1150.Pa, 1105.Pa], #{coefficient: 1.0, u_coefficient: 0.004, density: w.density, u_density: 0.2.kg_m3, diameter: 400.mm, u_diameter: 0.5.mm, terms: mp.budget_terms(#{u_position: 2.mm})})",
+        );
+        assert!(
+            b.contains("profile model") && b.contains("probe positioning") && !b.contains("layout/integration"),
+            "{b}"
+        );
+        assert!(b.contains("(derived)"), "{b}");
+        let t = eval(&mut s, "mp.budget_terms(#{})");
+        assert!(t.contains("profile_model") && !t.contains("positioning"), "{t}");
+        assert!(err(&mut s, "mp.budget_terms(#{u_position: 2.0})").message.contains("u_position"));
+    }
+
     /// Local corrections from a script: the turbulence correction of a point is
     /// 1/√(1 + Tu²) − 1 (derived), the corrected column is the read one times each point's
     /// factor, and the budget term carries the mean factor into the budget's value.

@@ -303,6 +303,8 @@ pub struct MeanPointResult {
     pub asymmetry_pct: Option<f64>,
     /// Remarks (asymmetry, straight lengths, the wall's regime).
     pub warnings: Vec<Warning>,
+    /// The conduit's relative roughness ε/D (for the profile laws at this Reynolds number).
+    pub rel_roughness: f64,
 }
 
 /// Asymmetry of two symmetric readings above which the result is flagged, %
@@ -360,7 +362,76 @@ pub fn single_point_at_mean(
         from_wall: crate::Length::m(y_over_r * radius),
         asymmetry_pct,
         warnings,
+        rel_roughness: conduit.relative_roughness(),
     })
+}
+
+/// The method terms of a result at the point of mean velocity, for a traverse budget of its
+/// one or two readings (in place of a traverse's layout term), all derived from the profile
+/// laws at the result's Reynolds number:
+/// - **profile model**: the probe sits where the chosen law's local velocity equals its mean;
+///   the other laws (power law with n = 1/√f and from Nikuradse's table, log law with
+///   κ = 0.41 and 0.40) put the mean elsewhere. The largest |u(y)/U − 1| among them at that
+///   distance is the half-width of a rectangular term;
+/// - **positioning**: a standard uncertainty `u_position` (m) of the distance from the wall
+///   moves the reading by (d ln u/dy)·u_position of the chosen law (a normal term), when
+///   `u_position` is given.
+///
+/// ISO 7145's own uncertainty clause could not be read here; these terms stand on the
+/// profile laws, and what the clause adds is the caller's to add.
+pub fn mean_point_terms(
+    r: &MeanPointResult,
+    u_position: Option<f64>,
+) -> Result<Vec<crate::uncertainty::flow_models::MethodTerm>> {
+    use crate::uncertainty::flow_models::{MethodTerm, TermDistribution};
+    let y = r.y_over_r;
+    let at = |m: &ProfileModel| m.velocity_ratio(1.0 - y) / m.mean_to_centreline();
+    let mut spread: f64 = 0.0;
+    let mut names = Vec::new();
+    for family in [
+        ProfileFamily::PowerLawFromFriction,
+        ProfileFamily::PowerLawNikuradse,
+        ProfileFamily::LogLaw { kappa: 0.41 },
+        ProfileFamily::LogLaw { kappa: 0.40 },
+    ] {
+        let m = ProfileModel::for_flow(family, r.reynolds, r.rel_roughness)?;
+        let d = at(&m) - 1.0;
+        if d.abs() > spread.abs() {
+            spread = d;
+            names = vec![m.name()];
+        }
+    }
+    let mut terms = vec![
+        MethodTerm::new(
+            "profile model at the point of mean velocity",
+            spread.abs() / 3f64.sqrt(),
+            &format!(
+                "largest |u(y)/U − 1| of the profile laws at y/R = {y:.4}, Re = {:.3e}: {:+.3} % ({}); rectangular (derived)",
+                r.reynolds,
+                100.0 * spread,
+                names.join(", ")
+            ),
+        )?
+        .with_distribution(TermDistribution::Rectangular),
+    ];
+    if let Some(u_y) = u_position {
+        let u_y = crate::error::positive("point of mean velocity", "u_position", u_y, "m")?;
+        let radius = r.from_wall.si() / y;
+        let h = 1e-4;
+        let slope =
+            (r.model.velocity_ratio(1.0 - (y + h)).ln() - r.model.velocity_ratio(1.0 - (y - h)).ln()) / (2.0 * h);
+        let rel = slope.abs() * u_y / radius;
+        terms.push(MethodTerm::new(
+            "probe positioning",
+            rel,
+            &format!(
+                "u(y) = {:.2} mm through d ln u/dy of the {} at y/R = {y:.4} (derived)",
+                u_y * 1000.0,
+                r.model.name()
+            ),
+        )?);
+    }
+    Ok(terms)
 }
 
 #[cfg(test)]
@@ -384,6 +455,37 @@ mod tests {
             let m = ProfileModel::power_law(n).unwrap();
             assert!((m.mean_to_centreline() - r).abs() < 5e-5, "{n}");
         }
+    }
+
+    /// At y/R = 0.2423 (power law, n = 7) the log law (κ = 0.41) gives
+    /// u/U − 1 = (1/κ)(ln(y/R) + 3/2)·√(f/8) (its defect form, derived; check-values.md §6);
+    /// the profile-model term takes the largest such spread, and positioning follows
+    /// d ln u/dy = 1/(n·y) for the power law.
+    #[test]
+    fn mean_point_terms_from_the_profile_laws() {
+        let water = crate::fluids::fluid::Fluid::Water(crate::fluids::water::Water::default())
+            .state(Pressure::pa(300_000.0), Temperature::celsius(15.0))
+            .unwrap();
+        let pipe = Conduit::circular(Length::mm(400.0)).unwrap();
+        let r =
+            single_point_at_mean(&[Velocity::m_s(1.5)], &water, &pipe, ProfileFamily::PowerLawFromFriction, None, 3.0)
+                .unwrap();
+        let y = r.y_over_r;
+        let f = friction_factor(r.reynolds, 0.0, FrictionModel::Colebrook).unwrap().f;
+        let log41 = (y.ln() + 1.5) / 0.41 * (f / 8.0).sqrt();
+        let log40 = (y.ln() + 1.5) / 0.40 * (f / 8.0).sqrt();
+        let terms = mean_point_terms(&r, Some(0.002)).unwrap();
+        let want = log41.abs().max(log40.abs());
+        // The Nikuradse power law is close to the chosen one, so a log law is the widest.
+        assert!(
+            (terms[0].relative_u * 3f64.sqrt() - want).abs() < 1e-9,
+            "{} vs {want}",
+            terms[0].relative_u * 3f64.sqrt()
+        );
+        assert!(terms[0].source.contains("log law"), "{}", terms[0].source);
+        let ProfileModel::PowerLaw { n } = r.model else { panic!("power law expected") };
+        let rel = 0.002 / (n * r.from_wall.si());
+        assert!((terms[1].relative_u - rel).abs() < 1e-7 * rel.max(1.0), "{} vs {rel}", terms[1].relative_u);
     }
 
     // check-values.md §6: point of mean velocity y/R = 0.2453 / 0.2423 / 0.2400 / 0.2367 for
