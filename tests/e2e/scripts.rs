@@ -337,6 +337,24 @@ fn logged_traverse_builds_its_budget_from_the_samples() {
     }
     assert!(out.contains("ISO 3966 (conditions of use: size of the probe head) (from memory, unverified)"), "{out}");
     assert!(out.lines().any(|l| l.starts_with("local corrections ") && l.contains("0.99")), "{out}");
+    // The budget by stage: the corrections' own line, and the stages' shares add to 100 %.
+    let shares: f64 = [
+        "local velocity: probe, Δp, fluid",
+        "local corrections and flow conditions",
+        "probe position",
+        "integration over the section",
+        "section area",
+    ]
+    .iter()
+    .map(|stage| {
+        let l = out
+            .lines()
+            .find(|l| l.starts_with(&format!("{stage}  ")))
+            .unwrap_or_else(|| panic!("no stage {stage}: {out}"));
+        l.split_whitespace().last().and_then(|w| w.parse::<f64>().ok()).unwrap_or(f64::NAN)
+    })
+    .sum();
+    assert!((shares - 100.0).abs() < 0.05, "{shares}");
     // Q = v̄·πD²/4 for D = 300 mm, in m³/h.
     let q = number_after(&out, "volume flow");
     assert!((q - v * std::f64::consts::PI * 0.0225 * 3600.0).abs() < 0.5, "{q} vs {v}");

@@ -459,6 +459,33 @@ fn budget_members(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     );
     r.method(
         "Budget",
+        "by_stage",
+        &Doc::new("budget.by_stage() -> Table", "The budget summed by the stages of the velocity-area method, in its order: local velocity (probe coefficient, Δp, fluid), local corrections and flow conditions, probe position, integration over the section (layout or profile model), section area, and other (a script's own inputs). Columns: stage, inputs, u (root sum of squares of the stage's c·u, in the output's unit), u_rel_pct and share_pct of the combined variance. The stages' order is the one in which a velocity-area method accounts for its errors; ISO 3966's error clause's own headings were not read here.")
+            .example("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm, terms: #{positioning: 0.002}});\ndisplay(b.by_stage());")
+            .source("JCGM 100:2008 §5.1.2 (uncorrelated contributions add in quadrature); the stages of the velocity-area method (ISO 3966 treats local velocity, corrections and integration in turn: clause titles read, error clause not re-read)"),
+        |b: &mut Budget| -> Res<Tbl> {
+            use polars::prelude::{DataFrame, NamedFrom, Series};
+            let parts = stagna::uncertainty::flow_models::by_stage(&b.g);
+            let y = b.g.value.abs();
+            let df = DataFrame::new_infer_height(vec![
+                Series::new("stage".into(), parts.iter().map(|p| p.stage.to_string()).collect::<Vec<_>>()).into(),
+                Series::new("inputs".into(), parts.iter().map(|p| p.inputs as i64).collect::<Vec<_>>()).into(),
+                Series::new("u".into(), parts.iter().map(|p| p.u).collect::<Vec<_>>()).into(),
+                Series::new("u_rel_pct".into(), parts.iter().map(|p| 100.0 * p.u / y).collect::<Vec<_>>()).into(),
+                Series::new("share_pct".into(), parts.iter().map(|p| 100.0 * p.share).collect::<Vec<_>>()).into(),
+            ])
+            .map_err(|e| rt(e.to_string()))?;
+            let mut t = Tbl::new(df);
+            if !b.unit.is_empty() {
+                t.units.insert("u".into(), b.unit.clone());
+            }
+            t.units.insert("u_rel_pct".into(), "%".into());
+            t.units.insert("share_pct".into(), "%".into());
+            Ok(t)
+        },
+    );
+    r.method(
+        "Budget",
         "chart",
         &Doc::new("budget.chart() -> Plot", "Each input's share of the combined variance as bars.")
             .example("let b = traverse_budget([100.Pa, 110.Pa, 105.Pa, 98.Pa], #{coefficient: 1.0, u_coefficient: 0.005, density: 1.2.kg_m3, u_density: 0.002.kg_m3, diameter: 500.mm, u_diameter: 1.mm});\nprint(b.chart());")

@@ -366,11 +366,119 @@ impl TraverseUncertainty {
     }
 }
 
+/// The stage of the velocity-area method a traverse budget's input belongs to: the local
+/// velocity (probe coefficient, Δp, fluid density), the local corrections and flow
+/// conditions, the probe's position, the integration over the section (layout, profile
+/// model) and the section's area. This is the order in which a velocity-area method accounts
+/// for its errors (ISO 3966 treats local velocity, corrections and integration in turn; its
+/// error clause's own headings were not read here). Inputs of a script's own model or terms
+/// of another name are "other".
+pub fn traverse_stage(input: &str) -> &'static str {
+    let n = input.to_lowercase();
+    let has = |k: &[&str]| k.iter().any(|k| n.contains(k));
+    if has(&["probe coefficient", "Δp point", "δp point", "density"]) {
+        "local velocity: probe, Δp, fluid"
+    } else if has(&["local correction", "turbulence", "unsteadiness", "alignment", "blockage", "wall proximity"]) {
+        "local corrections and flow conditions"
+    } else if has(&["positioning"]) {
+        "probe position"
+    } else if has(&["layout", "profile model", "integration"]) {
+        "integration over the section"
+    } else if has(&["diameter", "width", "height", "area"]) {
+        "section area"
+    } else {
+        "other"
+    }
+}
+
+/// One stage's part of a budget: its inputs' number, the root sum of squares of their
+/// contributions c·u (the inputs of a traverse model are uncorrelated) and its share of u_c².
+#[derive(Debug, Clone, PartialEq)]
+pub struct StagePart {
+    /// Stage name (see [`traverse_stage`]).
+    pub stage: &'static str,
+    /// Number of inputs.
+    pub inputs: usize,
+    /// √Σ(c·u)², in the output's unit.
+    pub u: f64,
+    /// Σ share of the combined variance.
+    pub share: f64,
+}
+
+/// A budget's lines summed by stage, in the method's order.
+pub fn by_stage(g: &GumResult) -> Vec<StagePart> {
+    const ORDER: [&str; 6] = [
+        "local velocity: probe, Δp, fluid",
+        "local corrections and flow conditions",
+        "probe position",
+        "integration over the section",
+        "section area",
+        "other",
+    ];
+    ORDER
+        .iter()
+        .filter_map(|stage| {
+            let lines: Vec<_> = g.budget.iter().filter(|l| traverse_stage(&l.name) == *stage).collect();
+            (!lines.is_empty()).then(|| StagePart {
+                stage,
+                inputs: lines.len(),
+                u: lines.iter().map(|l| l.contribution * l.contribution).sum::<f64>().sqrt(),
+                share: lines.iter().map(|l| l.share).sum(),
+            })
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use crate::uncertainty::monte_carlo::{McOptions, monte_carlo, validate};
     use crate::uncertainty::sensitivities;
+
+    /// The stages of a traverse budget add up to it: their variances sum to u_c² (the
+    /// traverse model's inputs are uncorrelated; JCGM 100 §5.1.2).
+    #[test]
+    fn stages_add_up_to_the_budget() {
+        let dps = dp_inputs(&[100.0, 110.0, 105.0], 0.005, 0.5).unwrap();
+        let mut terms = MethodTerm::defaults(crate::section::layout::LayoutRule::EqualArea);
+        terms.push(MethodTerm::new("probe positioning", 0.002, "test").unwrap());
+        terms.push(MethodTerm::new("local corrections", 0.001, "test").unwrap().with_value(0.995).unwrap());
+        let t = TraverseUncertainty::new(
+            Input::normal("probe coefficient C", "1", 1.0, 0.004).unwrap(),
+            Input::normal("density ρ", "kg/m³", 1.2, 0.002).unwrap(),
+            Input::normal("diameter D", "m", 0.6, 0.001).unwrap(),
+            &terms,
+            dps,
+        )
+        .unwrap();
+        let g = t.gum(0.95).unwrap();
+        let parts = by_stage(&g);
+        let names: Vec<&str> = parts.iter().map(|p| p.stage).collect();
+        assert_eq!(
+            names,
+            [
+                "local velocity: probe, Δp, fluid",
+                "local corrections and flow conditions",
+                "probe position",
+                "integration over the section",
+                "section area"
+            ]
+        );
+        assert_eq!(parts[0].inputs, 5);
+        let var: f64 = parts.iter().map(|p| p.u * p.u).sum();
+        assert!((var.sqrt() - g.u).abs() < 1e-12 * g.u.max(1.0), "{} vs {}", var.sqrt(), g.u);
+        assert!((parts.iter().map(|p| p.share).sum::<f64>() - 1.0).abs() < 1e-12);
+        // The correction factor is in the value: 0.995 × the uncorrected flow.
+        let plain = TraverseUncertainty::new(
+            Input::normal("probe coefficient C", "1", 1.0, 0.004).unwrap(),
+            Input::normal("density ρ", "kg/m³", 1.2, 0.002).unwrap(),
+            Input::normal("diameter D", "m", 0.6, 0.001).unwrap(),
+            &[],
+            dp_inputs(&[100.0, 110.0, 105.0], 0.005, 0.5).unwrap(),
+        )
+        .unwrap();
+        assert!((g.value / plain.gum(0.95).unwrap().value - 0.995).abs() < 1e-12);
+    }
 
     /// A rectangle's own sides: Q = W·H·C·√(2/ρ)·mean √Δp, so u_rel(Q)² carries
     /// u_rel(W)² + u_rel(H)² (JCGM 100 §5.1.6 for a product), not twice an equivalent size's.
