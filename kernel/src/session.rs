@@ -2068,6 +2068,17 @@ mod tests {
             .unwrap_or(f64::NAN);
         assert!((r1 - (150.0f64.powi(2) + (400.0f64.powi(2) - 150.0f64.powi(2)) / 8.0).sqrt()).abs() < 1e-6, "{r1}");
         assert!(err(&mut s, "annulus_points(300.mm, 400.mm, 4)").message.contains("less than the outer"));
+        // Three points per radius: below ISO 5802's four (a warning, the layout still given).
+        let warned = std::sync::Arc::new(std::sync::Mutex::new(Vec::<String>::new()));
+        let w = warned.clone();
+        s.set_events(move |e| {
+            if let Event::Stderr(t) = e {
+                w.lock().unwrap().push(t);
+            }
+        });
+        eval(&mut s, "annulus_points(800.mm, 300.mm, 3)");
+        let got = warned.lock().unwrap().join("\n");
+        assert!(got.contains("ISO 5802:2001 asks for at least 4") && got.contains("6 radii"), "{got}");
     }
 
     /// Every formula the library writes into worked steps reads as MathML: no step falls

@@ -17,7 +17,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.group("Traverse layouts");
     layouts(r, prefs);
     points_table(r);
-    annulus(r);
+    annulus(r, prefs);
 }
 
 /// Layouts of round and rectangular sections and what they give.
@@ -113,13 +113,17 @@ fn layouts(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
 }
 
 /// Equal-area points in an annulus.
-fn annulus(r: &mut Registrar<'_>) {
+fn annulus(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
+    let p = prefs.clone();
     r.func(
         "annulus_points",
-        &Doc::new("annulus_points(outer_diameter, inner_diameter, points) -> Table", "Equal-area measuring points on one radius of an annulus (between a casing and a hub, e.g. upstream of an axial fan): the annulus split into `points` rings of equal area, each point on the radius that halves its ring, r_k = √(r_i² + (2k − 1)/(2n)(r_o² − r_i²)). Columns: point (from the hub out), radius_mm, from_outer_wall_mm, from_inner_wall_mm. Derived; a full circle (inner 0) gives the usual equal-area rule.")
+        &Doc::new("annulus_points(outer_diameter, inner_diameter, points) -> Table", "Equal-area measuring points on one radius of an annulus (between a casing and a hub, e.g. upstream of an axial fan): the annulus split into `points` rings of equal area, each point on the radius that halves its ring, r_k = √(r_i² + (2k − 1)/(2n)(r_o² − r_i²)). Columns: point (from the hub out), radius_mm, from_outer_wall_mm, from_inner_wall_mm. Derived; a full circle (inner 0) gives the usual equal-area rule. Fewer than 4 points per radius draws a warning: ISO 5802 asks for at least 4 points on each of at least 6 radii in an annulus upstream of an axial fan (its own positions are log-linear; those were not read here, so this layout is the equal-area one).")
             .example("print(annulus_points(800.mm, 300.mm, 4));")
-            .source("the equal-area rule with the hub's area taken away (derived); ISO 5802 gives annulus layouts of its own (not re-read here)"),
-        |outer: Dynamic, inner: Dynamic, n: i64| -> Res<Tbl> {
+            .source("the equal-area rule with the hub's area taken away (derived); ISO 5802:2001 for the minimum of 4 points on each of 6 radii (read); its annulus positions not re-read"),
+        move |outer: Dynamic, inner: Dynamic, n: i64| -> Res<Tbl> {
+            if (1..section::layout::ISO5802_ANNULUS_MIN_POINTS as i64).contains(&n) {
+                warn_once(&p, &format!("annulus_points: {n} points per radius; ISO 5802:2001 asks for at least {} on each of at least {} radii in an annulus upstream of an axial fan", section::layout::ISO5802_ANNULUS_MIN_POINTS, section::layout::ISO5802_ANNULUS_MIN_RADII));
+            }
             let ro = si_of(&outer, units::dimension::Dimension::LENGTH, "outer diameter")?;
             let ri = si_of(&inner, units::dimension::Dimension::LENGTH, "inner diameter")?;
             let radii = lib(section::layout::annulus_equal_area_radii(Length::m(ro), Length::m(ri), n.max(0) as usize))?;

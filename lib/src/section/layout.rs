@@ -153,6 +153,12 @@ pub struct TraverseLayout {
     pub warnings: Vec<Warning>,
 }
 
+/// Fewest points per radius ISO 5802:2001 asks for in an annular section upstream of an
+/// axial fan (read; check-values.md §5.2).
+pub const ISO5802_ANNULUS_MIN_POINTS: usize = 4;
+/// Fewest radii ISO 5802:2001 asks for in that annulus (read; check-values.md §5.2).
+pub const ISO5802_ANNULUS_MIN_RADII: usize = 6;
+
 /// Equal-area measuring radii in an annulus (for example upstream of an axial fan, between
 /// its casing and hub): n rings of equal area between the inner radius r_i and the outer
 /// r_o, each point on the radius that halves its ring's area,
