@@ -5,7 +5,7 @@ use std::collections::BTreeMap;
 
 use polars::prelude::{DataFrame, NamedFrom, Series};
 use rhai::Map;
-use stagna::campaign::samples::{SampleOptions, all_block_stats, assign_windows, blocks_by_point};
+use stagna::campaign::samples::{SampleOptions, all_block_stats, assign_windows, blocks_by_point, blocks_of};
 use stagna::units::dimension::Dimension as D;
 
 use super::tables::Tbl;
@@ -46,7 +46,9 @@ fn sample_stats(p: &SharedPrefs, t: &Tbl, o: &Map) -> Res<Tbl> {
             "sample_stats: '{dp_name}' must be a pressure column; give it its unit, e.g. samples.unit(\"{dp_name}\", \"Pa\")"
         )));
     }
-    let mut dp_si: Vec<f64> = dp.si.to_vec();
+    // The columns were converted for this call: take their values without a copy.
+    let take = |c: Col| std::sync::Arc::try_unwrap(c.si).unwrap_or_else(|a| a.to_vec());
+    let mut dp_si: Vec<f64> = take(dp);
     if let Some(tr) = field(o, "transducer") {
         let tr: stagna::instruments::transducer::Transducer = tr
             .clone()
@@ -62,8 +64,8 @@ fn sample_stats(p: &SharedPrefs, t: &Tbl, o: &Map) -> Res<Tbl> {
         Some(d) if d.is_float() || d.is_int() => number(d, "settle")?,
         Some(d) => si_of(d, D::TIME, "settle")?,
     };
-    let time_si: Vec<f64> = time.si.to_vec();
-    let (ids, time_si, dp_si) = match (field(o, "windows"), field(o, "point")) {
+    let time_si: Vec<f64> = take(time);
+    let (blocks, time_si, dp_si) = match (field(o, "windows"), field(o, "point")) {
         (Some(_), Some(_)) => {
             return Err(rt("sample_stats: give either point (a column) or windows (a table), not both"));
         }
@@ -86,17 +88,17 @@ fn sample_stats(p: &SharedPrefs, t: &Tbl, o: &Map) -> Res<Tbl> {
             let ids = rows.iter().map(|&i| windows[which[i].unwrap_or(0)].0.clone()).collect::<Vec<_>>();
             let ts = rows.iter().map(|&i| time_si[i]).collect::<Vec<_>>();
             let ds = rows.iter().map(|&i| dp_si[i]).collect::<Vec<_>>();
-            (ids, ts, ds)
+            (lib(blocks_by_point(&ids))?, ts, ds)
         }
         (None, point) => {
             let col = match point {
                 Some(d) => text(d, "point")?,
                 None => "point".into(),
             };
-            (lib(stagna::io::table::text_column(&t.df, &col))?, time_si, dp_si)
+            // The ids are read in place: one string per point, not one per sample.
+            (lib(stagna::io::table::with_text_column(&t.df, &col, |ids| blocks_of(ids)))?, time_si, dp_si)
         }
     };
-    let blocks = lib(blocks_by_point(&ids))?;
     let opts = SampleOptions { settle_s: settle, ..Default::default() };
     let stats = lib(all_block_stats(&time_si, &dp_si, &blocks, &opts))?;
     for ((id, _), s) in blocks.iter().zip(&stats) {

@@ -273,9 +273,21 @@ pub fn block_stats(time_s: &[f64], dp_pa: &[f64], opts: &SampleOptions) -> Resul
 /// every sample, in order of first appearance. A point whose rows are not contiguous is an
 /// error (two visits to one point need two ids).
 pub fn blocks_by_point(points: &[String]) -> Result<Vec<(String, std::ops::Range<usize>)>> {
+    blocks_of(points.iter().map(|p| Some(p.as_str())))
+}
+
+/// As [`blocks_by_point`], over borrowed ids (a table's text column read in place, without a
+/// string per sample); a missing id is an error naming its row.
+pub fn blocks_of<'a>(points: impl Iterator<Item = Option<&'a str>>) -> Result<Vec<(String, std::ops::Range<usize>)>> {
     let mut out: Vec<(String, std::ops::Range<usize>)> = Vec::new();
     let mut seen = std::collections::HashMap::new();
-    for (i, p) in points.iter().enumerate() {
+    for (i, p) in points.enumerate() {
+        let Some(p) = p else {
+            return Err(Error::Row {
+                row: i + 1,
+                source: Box::new(Error::Inconsistent { context: "logged samples", message: "missing point id".into() }),
+            });
+        };
         match out.last_mut() {
             Some((last, r)) if last == p => r.end = i + 1,
             _ => {
@@ -291,8 +303,8 @@ pub fn blocks_by_point(points: &[String]) -> Result<Vec<(String, std::ops::Range
                         }),
                     });
                 }
-                seen.insert(p.clone(), i);
-                out.push((p.clone(), i..i + 1));
+                seen.insert(p.to_string(), i);
+                out.push((p.to_string(), i..i + 1));
             }
         }
     }
@@ -452,6 +464,9 @@ mod tests {
         assert_eq!(b, vec![("A1".to_string(), 0..2), ("A2".to_string(), 2..5)]);
         let again: Vec<String> = ["A1", "A2", "A1"].iter().map(|s| s.to_string()).collect();
         assert!(blocks_by_point(&again).unwrap_err().to_string().contains("appears again"));
+        // Read in place, a missing id names its row.
+        let e = blocks_of([Some("A1"), None].into_iter()).unwrap_err().to_string();
+        assert!(e.contains("row 2") && e.contains("missing point id"), "{e}");
         let w = vec![("P2".to_string(), 10.0, 20.0), ("P1".to_string(), 0.0, 10.0)];
         assert_eq!(
             assign_windows(&[-1.0, 0.0, 9.9, 10.0, 25.0], &w).unwrap(),

@@ -528,6 +528,20 @@ fn find_column<'a>(df: &'a DataFrame, name: &str) -> Result<&'a Column> {
     })
 }
 
+/// Calls `f` with the values of column `name` as text, read in place (numbers written out;
+/// a missing value is `None`), without a string per row.
+pub fn with_text_column<T>(
+    df: &DataFrame,
+    name: &str,
+    f: impl FnOnce(&mut dyn Iterator<Item = Option<&str>>) -> Result<T>,
+) -> Result<T> {
+    let col = find_column(df, name)?;
+    let s =
+        col.cast(&DataType::String).map_err(|e| Error::Column { column: name.to_string(), message: e.to_string() })?;
+    let ca = s.str().map_err(|e| Error::Column { column: name.to_string(), message: e.to_string() })?;
+    f(&mut ca.iter())
+}
+
 /// A column of `df` as text (numbers written out; a missing value is an error naming
 /// its row).
 pub fn text_column(df: &DataFrame, name: &str) -> Result<Vec<String>> {
