@@ -172,3 +172,43 @@ fn a_full_disk_leaves_earlier_results_whole() {
         .unwrap_or_default();
     assert!(names.iter().all(|n| !n.contains("stagna-tmp")), "{names:?}");
 }
+
+/// `sample_stats` over a folder scan of the logged demo (3000 samples cut into three CSV
+/// files inside two blocks, which run on from one file into the next) writes the same per-point table as
+/// over the whole table read at once.
+#[test]
+fn logged_samples_scan_as_the_whole_table() {
+    let dir = tempdir("samples");
+    let script = dir.join("s.rhai");
+    std::fs::write(
+        &script,
+        r#"
+let smp = demo_table("gloomwater-cw-logged");
+// Cut inside the blocks of P04 (300–360 s) and P08 (700–760 s).
+let cuts = [[-1.0, 333.3], [333.3, 727.7], [727.7, 1e9]];
+let i = 0;
+for c in cuts {
+    i += 1;
+    smp.filter(col("time_s") >= c[0]).filter(col("time_s") < c[1]).select(["point", "time_s", "dp_pa"]).write(`parts/part-${i}.csv`);
+}
+let opts = #{dp: "dp_pa", settle: 8.s};
+sample_stats(smp.unit("dp_pa", "Pa"), opts).write("whole-stats.csv");
+sample_stats(scan_table(PARTS).unit("dp_pa", "Pa"), opts).write("scan-stats.csv");
+let e = "";
+try { sample_stats(scan_table(PARTS).unit("dp_pa", "Pa"), #{dp: "dp_pa", windows: ()}); } catch (x) { e = `${x}`; }
+print(`windows on a scan: ${e}`);
+"#
+        .replace("PARTS", &format!("{:?}", dir.join("out").join("parts").to_string_lossy())),
+    )
+    .expect("script");
+    let out = dir.join("out");
+    std::fs::create_dir_all(out.join("parts")).expect("dir");
+    let o = run(&script, &out);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(o.status.success(), "{text}\n{}", String::from_utf8_lossy(&o.stderr));
+    let whole = std::fs::read_to_string(out.join("whole-stats.csv")).expect("whole");
+    let scan = std::fs::read_to_string(out.join("scan-stats.csv")).expect("scan");
+    assert_eq!(whole.lines().count(), 11, "{whole}");
+    assert_eq!(whole, scan);
+    assert!(text.contains("windows on a scan:") && text.contains("windows"), "{text}");
+}

@@ -28,6 +28,19 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         .source("JCGM 100:2008 §4.2 (Type A of a mean) with the effective number of autocorrelated samples (see the library's campaign::samples docs for each formula and its standing)"),
         move |t: Tbl, o: Map| -> Res<Tbl> { sample_stats(&p, &t, &o) },
     );
+    let p = prefs.clone();
+    r.func(
+        "sample_stats",
+        &Doc::new(
+            "sample_stats(scan, options) -> Table",
+            "sample_stats over a scan (scan_table of a file or a folder too large to hold): the same per-point table, read a batch at a time, only the time, Δp and point columns, holding one batch and the block that runs on from it (a block may run on from one file into the next; a point met again after other points is an error naming its row). Options as for a table, without windows; the Δp column's unit comes from the files or scan.unit.",
+        )
+        .param("scan", "scan_table(path)")
+        .param("options", "map: time, dp, point, settle, transducer")
+        .example("table_from(#{point: [\"P1\", \"P1\", \"P1\", \"P2\", \"P2\", \"P2\"], time_s: [0.0, 1.0, 2.0, 0.0, 1.0, 2.0], dp: [101.0, 98.0, 103.0, 121.0, 118.0, 124.0]})\n    .write(\"samples.parquet\");\nprint(sample_stats(scan_table(\"samples.parquet\").unit(\"dp\", \"Pa\"), #{}));")
+        .source("as sample_stats of a table"),
+        move |sc: super::scans::Scan, o: Map| -> Res<Tbl> { sample_stats_scan(&p, &sc, &o) },
+    );
 }
 
 fn sample_stats(p: &SharedPrefs, t: &Tbl, o: &Map) -> Res<Tbl> {
@@ -101,14 +114,80 @@ fn sample_stats(p: &SharedPrefs, t: &Tbl, o: &Map) -> Res<Tbl> {
     };
     let opts = SampleOptions { settle_s: settle, ..Default::default() };
     let stats = lib(all_block_stats(&time_si, &dp_si, &blocks, &opts))?;
-    for ((id, _), s) in blocks.iter().zip(&stats) {
+    stats_table(p, blocks.into_iter().map(|b| b.0).collect(), stats)
+}
+
+/// `sample_stats` over a scan: the same options but windows, read a batch at a time.
+fn sample_stats_scan(p: &SharedPrefs, sc: &super::scans::Scan, o: &Map) -> Res<Tbl> {
+    check_keys(o, &["time", "dp", "point", "settle", "transducer"], "sample_stats (scan)")?;
+    let name = |k: &str, default: &str| -> Res<String> {
+        Ok(field(o, k).map(|d| text(d, k)).transpose()?.unwrap_or_else(|| default.to_string()))
+    };
+    let (time_name, dp_name, point_name) = (name("time", "time_s")?, name("dp", "dp")?, name("point", "point")?);
+    let scale = |c: &str, dim: D, what: &str| -> Res<f64> {
+        match sc.units.get(c) {
+            None if dim == D::TIME => Ok(1.0),
+            None => Err(rt(format!(
+                "sample_stats: '{c}' must be a {what} column; give it its unit, e.g. scan.unit(\"{c}\", \"Pa\")"
+            ))),
+            Some(u) => {
+                let q = lib(Quantity::new(1.0, u))?;
+                if q.dimension != dim {
+                    return Err(rt(format!("sample_stats: '{c}' is in {u}, not a {what} unit")));
+                }
+                Ok(q.si)
+            }
+        }
+    };
+    let cols = stagna::campaign::samples::SampleColumns {
+        time: &time_name,
+        dp: &dp_name,
+        point: &point_name,
+        time_scale: scale(&time_name, D::TIME, "time")?,
+        dp_scale: scale(&dp_name, D::PRESSURE, "pressure")?,
+    };
+    let settle = match field(o, "settle") {
+        None => 0.0,
+        Some(d) if d.is_float() || d.is_int() => number(d, "settle")?,
+        Some(d) => si_of(d, D::TIME, "settle")?,
+    };
+    let cal = match field(o, "transducer") {
+        Some(tr) => {
+            let tr: stagna::instruments::transducer::Transducer = tr
+                .clone()
+                .try_cast()
+                .ok_or_else(|| rt("sample_stats: 'transducer' must be a Transducer (setup.transducer(id))"))?;
+            Some(tr.calibration.clone().ok_or_else(|| {
+                rt(format!("sample_stats: transducer {} has no calibration points to correct the samples with", tr.id))
+            })?)
+        }
+        None => None,
+    };
+    let correct = cal.as_ref().map(|c| move |x: f64| c.correct_pa(x));
+    let opts = SampleOptions { settle_s: settle, ..Default::default() };
+    let interrupt = super::prefs(p).interrupt;
+    let r = lib(stagna::campaign::samples::scan_block_stats(
+        &sc.scan,
+        &cols,
+        correct.as_ref().map(|f| f as &(dyn Fn(f64) -> f64 + Sync)),
+        &opts,
+        0,
+        Some(&interrupt),
+    ))?;
+    let (ids, stats) = r.into_iter().unzip();
+    stats_table(p, ids, stats)
+}
+
+/// The per-point table of `sample_stats`, with each point's warnings printed once.
+fn stats_table(p: &SharedPrefs, ids: Vec<String>, stats: Vec<stagna::campaign::samples::BlockStats>) -> Res<Tbl> {
+    for (id, s) in ids.iter().zip(&stats) {
         for w in &s.warnings {
             warn_once(p, &format!("point {id}: {}", w.message));
         }
     }
     let f = |g: fn(&stagna::campaign::samples::BlockStats) -> f64| stats.iter().map(g).collect::<Vec<f64>>();
     let df = DataFrame::new_infer_height(vec![
-        Series::new("point".into(), blocks.iter().map(|(id, _)| id.clone()).collect::<Vec<_>>()).into(),
+        Series::new("point".into(), ids).into(),
         Series::new("n".into(), stats.iter().map(|s| s.n as i64).collect::<Vec<_>>()).into(),
         Series::new("dropped".into(), stats.iter().map(|s| s.dropped as i64).collect::<Vec<_>>()).into(),
         Series::new("duration_s".into(), f(|s| s.duration_s)).into(),

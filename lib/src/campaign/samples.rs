@@ -354,6 +354,170 @@ pub fn all_block_stats(
         .collect()
 }
 
+/// The columns of a scan of samples and the factors that take them to SI.
+#[derive(Debug, Clone, Copy)]
+pub struct SampleColumns<'a> {
+    /// Time column.
+    pub time: &'a str,
+    /// Δp column.
+    pub dp: &'a str,
+    /// Point id column.
+    pub point: &'a str,
+    /// Seconds per unit of the time column.
+    pub time_scale: f64,
+    /// Pa per unit of the Δp column.
+    pub dp_scale: f64,
+}
+
+/// A block whose samples may run on into the next batch.
+struct OpenBlock {
+    id: String,
+    /// Row (from 0, in the whole scan) of its first sample.
+    start: usize,
+    time: Vec<f64>,
+    dp: Vec<f64>,
+}
+
+/// Every block of a scan of samples, read a batch at a time (only the three columns), in
+/// order: the same numbers as [`all_block_stats`] over the whole table, holding one batch
+/// and the block that runs on from it. A block may run on from one batch (or file) into
+/// the next; a point met again after other points is an error naming its row. `correct`
+/// maps each Δp (Pa) before the statistics (a transducer's calibration).
+pub fn scan_block_stats(
+    scan: &crate::io::scan::TableScan,
+    cols: &SampleColumns<'_>,
+    correct: Option<&(dyn Fn(f64) -> f64 + Sync)>,
+    opts: &SampleOptions,
+    batch_rows: usize,
+    cancel: Option<&std::sync::atomic::AtomicBool>,
+) -> Result<Vec<(String, BlockStats)>> {
+    use polars::prelude::DataType;
+    let names = [cols.time, cols.dp, cols.point].map(str::to_string);
+    let batches =
+        scan.batches(&names, if batch_rows == 0 { crate::campaign::stream::DEFAULT_BATCH_ROWS } else { batch_rows })?;
+    let column_err =
+        |c: &str, e: polars::prelude::PolarsError| Error::Column { column: c.to_string(), message: e.to_string() };
+    let numbers = |df: &polars::prelude::DataFrame, c: &str, scale: f64| -> Result<Vec<f64>> {
+        let s = df.column(c).map_err(|e| column_err(c, e))?.cast(&DataType::Float64).map_err(|e| column_err(c, e))?;
+        let ca = s.f64().map_err(|e| column_err(c, e))?;
+        Ok(ca.iter().map(|v| v.map_or(f64::NAN, |v| v * scale)).collect())
+    };
+    let mut out: Vec<(String, BlockStats)> = Vec::new();
+    let mut seen: std::collections::HashSet<String> = std::collections::HashSet::new();
+    let mut open: Option<OpenBlock> = None;
+    let mut row0 = 0usize;
+    let finish = |id: &str, start: usize, t: &[f64], d: &[f64]| {
+        block_stats(t, d, opts).map_err(|e| match e {
+            Error::Row { row, source } => Error::Row { row: start + row, source },
+            e => Error::Inconsistent { context: "logged samples", message: format!("point '{id}': {e}") },
+        })
+    };
+    std::thread::scope(|sc| -> Result<()> {
+        // One batch decoded ahead while this one is reduced.
+        let (tx, rx) = std::sync::mpsc::sync_channel(1);
+        sc.spawn(move || {
+            for b in batches {
+                let stop = b.is_err();
+                if tx.send(b).is_err() || stop {
+                    break;
+                }
+            }
+        });
+        for item in rx {
+            if cancel.is_some_and(|c| c.load(std::sync::atomic::Ordering::Relaxed)) {
+                return Err(Error::Interrupted { context: "sample scan" });
+            }
+            let (df, _) = item?;
+            let n = df.height();
+            let time = numbers(&df, cols.time, cols.time_scale)?;
+            let mut dp = numbers(&df, cols.dp, cols.dp_scale)?;
+            if let Some(f) = correct {
+                dp.par_iter_mut().for_each(|x| *x = f(*x));
+            }
+            // Runs of one id in this batch.
+            let runs: Vec<(String, std::ops::Range<usize>)> =
+                crate::io::table::with_text_column(&df, cols.point, |ids| {
+                    let mut runs: Vec<(String, std::ops::Range<usize>)> = Vec::new();
+                    for (i, id) in ids.enumerate() {
+                        let Some(id) = id else {
+                            return Err(Error::Row {
+                                row: row0 + i + 1,
+                                source: Box::new(Error::Inconsistent {
+                                    context: "logged samples",
+                                    message: "missing point id".into(),
+                                }),
+                            });
+                        };
+                        match runs.last_mut() {
+                            Some((last, r)) if last == id => r.end = i + 1,
+                            _ => runs.push((id.to_string(), i..i + 1)),
+                        }
+                    }
+                    Ok(runs)
+                })?;
+            let last = runs.len().saturating_sub(1);
+            let mut done: Vec<(String, usize, std::ops::Range<usize>)> = Vec::new();
+            let mut owned: Option<OpenBlock> = None;
+            for (k, (id, r)) in runs.into_iter().enumerate() {
+                if k == 0 && open.as_ref().is_some_and(|b| b.id == id) {
+                    let b = open.as_mut().expect("checked above");
+                    b.time.extend_from_slice(&time[r.clone()]);
+                    b.dp.extend_from_slice(&dp[r]);
+                    if k != last {
+                        owned = open.take();
+                    }
+                    continue;
+                }
+                if k == 0 {
+                    owned = open.take();
+                }
+                if seen.contains(&id) || owned.as_ref().is_some_and(|b| b.id == id) {
+                    return Err(Error::Row {
+                        row: row0 + r.start + 1,
+                        source: Box::new(Error::Inconsistent {
+                            context: "logged samples",
+                            message: format!(
+                                "point '{id}' appears again after other points: give each visit its own point id"
+                            ),
+                        }),
+                    });
+                }
+                seen.insert(id.clone());
+                if k == last {
+                    open = Some(OpenBlock {
+                        id,
+                        start: row0 + r.start,
+                        time: time[r.clone()].to_vec(),
+                        dp: dp[r].to_vec(),
+                    });
+                } else {
+                    done.push((id, row0 + r.start, r));
+                }
+            }
+            if let Some(b) = owned {
+                seen.insert(b.id.clone());
+                let s = finish(&b.id, b.start, &b.time, &b.dp)?;
+                out.push((b.id, s));
+            }
+            let stats: Vec<BlockStats> = done
+                .par_iter()
+                .map(|(id, start, r)| finish(id, *start, &time[r.clone()], &dp[r.clone()]))
+                .collect::<Result<_>>()?;
+            out.extend(done.into_iter().map(|d| d.0).zip(stats));
+            row0 += n;
+        }
+        Ok(())
+    })?;
+    if let Some(b) = open {
+        let s = finish(&b.id, b.start, &b.time, &b.dp)?;
+        out.push((b.id, s));
+    }
+    if out.is_empty() {
+        return Err(Error::Inconsistent { context: "logged samples", message: "the scan holds no samples".into() });
+    }
+    Ok(out)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -455,6 +619,62 @@ mod tests {
         assert!(e.contains("settling time"), "{e}");
         let e = block_stats(&[0.0, 1.0], &[5.0, f64::NAN], &o).unwrap_err().to_string();
         assert!(e.contains("row 2") && e.contains("finite"), "{e}");
+    }
+
+    /// A scan read in batches of 37 rows (blocks run on across batches and files) gives
+    /// the same numbers as the whole table; a point met again is refused by its row.
+    #[test]
+    fn scans_equal_the_whole_table() {
+        let dir = std::env::temp_dir().join(format!("stagna-sample-scan-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).unwrap();
+        let mut ids = Vec::new();
+        let (mut t, mut d) = (Vec::new(), Vec::new());
+        for (k, n) in [120usize, 75, 200, 33].iter().enumerate() {
+            let x = ar1(*n, 0.6, k as u64 + 3);
+            for (i, v) in x.iter().enumerate() {
+                ids.push(format!("P{k}"));
+                t.push(i as f64 * 0.2);
+                d.push(400.0 + 10.0 * k as f64 + 8.0 * v);
+            }
+        }
+        // Two files, the second block split between them.
+        let cut = 150;
+        for (name, r) in [("a.parquet", 0..cut), ("b.parquet", cut..ids.len())] {
+            let df = polars::prelude::df!(
+                "point" => ids[r.clone()].to_vec(),
+                "time_s" => t[r.clone()].to_vec(),
+                "dp" => d[r].iter().map(|v| v * 1000.0).collect::<Vec<f64>>()
+            )
+            .unwrap();
+            crate::io::table::write_parquet(&df, &dir.join(name)).unwrap();
+        }
+        let scan = crate::io::scan::TableScan::open(&dir).unwrap();
+        let cols = SampleColumns { time: "time_s", dp: "dp", point: "point", time_scale: 1.0, dp_scale: 1e-3 };
+        let o = SampleOptions { settle_s: 1.0, ..Default::default() };
+        let got = scan_block_stats(&scan, &cols, None, &o, 37, None).unwrap();
+        let want = all_block_stats(&t, &d, &blocks_by_point(&ids).unwrap(), &o).unwrap();
+        assert_eq!(got.iter().map(|g| g.0.as_str()).collect::<Vec<_>>(), ["P0", "P1", "P2", "P3"]);
+        for ((_, g), w) in got.iter().zip(&want) {
+            assert_eq!(g.n, w.n);
+            assert!((g.mean_dp - w.mean_dp).abs() < 1e-9 && (g.u_mean_dp - w.u_mean_dp).abs() < 1e-9, "{g:?} {w:?}");
+        }
+        // A visit to P0 again after P1 is refused by its row.
+        let again = polars::prelude::df!("point" => ["P0", "P0", "P1", "P1", "P0"], "time_s" => [0.0, 1.0, 0.0, 1.0, 0.0], "dp" => [1.0, 2.0, 3.0, 4.0, 5.0]).unwrap();
+        let f = dir.join("again.parquet");
+        crate::io::table::write_parquet(&again, &f).unwrap();
+        let e = scan_block_stats(
+            &crate::io::scan::TableScan::open(&f).unwrap(),
+            &cols,
+            None,
+            &SampleOptions::default(),
+            2,
+            None,
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(e.contains("row 5") && e.contains("appears again"), "{e}");
+        let _ = std::fs::remove_dir_all(&dir);
     }
 
     #[test]
