@@ -16,7 +16,7 @@ use super::tables::Tbl;
 use super::*;
 use crate::catalog::Doc;
 
-/// Corrections with the session's display preferences at the time they were made.
+/// A traverse's local corrections, as scripts hold them.
 #[derive(Debug, Clone)]
 pub struct Corrections {
     /// The library's result.

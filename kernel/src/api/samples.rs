@@ -62,21 +62,10 @@ fn sample_stats(p: &SharedPrefs, t: &Tbl, o: &Map) -> Res<Tbl> {
     // The columns were converted for this call: take their values without a copy.
     let take = |c: Col| std::sync::Arc::try_unwrap(c.si).unwrap_or_else(|a| a.to_vec());
     let mut dp_si: Vec<f64> = take(dp);
-    if let Some(tr) = field(o, "transducer") {
-        let tr: stagna::instruments::transducer::Transducer = tr
-            .clone()
-            .try_cast()
-            .ok_or_else(|| rt("sample_stats: 'transducer' must be a Transducer (setup.transducer(id))"))?;
-        let cal = tr.calibration.as_ref().ok_or_else(|| {
-            rt(format!("sample_stats: transducer {} has no calibration points to correct the samples with", tr.id))
-        })?;
+    if let Some(cal) = calibration_of(o)? {
         dp_si.iter_mut().for_each(|x| *x = cal.correct_pa(*x));
     }
-    let settle = match field(o, "settle") {
-        None => 0.0,
-        Some(d) if d.is_float() || d.is_int() => number(d, "settle")?,
-        Some(d) => si_of(d, D::TIME, "settle")?,
-    };
+    let settle = settle_of(o)?;
     let time_si: Vec<f64> = take(time);
     let (blocks, time_si, dp_si) = match (field(o, "windows"), field(o, "point")) {
         (Some(_), Some(_)) => {
@@ -117,6 +106,27 @@ fn sample_stats(p: &SharedPrefs, t: &Tbl, o: &Map) -> Res<Tbl> {
     stats_table(p, blocks.into_iter().map(|b| b.0).collect(), stats)
 }
 
+/// The settling time of `sample_stats` options (a time, or seconds as a number; 0 if not given).
+fn settle_of(o: &Map) -> Res<f64> {
+    match field(o, "settle") {
+        None => Ok(0.0),
+        Some(d) if d.is_float() || d.is_int() => number(d, "settle"),
+        Some(d) => si_of(d, D::TIME, "settle"),
+    }
+}
+
+/// The calibration of the transducer in `sample_stats` options, if one is given.
+fn calibration_of(o: &Map) -> Res<Option<stagna::instruments::transducer::TransducerCalibration>> {
+    let Some(tr) = field(o, "transducer") else { return Ok(None) };
+    let tr: stagna::instruments::transducer::Transducer = tr
+        .clone()
+        .try_cast()
+        .ok_or_else(|| rt("sample_stats: 'transducer' must be a Transducer (setup.transducer(id))"))?;
+    tr.calibration.clone().map(Some).ok_or_else(|| {
+        rt(format!("sample_stats: transducer {} has no calibration points to correct the samples with", tr.id))
+    })
+}
+
 /// `sample_stats` over a scan: the same options but windows, read a batch at a time.
 fn sample_stats_scan(p: &SharedPrefs, sc: &super::scans::Scan, o: &Map) -> Res<Tbl> {
     check_keys(o, &["time", "dp", "point", "settle", "transducer"], "sample_stats (scan)")?;
@@ -146,23 +156,8 @@ fn sample_stats_scan(p: &SharedPrefs, sc: &super::scans::Scan, o: &Map) -> Res<T
         time_scale: scale(&time_name, D::TIME, "time")?,
         dp_scale: scale(&dp_name, D::PRESSURE, "pressure")?,
     };
-    let settle = match field(o, "settle") {
-        None => 0.0,
-        Some(d) if d.is_float() || d.is_int() => number(d, "settle")?,
-        Some(d) => si_of(d, D::TIME, "settle")?,
-    };
-    let cal = match field(o, "transducer") {
-        Some(tr) => {
-            let tr: stagna::instruments::transducer::Transducer = tr
-                .clone()
-                .try_cast()
-                .ok_or_else(|| rt("sample_stats: 'transducer' must be a Transducer (setup.transducer(id))"))?;
-            Some(tr.calibration.clone().ok_or_else(|| {
-                rt(format!("sample_stats: transducer {} has no calibration points to correct the samples with", tr.id))
-            })?)
-        }
-        None => None,
-    };
+    let settle = settle_of(o)?;
+    let cal = calibration_of(o)?;
     let correct = cal.as_ref().map(|c| move |x: f64| c.correct_pa(x));
     let opts = SampleOptions { settle_s: settle, ..Default::default() };
     let interrupt = super::prefs(p).interrupt;

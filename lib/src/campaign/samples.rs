@@ -412,100 +412,80 @@ pub fn scan_block_stats(
             e => Error::Inconsistent { context: "logged samples", message: format!("point '{id}': {e}") },
         })
     };
-    std::thread::scope(|sc| -> Result<()> {
-        // One batch decoded ahead while this one is reduced.
-        let (tx, rx) = std::sync::mpsc::sync_channel(1);
-        sc.spawn(move || {
-            for b in batches {
-                let stop = b.is_err();
-                if tx.send(b).is_err() || stop {
-                    break;
-                }
-            }
-        });
-        for item in rx {
-            if cancel.is_some_and(|c| c.load(std::sync::atomic::Ordering::Relaxed)) {
-                return Err(Error::Interrupted { context: "sample scan" });
-            }
-            let (df, _) = item?;
-            let n = df.height();
-            let time = numbers(&df, cols.time, cols.time_scale)?;
-            let mut dp = numbers(&df, cols.dp, cols.dp_scale)?;
-            if let Some(f) = correct {
-                dp.par_iter_mut().for_each(|x| *x = f(*x));
-            }
-            // Runs of one id in this batch.
-            let runs: Vec<(String, std::ops::Range<usize>)> =
-                crate::io::table::with_text_column(&df, cols.point, |ids| {
-                    let mut runs: Vec<(String, std::ops::Range<usize>)> = Vec::new();
-                    for (i, id) in ids.enumerate() {
-                        let Some(id) = id else {
-                            return Err(Error::Row {
-                                row: row0 + i + 1,
-                                source: Box::new(Error::Inconsistent {
-                                    context: "logged samples",
-                                    message: "missing point id".into(),
-                                }),
-                            });
-                        };
-                        match runs.last_mut() {
-                            Some((last, r)) if last == id => r.end = i + 1,
-                            _ => runs.push((id.to_string(), i..i + 1)),
-                        }
-                    }
-                    Ok(runs)
-                })?;
-            let last = runs.len().saturating_sub(1);
-            let mut done: Vec<(String, usize, std::ops::Range<usize>)> = Vec::new();
-            let mut owned: Option<OpenBlock> = None;
-            for (k, (id, r)) in runs.into_iter().enumerate() {
-                if k == 0 && open.as_ref().is_some_and(|b| b.id == id) {
-                    let b = open.as_mut().expect("checked above");
-                    b.time.extend_from_slice(&time[r.clone()]);
-                    b.dp.extend_from_slice(&dp[r]);
-                    if k != last {
-                        owned = open.take();
-                    }
-                    continue;
-                }
-                if k == 0 {
-                    owned = open.take();
-                }
-                if seen.contains(&id) || owned.as_ref().is_some_and(|b| b.id == id) {
+    // One batch decoded ahead while this one is reduced.
+    batches.read_ahead("sample scan", cancel, |df, _| {
+        let n = df.height();
+        let time = numbers(&df, cols.time, cols.time_scale)?;
+        let mut dp = numbers(&df, cols.dp, cols.dp_scale)?;
+        if let Some(f) = correct {
+            dp.par_iter_mut().for_each(|x| *x = f(*x));
+        }
+        // Runs of one id in this batch.
+        let runs: Vec<(String, std::ops::Range<usize>)> = crate::io::table::with_text_column(&df, cols.point, |ids| {
+            let mut runs: Vec<(String, std::ops::Range<usize>)> = Vec::new();
+            for (i, id) in ids.enumerate() {
+                let Some(id) = id else {
                     return Err(Error::Row {
-                        row: row0 + r.start + 1,
+                        row: row0 + i + 1,
                         source: Box::new(Error::Inconsistent {
                             context: "logged samples",
-                            message: format!(
-                                "point '{id}' appears again after other points: give each visit its own point id"
-                            ),
+                            message: "missing point id".into(),
                         }),
                     });
-                }
-                seen.insert(id.clone());
-                if k == last {
-                    open = Some(OpenBlock {
-                        id,
-                        start: row0 + r.start,
-                        time: time[r.clone()].to_vec(),
-                        dp: dp[r].to_vec(),
-                    });
-                } else {
-                    done.push((id, row0 + r.start, r));
+                };
+                match runs.last_mut() {
+                    Some((last, r)) if last == id => r.end = i + 1,
+                    _ => runs.push((id.to_string(), i..i + 1)),
                 }
             }
-            if let Some(b) = owned {
-                seen.insert(b.id.clone());
-                let s = finish(&b.id, b.start, &b.time, &b.dp)?;
-                out.push((b.id, s));
+            Ok(runs)
+        })?;
+        let last = runs.len().saturating_sub(1);
+        let mut done: Vec<(String, usize, std::ops::Range<usize>)> = Vec::new();
+        let mut owned: Option<OpenBlock> = None;
+        for (k, (id, r)) in runs.into_iter().enumerate() {
+            if k == 0 && open.as_ref().is_some_and(|b| b.id == id) {
+                let b = open.as_mut().expect("checked above");
+                b.time.extend_from_slice(&time[r.clone()]);
+                b.dp.extend_from_slice(&dp[r]);
+                if k != last {
+                    owned = open.take();
+                }
+                continue;
             }
-            let stats: Vec<BlockStats> = done
-                .par_iter()
-                .map(|(id, start, r)| finish(id, *start, &time[r.clone()], &dp[r.clone()]))
-                .collect::<Result<_>>()?;
-            out.extend(done.into_iter().map(|d| d.0).zip(stats));
-            row0 += n;
+            if k == 0 {
+                owned = open.take();
+            }
+            if seen.contains(&id) || owned.as_ref().is_some_and(|b| b.id == id) {
+                return Err(Error::Row {
+                    row: row0 + r.start + 1,
+                    source: Box::new(Error::Inconsistent {
+                        context: "logged samples",
+                        message: format!(
+                            "point '{id}' appears again after other points: give each visit its own point id"
+                        ),
+                    }),
+                });
+            }
+            seen.insert(id.clone());
+            if k == last {
+                open =
+                    Some(OpenBlock { id, start: row0 + r.start, time: time[r.clone()].to_vec(), dp: dp[r].to_vec() });
+            } else {
+                done.push((id, row0 + r.start, r));
+            }
         }
+        if let Some(b) = owned {
+            seen.insert(b.id.clone());
+            let s = finish(&b.id, b.start, &b.time, &b.dp)?;
+            out.push((b.id, s));
+        }
+        let stats: Vec<BlockStats> = done
+            .par_iter()
+            .map(|(id, start, r)| finish(id, *start, &time[r.clone()], &dp[r.clone()]))
+            .collect::<Result<_>>()?;
+        out.extend(done.into_iter().map(|d| d.0).zip(stats));
+        row0 += n;
         Ok(())
     })?;
     if let Some(b) = open {

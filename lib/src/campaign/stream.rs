@@ -279,25 +279,10 @@ pub fn reduce_campaign_scan_each(
     let counter = crate::progress::Counter::new(spec.progress.as_ref(), total);
     let mut stream =
         Stream { spec, each, out: ScanReduction::default(), carry: None, last: None, rising: true, seen: Vec::new() };
-    std::thread::scope(|sc| -> Result<()> {
-        // One batch decoded ahead while this one is reduced.
-        let (tx, rx) = std::sync::mpsc::sync_channel(1);
-        sc.spawn(move || {
-            for b in batches {
-                let stop = b.is_err();
-                if tx.send(b).is_err() || stop {
-                    break;
-                }
-            }
-        });
-        for item in rx {
-            if opts.cancel.as_ref().is_some_and(|c| c.load(std::sync::atomic::Ordering::Relaxed)) {
-                return Err(Error::Interrupted { context: "campaign scan" });
-            }
-            let (df, work) = item?;
-            stream.batch(df)?;
-            counter.add(work);
-        }
+    // One batch decoded ahead while this one is reduced.
+    batches.read_ahead("campaign scan", opts.cancel.as_deref(), |df, work| {
+        stream.batch(df)?;
+        counter.add(work);
         Ok(())
     })?;
     stream.finish()

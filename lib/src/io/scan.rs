@@ -421,6 +421,38 @@ impl Batches<'_> {
     }
 }
 
+impl Batches<'_> {
+    /// Hands each batch to `each` in order while a reader thread decodes the next one;
+    /// stops with [`Error::Interrupted`] (naming `context`) between batches when `cancel`
+    /// is set, and at the first error of either side.
+    pub fn read_ahead(
+        self,
+        context: &'static str,
+        cancel: Option<&std::sync::atomic::AtomicBool>,
+        mut each: impl FnMut(DataFrame, u64) -> Result<()>,
+    ) -> Result<()> {
+        std::thread::scope(|sc| -> Result<()> {
+            let (tx, rx) = std::sync::mpsc::sync_channel(1);
+            sc.spawn(move || {
+                for b in self {
+                    let stop = b.is_err();
+                    if tx.send(b).is_err() || stop {
+                        break;
+                    }
+                }
+            });
+            for item in rx {
+                if cancel.is_some_and(|c| c.load(std::sync::atomic::Ordering::Relaxed)) {
+                    return Err(Error::Interrupted { context });
+                }
+                let (df, work) = item?;
+                each(df, work)?;
+            }
+            Ok(())
+        })
+    }
+}
+
 impl Iterator for Batches<'_> {
     type Item = Result<(DataFrame, u64)>;
 

@@ -274,7 +274,7 @@ pub fn local_corrections(
                         param: "turbulence intensity",
                         value: x * 100.0,
                         unit: "%",
-                        allowed: "0 … 100 %".into(),
+                        allowed: "0 … 100 % (a fraction 0 … 1, or a column with its % unit)".into(),
                     }
                     .at_row(i));
                 }
