@@ -20,7 +20,10 @@
 //!   rectangular mouths give 0.19 of their thickness, Quarmby & Das 1969, read in the
 //!   abstract). Applied to first order, u(y) = u_read − ε·d·|du/dy| (derived), with
 //!   du/dy from the neighbouring points, or at the point nearest a wall from the power law
-//!   through it and its neighbour;
+//!   through it and its neighbour. The size of this effect in wall turbulence is contested:
+//!   "The behaviour of a Pitot tube in transverse shear" (J. Fluid Mech. 3 (1957) 441–456,
+//!   abstract read) found displacements in a turbulent boundary layer an order of magnitude
+//!   smaller than in a wake, negligible for a round Pitot even touching the wall;
 //! - **wall proximity**: Δu/u = a·exp(−b·(y/d − 0.5)) for y < 2 d, a = 0.015, b = 3.5
 //!   (MacMillan 1957: from memory, unverified); that the effect fades beyond about two
 //!   tube diameters from the wall is read in a published text on pitot probes near walls;
@@ -41,7 +44,7 @@ use crate::uncertainty::flow_models::{MethodTerm, TermDistribution};
 /// Source of the turbulence correction.
 pub const TURBULENCE_SOURCE: &str = "derived: the probe senses ½ρ(ū² + u′²) of the streamwise fluctuation, ū = u/√(1 + Tu²); transverse fluctuations not counted (ISO 3966's annex on the turbulence correction: title read, formula not re-read)";
 /// Source of the velocity-gradient (displacement) correction.
-pub const GRADIENT_SOURCE: &str = "effective centre ε·d toward the higher velocity, ε = 0.15 for a round nose (MacMillan 1957, ARC R&M 3028: from memory, unverified), applied as u − ε·d·|du/dy| (derived)";
+pub const GRADIENT_SOURCE: &str = "effective centre ε·d toward the higher velocity, ε = 0.15 for a round nose (MacMillan 1957, ARC R&M 3028: from memory, unverified), applied as u − ε·d·|du/dy| (derived); contested in wall turbulence (J. Fluid Mech. 3 (1957) 441, abstract read: negligible for a round Pitot in a turbulent boundary layer)";
 /// Source of the wall-proximity correction.
 pub const WALL_SOURCE: &str =
     "Δu/u = a·exp(−b(y/d − 0.5)) within 2 d of the wall, a = 0.015, b = 3.5 (MacMillan 1957: from memory, unverified)";
