@@ -2021,6 +2021,13 @@ mod tests {
         let t = eval(&mut s, "mp.budget_terms(#{})");
         assert!(t.contains("profile_model") && !t.contains("positioning"), "{t}");
         assert!(err(&mut s, "mp.budget_terms(#{u_position: 2.0})").message.contains("u_position"));
+        // The two readings differ by 2 %: an opt-in asymmetry term of half-width 1 %.
+        let a = eval(&mut s, "mp.budget_terms(#{asymmetry: true}).asymmetry.u_rel");
+        let a: f64 = a.parse().unwrap_or(f64::NAN);
+        let diff = 0.03 / 1.505;
+        assert!((a - diff / 2.0 / 3f64.sqrt()).abs() < 1e-9, "{a}");
+        eval(&mut s, "let one = mean_point(1.5.m_s, w, round_section(400.mm), #{});");
+        assert!(err(&mut s, "one.budget_terms(#{asymmetry: true})").message.contains("two readings"));
     }
 
     /// Local corrections from a script: the turbulence correction of a point is

@@ -119,7 +119,7 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
     r.engine.register_type_with_name::<stagna::section::profile::MeanPointResult>("MeanPoint");
     r.func(
         "mean_point",
-        &Doc::new("mean_point(velocity_or_two, state, conduit, options) -> MeanPoint", "Single-point method with the probe at the point of mean velocity: one reading, or an array of two readings at that distance from opposite walls (their mean is taken and their difference checked, options.tolerance_pct, default 3 %: common practice, no source). The distance from the wall is where the profile model's local velocity equals its mean at the mean's Reynolds number, y/R = (U/U_c)^n for the power law (0.242 for n = 7) or e^(−3/2) = 0.223 for the log law: derived from the model, not read from a standard's table. Options: family, straight_upstream_D and straight_downstream_D as for single_point, tolerance_pct. Properties: mean_velocity, volume_flow, from_wall, y_over_R, reynolds, asymmetry_pct, warnings; budget_terms(#{u_position}) gives the derived terms for traverse_budget of the readings.")
+        &Doc::new("mean_point(velocity_or_two, state, conduit, options) -> MeanPoint", "Single-point method with the probe at the point of mean velocity: one reading, or an array of two readings at that distance from opposite walls (their mean is taken and their difference checked, options.tolerance_pct, default 3 %: common practice, no source). The distance from the wall is where the profile model's local velocity equals its mean at the mean's Reynolds number, y/R = (U/U_c)^n for the power law (0.242 for n = 7) or e^(−3/2) = 0.223 for the log law: derived from the model, not read from a standard's table. Options: family, straight_upstream_D and straight_downstream_D as for single_point, tolerance_pct. Properties: mean_velocity, volume_flow, from_wall, y_over_R, reynolds, asymmetry_pct, warnings; budget_terms(#{u_position, asymmetry}) gives the terms for traverse_budget of the readings.")
             .example("let w = water().state(350.kPa, 11.degC);\nlet pipe = round_section(400.mm).roughness(0.05.mm);\nprint(mean_point([1.52.m_s, 1.49.m_s], w, pipe, #{straight_upstream_D: 30, straight_downstream_D: 8}));")
             .source("the point where the profile law's local velocity equals its mean (derived); ISO 7145 names the point of mean velocity as a measuring position (its clause not re-read here)"),
         move |v: Dynamic, s: State, c: Conduit, o: Map| -> Res<stagna::section::profile::MeanPointResult> {
@@ -195,8 +195,8 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             get,
         );
     }
-    let terms_doc = "The method terms of this result for traverse_budget of its one or two readings' Δp, in place of a traverse's layout term: #{layout: () (removed), profile_model: the largest |u(y)/U − 1| of the profile laws (power law with n = 1/√f and from Nikuradse's table, log law with κ = 0.41 and 0.40) at this point and Reynolds number, as a rectangular half-width; positioning: (d ln u/dy)·u_position when options.u_position (a length, standard uncertainty of the distance from the wall) is given}. All derived from the profile laws; ISO 7145's own uncertainty clause could not be read here, so add what it asks for as further terms.";
-    let terms_example = "let w = water().state(350.kPa, 11.degC);\nlet mp = mean_point([1.52.m_s, 1.49.m_s], w, round_section(400.mm), #{});\nlet b = traverse_budget([1150.Pa, 1105.Pa], #{coefficient: 1.0, u_coefficient: 0.004, density: w.density, u_density: 0.2.kg_m3, diameter: 400.mm, u_diameter: 0.5.mm, terms: mp.budget_terms(#{u_position: 2.mm})});\nprint(b);";
+    let terms_doc = "The method terms of this result for traverse_budget of its one or two readings' Δp, in place of a traverse's layout term: #{layout: () (removed), profile_model: the largest |u(y)/U − 1| of the profile laws (power law with n = 1/√f and from Nikuradse's table, log law with κ = 0.41 and 0.40) at this point and Reynolds number, as a rectangular half-width; positioning: (d ln u/dy)·u_position when options.u_position (a length, standard uncertainty of the distance from the wall) is given; asymmetry: half the two readings' difference as a rectangular half-width when options.asymmetry is true (common practice, no source; off by default)}. All derived from the profile laws; ISO 7145's own uncertainty clause could not be read here, so add what it asks for as further terms.";
+    let terms_example = "let w = water().state(350.kPa, 11.degC);\nlet mp = mean_point([1.52.m_s, 1.49.m_s], w, round_section(400.mm), #{});\nlet b = traverse_budget([1150.Pa, 1105.Pa], #{coefficient: 1.0, u_coefficient: 0.004, density: w.density, u_density: 0.2.kg_m3, diameter: 400.mm, u_diameter: 0.5.mm, terms: mp.budget_terms(#{u_position: 2.mm, asymmetry: true})});\nprint(b);";
     r.method(
         "MeanPoint",
         "budget_terms",
@@ -204,12 +204,17 @@ fn fits_and_single_point(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
             .example(terms_example)
             .source("profile laws at the point of mean velocity (derived); ISO 7145's uncertainty clause not re-read"),
         |m: &mut stagna::section::profile::MeanPointResult, o: Map| -> Res<Map> {
-            check_keys(&o, &["u_position"], "budget_terms")?;
+            check_keys(&o, &["u_position", "asymmetry"], "budget_terms")?;
             let u_y = field(&o, "u_position").map(|d| si_of(d, D::LENGTH, "u_position")).transpose()?;
-            let terms = lib(stagna::section::profile::mean_point_terms(m, u_y))?;
+            let asym = match field(&o, "asymmetry") {
+                None => false,
+                Some(d) => d.as_bool().map_err(|_| rt("budget_terms: asymmetry is true or false"))?,
+            };
+            let terms = lib(stagna::section::profile::mean_point_terms(m, u_y, asym))?;
             let mut out = Map::new();
             out.insert("layout".into(), Dynamic::UNIT);
-            for (key, t) in ["profile_model", "positioning"].iter().zip(terms) {
+            let keys = [Some("profile_model"), u_y.map(|_| "positioning"), asym.then_some("asymmetry")];
+            for (key, t) in keys.iter().flatten().zip(terms) {
                 let mut e = Map::new();
                 e.insert("u_rel".into(), Dynamic::from(t.relative_u));
                 let dist = match t.distribution {

@@ -377,11 +377,15 @@ pub fn single_point_at_mean(
 ///   moves the reading by (d ln u/dy)·u_position of the chosen law (a normal term), when
 ///   `u_position` is given.
 ///
+/// - **asymmetry** (opt-in, with two readings): half their difference as a rectangular
+///   half-width (common practice, no source).
+///
 /// ISO 7145's own uncertainty clause could not be read here; these terms stand on the
 /// profile laws, and what the clause adds is the caller's to add.
 pub fn mean_point_terms(
     r: &MeanPointResult,
     u_position: Option<f64>,
+    asymmetry: bool,
 ) -> Result<Vec<crate::uncertainty::flow_models::MethodTerm>> {
     use crate::uncertainty::flow_models::{MethodTerm, TermDistribution};
     let y = r.y_over_r;
@@ -431,6 +435,22 @@ pub fn mean_point_terms(
             ),
         )?);
     }
+    if asymmetry {
+        let a = r.asymmetry_pct.ok_or_else(|| Error::Inconsistent {
+            context: "point of mean velocity",
+            message: "an asymmetry term needs two readings at symmetric points".into(),
+        })?;
+        terms.push(
+            MethodTerm::new(
+                "asymmetry of the two readings",
+                a / 200.0 / 3f64.sqrt(),
+                &format!(
+                    "half the difference of the two readings ({a:.2} %) as a rectangular half-width (common practice, no source)"
+                ),
+            )?
+            .with_distribution(TermDistribution::Rectangular),
+        );
+    }
     Ok(terms)
 }
 
@@ -474,7 +494,8 @@ mod tests {
         let f = friction_factor(r.reynolds, 0.0, FrictionModel::Colebrook).unwrap().f;
         let log41 = (y.ln() + 1.5) / 0.41 * (f / 8.0).sqrt();
         let log40 = (y.ln() + 1.5) / 0.40 * (f / 8.0).sqrt();
-        let terms = mean_point_terms(&r, Some(0.002)).unwrap();
+        let terms = mean_point_terms(&r, Some(0.002), false).unwrap();
+        assert!(mean_point_terms(&r, None, true).unwrap_err().to_string().contains("two readings"));
         let want = log41.abs().max(log40.abs());
         // The Nikuradse power law is close to the chosen one, so a log law is the widest.
         assert!(
