@@ -16,18 +16,11 @@ use super::tables::Tbl;
 use super::*;
 use crate::catalog::Doc;
 
-/// A traverse's local corrections, as scripts hold them.
-#[derive(Debug, Clone)]
-pub struct Corrections {
-    /// The library's result.
-    pub c: LocalCorrections,
-}
-
 const EXAMPLE: &str = "let t = table_from(#{y: [20.0, 80.0, 220.0, 380.0, 520.0, 580.0], v: [8.9, 10.6, 11.6, 11.6, 10.6, 8.9], tu: [7.0, 5.5, 4.0, 4.0, 5.5, 7.0]}).units(#{y: \"mm\", v: \"m/s\", tu: \"%\"});\nlet c = local_corrections(t[\"y\"], t[\"v\"], round_section(600.mm), #{head_diameter: 8.mm, turbulence: t[\"tu\"], gradient: true, wall_proximity: true});";
 
 /// Registers the package.
 pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
-    r.engine.register_type_with_name::<Corrections>("LocalCorrections");
+    r.engine.register_type_with_name::<LocalCorrections>("LocalCorrections");
     r.group("Local corrections and conditions of use (ISO 3966)");
     let p = prefs.clone();
     r.func(
@@ -40,15 +33,15 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         .param("velocity", "velocity read at each point (velocity column)")
         .example(&format!("{EXAMPLE}\nprint(c);"))
         .source("ISO 3966 names these corrections and conditions (clause and annex titles read in the contents of the identical BS 1042-2.1:1983; formulas not re-read); turbulence and blockage derived; displacement and wall coefficients MacMillan 1957 (from memory, unverified); Mach ≤ 0.25 from ISO 3966:2020 §1 as published in its abstract"),
-        move |y: Dynamic, v: Dynamic, c: Conduit, o: Map| -> Res<Corrections> {
+        move |y: Dynamic, v: Dynamic, c: Conduit, o: Map| -> Res<LocalCorrections> {
             let r = corrections(&y, &v, &c, &o)?;
-            for w in &r.c.warnings {
+            for w in &r.warnings {
                 warn_once(&p, &w.message);
             }
             Ok(r)
         },
     );
-    r.engine.register_fn("to_string", |c: &mut Corrections| summary(&c.c));
+    r.engine.register_fn("to_string", |c: &mut LocalCorrections| summary(c));
     r.property(
         "LocalCorrections",
         "velocity",
@@ -58,10 +51,10 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         )
         .example(&format!("{EXAMPLE}\nprint(c.velocity);"))
         .source("as local_corrections"),
-        |c: &mut Corrections| -> Dynamic {
+        |c: &mut LocalCorrections| -> Dynamic {
             Dynamic::from(Col::new(
                 "velocity_corrected",
-                c.c.points.iter().map(|p| p.corrected).collect(),
+                c.points.iter().map(|p| p.corrected).collect(),
                 D::VELOCITY,
                 None,
             ))
@@ -73,7 +66,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("corrections.factor -> float", "Mean corrected velocity ÷ mean velocity read (arithmetic means over the points): the factor the corrections make on a section mean by the arithmetic rule.")
             .example(&format!("{EXAMPLE}\nprint(sig(c.factor, 5));"))
             .source("as local_corrections"),
-        |c: &mut Corrections| -> Dynamic { Dynamic::from(c.c.factor) },
+        |c: &mut LocalCorrections| -> Dynamic { Dynamic::from(c.factor) },
     );
     r.property(
         "LocalCorrections",
@@ -81,7 +74,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("corrections.checks -> Array", "The conditions of use, each a MethodCheck with its value, limit, verdict and source (saying when the limit is recalled, not read).")
             .example(&format!("{EXAMPLE}\nfor k in c.checks {{ print(k); }}"))
             .source("as local_corrections"),
-        |c: &mut Corrections| -> Dynamic { Dynamic::from(c.c.checks.iter().cloned().map(Dynamic::from).collect::<rhai::Array>()) },
+        |c: &mut LocalCorrections| -> Dynamic { Dynamic::from(c.checks.iter().cloned().map(Dynamic::from).collect::<rhai::Array>()) },
     );
     r.property(
         "LocalCorrections",
@@ -89,7 +82,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("corrections.passed -> bool", "Whether every condition of use passed.")
             .example(&format!("{EXAMPLE}\nprint(c.passed);"))
             .source("as local_corrections"),
-        |c: &mut Corrections| -> Dynamic { Dynamic::from(c.c.checks.iter().all(|k| k.pass)) },
+        |c: &mut LocalCorrections| -> Dynamic { Dynamic::from(c.checks.iter().all(|k| k.pass)) },
     );
     r.property(
         "LocalCorrections",
@@ -97,8 +90,8 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("corrections.warnings -> Array", "Effects present but not corrected, and other notes, as sentences.")
             .example(&format!("{EXAMPLE}\nprint(c.warnings);"))
             .source("as local_corrections"),
-        |c: &mut Corrections| -> Dynamic {
-            Dynamic::from(c.c.warnings.iter().map(|w| Dynamic::from(w.message.clone())).collect::<rhai::Array>())
+        |c: &mut LocalCorrections| -> Dynamic {
+            Dynamic::from(c.warnings.iter().map(|w| Dynamic::from(w.message.clone())).collect::<rhai::Array>())
         },
     );
     r.method(
@@ -107,7 +100,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("corrections.table() -> Table", "Per point: line, distance from the port-side wall and from the nearer wall, the velocity read, the turbulence intensity used, each correction in % (turbulence, gradient, wall, blockage, total) and the corrected velocity.")
             .example(&format!("{EXAMPLE}\ndisplay(c.table());"))
             .source("as local_corrections"),
-        |c: &mut Corrections| -> Res<Tbl> { table(&c.c) },
+        |c: &mut LocalCorrections| -> Res<Tbl> { table(c) },
     );
     let term_doc = "The corrections as a budget term for traverse_budget's terms: #{value (the factor), u_rel, distribution: \"rectangular\", source}, with a half-width of `fraction` × the correction (0.5 when not given: common practice, no source). Put it in terms: #{local_corrections: c.budget_term()} so the budget's value carries the correction.";
     r.method(
@@ -116,7 +109,7 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("corrections.budget_term() -> map", term_doc)
             .example(&format!("{EXAMPLE}\nprint(c.budget_term());"))
             .source("GUM (JCGM 100:2008) §3.2.4 (a correction and its uncertainty); the fraction is common practice, no source"),
-        |c: &mut Corrections| -> Res<Map> { term_map(&c.c, 0.5) },
+        |c: &mut LocalCorrections| -> Res<Map> { term_map(c, 0.5) },
     );
     r.method(
         "LocalCorrections",
@@ -124,11 +117,11 @@ pub fn register(r: &mut Registrar<'_>, prefs: &SharedPrefs) {
         &Doc::new("corrections.budget_term(fraction) -> map", term_doc)
             .example(&format!("{EXAMPLE}\nprint(c.budget_term(1.0));"))
             .source("GUM (JCGM 100:2008) §3.2.4 (a correction and its uncertainty); the fraction is the script's"),
-        |c: &mut Corrections, f: Dynamic| -> Res<Map> { term_map(&c.c, number(&f, "fraction")?) },
+        |c: &mut LocalCorrections, f: Dynamic| -> Res<Map> { term_map(c, number(&f, "fraction")?) },
     );
 }
 
-fn corrections(y: &Dynamic, v: &Dynamic, c: &Conduit, o: &Map) -> Res<Corrections> {
+fn corrections(y: &Dynamic, v: &Dynamic, c: &Conduit, o: &Map) -> Res<LocalCorrections> {
     const WHAT: &str = "local_corrections";
     check_keys(
         o,
@@ -223,7 +216,7 @@ fn corrections(y: &Dynamic, v: &Dynamic, c: &Conduit, o: &Map) -> Res<Correction
         None => None,
     };
     let t = RoundTraverse { diameter: diameter.si(), lines: &lines, from_port_wall: &y.si, velocity: &v.si };
-    Ok(Corrections { c: lib(local_corrections(&t, &opts, state.as_ref().map(|s| &s.s)))? })
+    lib(local_corrections(&t, &opts, state.as_ref().map(|s| &s.s)))
 }
 
 fn table(c: &LocalCorrections) -> Res<Tbl> {

@@ -284,6 +284,7 @@ pub fn local_corrections(
                 out.push(x);
             }
             applied.push(("turbulence", TURBULENCE_SOURCE.to_string()));
+            // Above 20 % the first-order model is stretched (common practice, no source).
             if out.iter().any(|x| *x > 0.2) {
                 warnings.push(Warning::new(
                     "turbulence",
@@ -370,11 +371,12 @@ pub fn local_corrections(
         }
         (Some(_), None) => return Err(needs_d("wall-proximity")),
         (None, Some(d)) => {
-            let near = from_wall.iter().filter(|w| **w < 2.0 * d).count();
+            let reach = WallProximity::default().reach;
+            let near = from_wall.iter().filter(|w| **w < reach * d).count();
             if near > 0 {
                 warnings.push(Warning::new(
                     "wall-proximity",
-                    format!("{near} point(s) lie within 2 head diameters of the wall, where the wall raises or lowers the reading; make the wall-proximity correction or budget it"),
+                    format!("{near} point(s) lie within {reach} head diameters of the wall, where the wall changes the reading; make the wall-proximity correction or budget it"),
                 ));
             }
         }
