@@ -7,6 +7,7 @@
 //! instruments, sites and campaigns ([`setup`]).
 
 pub mod evcxr;
+mod plain_csv;
 pub mod plot;
 pub mod record;
 pub mod scan;

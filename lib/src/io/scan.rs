@@ -234,13 +234,16 @@ fn csv_header_end(path: &Path) -> Result<(u64, Vec<u8>)> {
 
 fn csv_schema(files: &[PathBuf], layout: CsvLayout) -> Result<(Schema, Kind)> {
     let first = &files[0];
-    // Types as `read_table` infers them: from the first 10 000 rows of the first file.
+    // Types as `read_table` infers them: from the first 10 000 rows of the first file, read
+    // from the file's head (given the path, polars' reader maps and counts the whole file:
+    // 0.9 s and 400 MB for a 546 MiB CSV before the first batch).
+    let head = csv_head(first, 10_100)?;
     let sample = csv_options(layout)
         .with_has_header(true)
         .with_n_rows(Some(10_000))
         .with_infer_schema_length(Some(10_000))
-        .try_into_reader_with_file_path(Some(first.clone()))
-        .and_then(|r| r.finish())
+        .into_reader_with_file_handle(std::io::Cursor::new(head))
+        .finish()
         .map_err(|e| file_err(first, format!("not a readable CSV table: {}", shorten(&e.to_string(), 300))))?;
     if sample.width() == 0 {
         return Err(file_err(first, "no columns"));
@@ -267,6 +270,28 @@ fn csv_schema(files: &[PathBuf], layout: CsvLayout) -> Result<(Schema, Kind)> {
         ends.push(end);
     }
     Ok((schema, Kind::Csv(layout, ends)))
+}
+
+/// The head of a file holding at least `lines` lines, cut after the last whole line
+/// (outside quotes); the whole file when it is shorter.
+fn csv_head(path: &Path, lines: usize) -> Result<Vec<u8>> {
+    let err = |e: std::io::Error| file_err(path, format!("cannot read: {e}"));
+    let mut f = BufReader::new(File::open(path).map_err(err)?);
+    let mut head = Vec::new();
+    let mut step = 1u64 << 20;
+    loop {
+        let got = (&mut f).take(step).read_to_end(&mut head).map_err(err)?;
+        if (got as u64) < step {
+            return Ok(head); // the whole file
+        }
+        if memchr::memchr_iter(b'\n', &head).count() > lines
+            && let Some(c) = cut_point(&head)
+        {
+            head.truncate(c);
+            return Ok(head);
+        }
+        step *= 2;
+    }
 }
 
 fn trim_eol(b: &[u8]) -> &[u8] {
@@ -407,6 +432,9 @@ impl Batches<'_> {
             }
             if buf.iter().all(|b| b.is_ascii_whitespace()) {
                 continue;
+            }
+            if let Some(df) = super::plain_csv::parse(&buf, &self.scan.schema, &self.columns, layout) {
+                return Some(Ok((df, got)));
             }
             let parsed = csv_options(layout)
                 .with_has_header(false)
