@@ -312,6 +312,8 @@ struct CsvCursor {
     reader: BufReader<File>,
     /// Bytes read but not yet parsed (the part of a line after the last cut).
     rest: Vec<u8>,
+    /// The buffer of the batch before, kept for the next one.
+    spare: Vec<u8>,
     done: bool,
 }
 
@@ -389,7 +391,12 @@ impl Batches<'_> {
                 let open = || -> std::io::Result<CsvCursor> {
                     let mut f = File::open(&path)?;
                     f.seek(SeekFrom::Start(ends[self.file]))?;
-                    Ok(CsvCursor { reader: BufReader::with_capacity(1 << 20, f), rest: Vec::new(), done: false })
+                    Ok(CsvCursor {
+                        reader: BufReader::with_capacity(1 << 20, f),
+                        rest: Vec::new(),
+                        spare: Vec::new(),
+                        done: false,
+                    })
                 };
                 match open() {
                     Ok(c) => self.csv = Some(c),
@@ -397,21 +404,20 @@ impl Batches<'_> {
                 }
             }
             let cur = self.csv.as_mut()?;
-            let mut buf = std::mem::take(&mut cur.rest);
+            // The last batch's buffer again (its pages are already the process's), holding
+            // the part line the last cut left.
+            let mut buf = std::mem::take(&mut cur.spare);
+            buf.clear();
+            buf.extend_from_slice(&cur.rest);
             let mut got = 0u64;
             let mut want = target;
             let cut = loop {
-                while !cur.done && buf.len() < want {
-                    let old = buf.len();
-                    buf.resize(want, 0);
-                    match cur.reader.read(&mut buf[old..]) {
-                        Ok(0) => {
-                            buf.truncate(old);
-                            cur.done = true;
-                        }
+                if !cur.done && buf.len() < want {
+                    let ask = (want - buf.len()) as u64;
+                    match (&mut cur.reader).take(ask).read_to_end(&mut buf) {
                         Ok(k) => {
-                            buf.truncate(old + k);
                             got += k as u64;
+                            cur.done = (k as u64) < ask;
                         }
                         Err(e) => return Some(Err(file_err(&path, format!("cannot read: {e}")))),
                     }
@@ -425,15 +431,26 @@ impl Batches<'_> {
                     None => want = buf.len() * 2,
                 }
             };
-            cur.rest = buf.split_off(cut);
-            if cur.done && cur.rest.is_empty() {
+            cur.rest.clear();
+            cur.rest.extend_from_slice(&buf[cut..]);
+            buf.truncate(cut);
+            let finished = cur.done && cur.rest.is_empty();
+            if buf.iter().all(|b| b.is_ascii_whitespace()) {
+                if finished {
+                    self.csv = None;
+                    self.file += 1;
+                }
+                continue;
+            }
+            let plain = super::plain_csv::parse(&buf, &self.scan.schema, &self.columns, layout);
+            if finished {
                 self.csv = None;
                 self.file += 1;
             }
-            if buf.iter().all(|b| b.is_ascii_whitespace()) {
-                continue;
-            }
-            if let Some(df) = super::plain_csv::parse(&buf, &self.scan.schema, &self.columns, layout) {
+            if let Some(df) = plain {
+                if let Some(cur) = self.csv.as_mut() {
+                    cur.spare = buf;
+                }
                 return Some(Ok((df, got)));
             }
             let parsed = csv_options(layout)
@@ -553,6 +570,39 @@ mod tests {
         assert!(std::fs::metadata(&csv).unwrap().len() > 3 * (1 << 16));
         assert!(n > 3, "{n} batches");
         assert!(back.equals(&df.select(["s", "x"]).unwrap()), "{back}\n{}", df.select(["s", "x"]).unwrap());
+    }
+
+    #[test]
+    fn plain_csv_batches_and_their_fallbacks_reassemble_the_table() {
+        // Plain lines (the fast path) in many small batches over two files, the second
+        // without a last line end, CRLF in the first; one quoted field in the middle of
+        // the second file sends that batch, and only it, to polars' reader.
+        let d = tmp("plain");
+        let mut a = String::from("id,x,s\r\n");
+        let mut b = String::from("id,x,s\n");
+        for i in 0..3000 {
+            let line = |q: bool| format!("{},{},{}", i / 7, i as f64 * 0.1, if q { "\"q,r\"" } else { "p" });
+            a.push_str(&line(false));
+            a.push_str("\r\n");
+            b.push_str(&line(i == 1500));
+            b.push_str(if i + 1 < 3000 { "\n" } else { "" });
+        }
+        std::fs::write(d.join("a.csv"), &a).unwrap();
+        std::fs::write(d.join("b.csv"), &b).unwrap();
+        let scan = TableScan::open(&d).unwrap();
+        let (back, n) = collect(&scan, &["x", "s", "id"], 1);
+        assert!(n > 20, "{n} batches");
+        let whole = |text: &str| {
+            CsvReadOptions::default()
+                .with_has_header(true)
+                .into_reader_with_file_handle(std::io::Cursor::new(text.as_bytes().to_vec()))
+                .finish()
+                .unwrap()
+        };
+        let mut want = whole(&a);
+        want.vstack_mut(&whole(&b)).unwrap();
+        assert!(back.equals(&want.select(["x", "s", "id"]).unwrap()), "{back}");
+        assert_eq!(back.column("s").unwrap().str().unwrap().get(4500), Some("q,r"));
     }
 
     #[test]
