@@ -59,6 +59,11 @@ pub fn read_csv(path: &Path) -> Result<DataFrame> {
 pub fn read_csv_with(path: &Path, layout: CsvLayout) -> Result<DataFrame> {
     check_readable(path)?;
     let (header_line, header) = csv_header(path, layout)?;
+    if let Some(df) = read_csv_in_batches(path, layout) {
+        return Ok(df);
+    }
+    // The whole file through polars' reader: a file the batches could not read comes here,
+    // so that its error names the line to look at.
     let df = CsvReadOptions::default()
         .with_has_header(true)
         .with_infer_schema_length(Some(10_000))
@@ -85,6 +90,28 @@ pub fn read_csv_with(path: &Path, layout: CsvLayout) -> Result<DataFrame> {
         ));
     }
     Ok(df)
+}
+
+/// The file read as a scan reads it (types from the first 10 000 rows, as polars' reader
+/// infers them; runs of whole lines, plain ones parsed in parallel, the rest by polars'
+/// reader) and joined into one chunk a column; `None` when anything fails or nothing is
+/// read, for the caller to read the file whole and report. On the 10 M-reading bench
+/// CSV (546 MiB): see DEVELOPERS.md.
+fn read_csv_in_batches(path: &Path, layout: CsvLayout) -> Option<DataFrame> {
+    let scan = super::scan::TableScan::of_files(vec![path.to_path_buf()], layout).ok()?;
+    let mut out: Option<DataFrame> = None;
+    for batch in scan.batches(&[], 1 << 17).ok()? {
+        let (df, _) = batch.ok()?;
+        match &mut out {
+            None => out = Some(df),
+            Some(o) => {
+                o.vstack_mut_owned(df).ok()?;
+            }
+        }
+    }
+    let mut df = out.filter(|d| d.height() > 0)?;
+    df.rechunk_mut_par();
+    Some(df)
 }
 
 /// The header: its line number (from 1) and its names, refusing a repeated name, and a
@@ -653,6 +680,36 @@ mod tests {
         let d = std::env::temp_dir().join(format!("stagna-table-{}", std::process::id()));
         std::fs::create_dir_all(&d).unwrap();
         d.join(name)
+    }
+
+    #[test]
+    fn csv_read_in_batches_equals_the_whole_file_read() {
+        // Files larger than a batch: plain, with a comment before the header, CRLF, quoted
+        // fields with separators inside, empty fields (nulls), ids and floats; and a small
+        // one. The oracle is polars' reader over the whole file, as read_csv read before.
+        let mut big = String::from("# logged by a test\nid,x,s,n\n");
+        let mut crlf = String::from("id,x,s,n\r\n");
+        for i in 0..300_000i64 {
+            let s = if i % 1000 == 0 { "\"a,b\"" } else { "p" };
+            let n = if i % 777 == 0 { "" } else { "1.5" };
+            big.push_str(&format!("{},{},{s},{n}\n", i / 20, i as f64 * 0.01));
+            crlf.push_str(&format!("{},{},p,{}\r\n", i / 20, i as f64 * 0.01, i % 9));
+        }
+        for (name, text) in [("big.csv", big), ("crlf.csv", crlf), ("small.csv", "a,b\n1,x\n2,y\n".to_string())] {
+            let p = tmp(name);
+            std::fs::write(&p, &text).unwrap();
+            let ours = read_csv(&p).unwrap();
+            let whole = CsvReadOptions::default()
+                .with_has_header(true)
+                .with_infer_schema_length(Some(10_000))
+                .map_parse_options(|o| o.with_comment_prefix(Some("#")))
+                .try_into_reader_with_file_path(Some(p.clone()))
+                .and_then(|r| r.finish())
+                .unwrap();
+            assert_eq!(ours.schema(), whole.schema(), "{name}");
+            assert!(ours.equals_missing(&whole), "{name}");
+            assert!(ours.columns().iter().all(|c| c.n_chunks() == 1), "{name}: one chunk a column");
+        }
     }
 
     #[test]
