@@ -406,52 +406,94 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     } else {
         None
     };
-    // Big stacks as for the main thread (deep script data is dropped recursively).
-    let pool = rayon::ThreadPoolBuilder::new().num_threads(args.jobs.unwrap_or(0)).stack_size(256 << 20).build()?;
-    let results: Vec<RunResult> = pool.install(|| {
-        files
-            .par_iter()
-            .zip(dirs.par_iter())
-            .zip(chosen_keys.par_iter())
-            // One session per worker, started over for each input (building one costs more
-            // than a small input's whole reduction).
-            .map_init(
-                || Session::with_limits(limits),
-                |session, ((f, dir), key)| {
-                    let mut hash = None;
-                    let mut r = match record(key, "running", None, None).and_then(|()| {
-                        std::fs::create_dir_all(dir)
-                            .map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
-                    }) {
-                        // A large input is hashed for the manifest on its own thread while its
-                        // script runs; a small one after (a thread per small input cost more
-                        // than its hash: a fresh allocator heap for each).
-                        Ok(()) if std::fs::metadata(f).is_ok_and(|m| m.len() > 8 << 20) => std::thread::scope(|sc| {
-                            let hashing = sc.spawn(|| crate::shard::file_hash(f).ok());
-                            let r = run_one(session, args, &script, Some(f), dir, &protected);
-                            hash = hashing.join().ok().flatten();
-                            r
-                        }),
-                        Ok(()) => {
-                            let r = run_one(session, args, &script, Some(f), dir, &protected);
-                            hash = crate::shard::file_hash(f).ok();
-                            r
+    // One plain thread per job, each with its own session started over for each input
+    // (building one costs more than a small input's whole reduction), taking the next input
+    // from a shared counter. Not a rayon pool: a rayon worker that calls into polars' or the
+    // library's thread pool spins while it waits, which on 2 cores took the time of the
+    // work it waited for (0.5–1 ms an input); a plain thread sleeps. Big stacks as for the
+    // main thread (deep script data is dropped recursively).
+    let jobs =
+        args.jobs.filter(|&j| j > 0).unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()));
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let slots: Vec<Mutex<Option<RunResult>>> = files.iter().map(|_| Mutex::new(None)).collect();
+    let work = |session: &mut Session, k: usize| -> RunResult {
+        let (f, dir, key) = (&files[k], &dirs[k], &chosen_keys[k]);
+        let mut hash = None;
+        let mut r = match record(key, "running", None, None).and_then(|()| {
+            std::fs::create_dir_all(dir).map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
+        }) {
+            // A large input is hashed for the manifest on its own thread while its script
+            // runs; a small one after (a thread per small input cost more than its hash: a
+            // fresh allocator heap for each).
+            Ok(()) if std::fs::metadata(f).is_ok_and(|m| m.len() > 8 << 20) => std::thread::scope(|sc| {
+                let hashing = sc.spawn(|| crate::shard::file_hash(f).ok());
+                let r = run_one(session, args, &script, Some(f), dir, &protected);
+                hash = hashing.join().ok().flatten();
+                r
+            }),
+            Ok(()) => {
+                let r = run_one(session, args, &script, Some(f), dir, &protected);
+                hash = crate::shard::file_hash(f).ok();
+                r
+            }
+            Err(e) => RunResult { printed: vec![], error: Some(e) },
+        };
+        let status = if r.error.is_some() { "failed" } else { "done" };
+        if let Err(e) = record(key, status, r.error.clone(), hash) {
+            r.error.get_or_insert(e);
+        }
+        if let Some(b) = &bar {
+            b.set_message(f.file_name().map(|s| s.to_string_lossy().to_string()).unwrap_or_default());
+            b.inc(1);
+        }
+        r
+    };
+    std::thread::scope(|sc| -> Result<(), std::io::Error> {
+        for _ in 0..jobs.min(files.len()) {
+            std::thread::Builder::new().stack_size(256 << 20).spawn_scoped(sc, || {
+                let mut session = Session::with_limits(limits);
+                loop {
+                    let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                    if k >= files.len() {
+                        break;
+                    }
+                    // A panic (a defect, never bad input) fails this input alone; the worker
+                    // goes on with a fresh session.
+                    let r = match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| work(&mut session, k))) {
+                        Ok(r) => r,
+                        Err(p) => {
+                            session = Session::with_limits(limits);
+                            let why = p
+                                .downcast_ref::<&str>()
+                                .map(|s| s.to_string())
+                                .or_else(|| p.downcast_ref::<String>().cloned())
+                                .unwrap_or_default();
+                            RunResult {
+                                printed: vec![],
+                                error: Some(format!("internal error (please report it): {why}")),
+                            }
                         }
-                        Err(e) => RunResult { printed: vec![], error: Some(e) },
                     };
-                    let status = if r.error.is_some() { "failed" } else { "done" };
-                    if let Err(e) = record(key, status, r.error.clone(), hash) {
-                        r.error.get_or_insert(e);
+                    match slots[k].lock() {
+                        Ok(mut g) => *g = Some(r),
+                        Err(e) => *e.into_inner() = Some(r),
                     }
-                    if let Some(b) = &bar {
-                        b.set_message(f.file_name().map(|s| s.to_string_lossy().to_string()).unwrap_or_default());
-                        b.inc(1);
-                    }
-                    r
-                },
-            )
-            .collect()
-    });
+                }
+            })?;
+        }
+        Ok(())
+    })?;
+    let results: Vec<RunResult> = slots
+        .into_iter()
+        .map(|m| {
+            let r = match m.into_inner() {
+                Ok(r) => r,
+                Err(e) => e.into_inner(),
+            };
+            // Every input was taken by a worker that stores its result, panic or not.
+            r.unwrap_or_else(|| RunResult { printed: vec![], error: Some("this input was not run".into()) })
+        })
+        .collect();
     if let Some(b) = bar {
         b.finish_and_clear();
     }

@@ -59,7 +59,10 @@ pub fn read_csv(path: &Path) -> Result<DataFrame> {
 pub fn read_csv_with(path: &Path, layout: CsvLayout) -> Result<DataFrame> {
     check_readable(path)?;
     let (header_line, header) = csv_header(path, layout)?;
-    if let Some(df) = read_csv_in_batches(path, layout) {
+    // A large file in batches (parallel, and for plain lines without polars' per-field
+    // dispatch); a small one in one call, which costs less than the scan's set-up.
+    let large = std::fs::metadata(path).is_ok_and(|m| m.len() > 4 << 20);
+    if large && let Some(df) = read_csv_in_batches(path, layout) {
         return Ok(df);
     }
     // The whole file through polars' reader: a file the batches could not read comes here,
