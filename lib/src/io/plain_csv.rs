@@ -1,10 +1,12 @@
-//! A fast path for plain CSV: the runs of lines a [`super::scan::TableScan`] cuts, parsed
-//! in parallel into only the columns asked for.
+//! A fast path for plain CSV: the runs of lines a [`super::scan::TableScan`] cuts (for
+//! scans, and for `read_table` of a large CSV file), parsed in parallel into only the
+//! columns asked for.
 //!
 //! Loggers write plain CSV: no quotes, one separator, numbers and short labels. For such a
-//! run of lines [`parse`] splits the bytes at line ends into a few parts, parses the parts
-//! on rayon's threads (integers and floats with the same parsers polars' CSV reader uses,
-//! `atoi_simd` and `fast-float2`, so every value is the same bit for bit) and joins them.
+//! run of lines [`parse`] splits the bytes at line ends into a few parts and parses the
+//! parts on rayon's threads straight into the final columns (integers and floats with the
+//! parsers polars' CSV reader uses, `atoi_simd` and `fast-float2`, so every value is the
+//! same bit for bit).
 //! Anything outside that plain grammar — a quote, a comment or blank line, an empty field
 //! in a column asked for, a field that does not parse as its column's type, a line of
 //! another width, a decimal comma, a column of another type — makes it return `None`, and
