@@ -55,8 +55,8 @@ pub(crate) fn parse(buf: &[u8], schema: &Schema, columns: &[String], layout: Csv
     if layout.decimal_comma || layout.separator == b'"' || layout.separator == b'\n' || buf.len() >= u32::MAX as usize {
         return None;
     }
-    if memchr::memchr(b'"', buf).is_some() {
-        return None;
+    if memchr::memchr(b'"', buf).is_some() || schema.is_empty() || columns.is_empty() {
+        return None; // a quote; or nothing to cut a line into (a line would never advance)
     }
     // For each field of a line (file order): the wanted column's slot and kind.
     let mut plan: Vec<Option<usize>> = vec![None; schema.len()];
@@ -314,6 +314,8 @@ mod tests {
         }
         let comma = CsvLayout { separator: b';', decimal_comma: true };
         assert!(parse(b"1;0,5;a;2\n", &s, &c, comma).is_none(), "a decimal comma");
+        assert!(parse(b"1,0.5,a,2\n", &Schema::default(), &[], plain).is_none(), "no columns");
+        assert!(parse(b"1,0.5,a,2\n", &s, &[], plain).is_none(), "none asked for");
         let dated = Schema::from_iter([Field::new("ok".into(), DataType::Boolean)]);
         assert!(parse(b"true\n", &dated, &cols(&["ok"]), plain).is_none(), "another type");
         // An empty field in a column not asked for changes nothing asked for.

@@ -687,9 +687,11 @@ mod tests {
 
     #[test]
     fn csv_read_in_batches_equals_the_whole_file_read() {
-        // Files larger than a batch: plain, with a comment before the header, CRLF, quoted
-        // fields with separators inside, empty fields (nulls), ids and floats; and a small
-        // one. The oracle is polars' reader over the whole file, as read_csv read before.
+        // Files larger than a batch: one with a comment before the header, a quoted field
+        // with a separator inside in every batch and empty fields (nulls), so polars' reader
+        // reads every batch; one plain with CRLF line ends, for the fast path; and a small
+        // one, read whole. The oracle is polars' reader over the whole file, as read_csv
+        // read before.
         let mut big = String::from("# logged by a test\nid,x,s,n\n");
         let mut crlf = String::from("id,x,s,n\r\n");
         for i in 0..300_000i64 {
