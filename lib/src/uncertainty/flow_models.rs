@@ -169,25 +169,54 @@ pub struct TraverseFlowModel {
     pub rectangular: bool,
 }
 
-impl Model for TraverseFlowModel {
-    fn eval<R: Real>(&self, x: &[R]) -> R {
+impl TraverseFlowModel {
+    /// Index of the first Δp input.
+    fn first_dp(&self) -> usize {
+        (if self.rectangular { 4 } else { 3 }) + self.terms
+    }
+
+    /// The model from its inputs and Σ √Δp_i (added point after point from 0).
+    fn combine<R: Real>(&self, x: &[R], sum_root_dp: R) -> R {
         let (c, rho) = (x[0], x[1]);
-        let shared = if self.rectangular { 4 } else { 3 };
         let mut factor = R::constant(1.0);
-        for f in &x[shared..shared + self.terms] {
+        for f in &x[self.first_dp() - self.terms..self.first_dp()] {
             factor = factor * *f;
         }
         // Σ √(2Δp_i/ρ) = √(2/ρ)·Σ √Δp_i: one division and one root for the shared factor
         // instead of one division a point.
-        let mut sum = R::constant(0.0);
-        for dp in &x[shared + self.terms..] {
-            sum = sum + dp.sqrt();
-        }
-        let mean = factor * c * (R::constant(2.0) / rho).sqrt() * sum / R::constant(self.points as f64);
+        let mean = factor * c * (R::constant(2.0) / rho).sqrt() * sum_root_dp / R::constant(self.points as f64);
         match (self.mean_velocity, self.rectangular) {
             (true, _) => mean,
             (false, true) => mean * x[2] * x[3],
             (false, false) => mean * R::constant(self.area_factor) * x[2] * x[2],
+        }
+    }
+}
+
+impl Model for TraverseFlowModel {
+    fn eval<R: Real>(&self, x: &[R]) -> R {
+        let mut sum = R::constant(0.0);
+        for dp in &x[self.first_dp()..] {
+            sum = sum + dp.sqrt();
+        }
+        self.combine(x, sum)
+    }
+
+    /// As `eval` trial by trial (the same sums in the same order, so the same values to the
+    /// bit), but point by point across the trials so that the square roots vectorise.
+    fn eval_rows(&self, rows: &[f64], y: &mut [f64]) {
+        if y.is_empty() {
+            return;
+        }
+        let n = rows.len() / y.len();
+        y.fill(0.0);
+        for k in self.first_dp()..n {
+            for (s, row) in y.iter_mut().zip(rows.chunks_exact(n)) {
+                *s += row[k].sqrt();
+            }
+        }
+        for (s, row) in y.iter_mut().zip(rows.chunks_exact(n)) {
+            *s = self.combine(row, *s);
         }
     }
 }

@@ -9,6 +9,7 @@
 
 pub mod flow_models;
 pub mod monte_carlo;
+mod normal;
 mod propagation;
 
 pub use propagation::*;

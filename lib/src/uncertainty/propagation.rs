@@ -135,6 +135,21 @@ impl Real for Dual {
 pub trait Model: Sync {
     /// Evaluates the model at `x` (in the order of the inputs).
     fn eval<R: Real>(&self, x: &[R]) -> R;
+
+    /// Evaluates the model for consecutive Monte Carlo trials: `rows` holds each trial's
+    /// input values in turn (`y.len()` rows of equal length) and `y` receives the model
+    /// values. The default calls [`Model::eval`] row by row. A model may override it to
+    /// compute the same values, with the same operations in the same order, several
+    /// trials at a time, so that the arithmetic vectorises across trials.
+    fn eval_rows(&self, rows: &[f64], y: &mut [f64]) {
+        if y.is_empty() {
+            return;
+        }
+        let n = rows.len() / y.len();
+        for (row, y) in rows.chunks_exact(n).zip(y) {
+            *y = self.eval(row);
+        }
+    }
 }
 
 /// How an input's value is distributed about its best estimate.
