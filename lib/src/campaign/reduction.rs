@@ -247,6 +247,20 @@ impl<'a> Cond<'a> {
             None => incompressible(coefficient, dp, rho),
         }
     }
+
+    /// [`Cond::velocity`] of each (Δp, ρ) pair into `v` (the same values), a column at a time.
+    fn velocities(&self, coefficient: f64, dp: &[f64], rho: &[f64], v: &mut Vec<f64>) {
+        v.clear();
+        v.resize(dp.len(), 0.0);
+        match &self.isen {
+            Some(k) => k.velocities(dp, rho, v),
+            None => {
+                for ((v, &dp), &rho) in v.iter_mut().zip(dp).zip(rho) {
+                    *v = incompressible(coefficient, dp, rho);
+                }
+            }
+        }
+    }
 }
 
 /// Relative standard uncertainties for the per-traverse GUM budget of the flow
@@ -380,24 +394,32 @@ fn column<'a>(df: &'a DataFrame, name: &str, unit: &Unit, what: &str) -> Result<
     Ok(SiColumn { data, factor: unit.factor, offset: unit.offset })
 }
 
-/// Slots of a [`Memo`].
-const MEMO_SLOTS: usize = 64;
+/// Slots of a [`Memo`]: a campaign's temperatures read to 0.1 K recur across its
+/// traverses (a few hundred distinct values, say); 64 slots held too few of them and a
+/// 10 M-reading campaign recomputed the humid-air density for a third of its rows.
+const MEMO_SLOTS: usize = 1024;
 
-/// Memo of an expensive scalar function of a temperature (a density): a small
-/// direct-mapped table keyed by the input's exact bits. Readings repeat their
-/// temperatures (one per traverse, or a handful read to 0.1 K), so nearly every row is
-/// answered from it; a value is the function's own, never an interpolation.
+/// One slot of a [`Memo`]: key, generation and value together, one cache line a lookup.
+#[derive(Clone, Copy)]
+struct Slot {
+    key: u64,
+    generation: u32,
+    value: f64,
+}
+
+/// Memo of an expensive scalar function of a temperature (a density): a direct-mapped
+/// table keyed by the input's exact bits. Readings repeat their temperatures (one per
+/// traverse, or a handful read to 0.1 K), so nearly every row is answered from it; a
+/// value is the function's own, never an interpolation.
 struct Memo {
-    keys: [u64; MEMO_SLOTS],
-    gens: [u32; MEMO_SLOTS],
-    vals: [f64; MEMO_SLOTS],
+    slots: Box<[Slot; MEMO_SLOTS]>,
     /// Slots of another generation are empty (a traverse with other conditions).
     generation: u32,
 }
 
 impl Memo {
     fn new() -> Self {
-        Self { keys: [0; MEMO_SLOTS], gens: [0; MEMO_SLOTS], vals: [0.0; MEMO_SLOTS], generation: 1 }
+        Self { slots: Box::new([Slot { key: 0, generation: 0, value: 0.0 }; MEMO_SLOTS]), generation: 1 }
     }
 
     /// Forgets every value (in constant time).
@@ -415,12 +437,13 @@ impl Memo {
         }
         let b = x.to_bits();
         let i = (b.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> (64 - MEMO_SLOTS.trailing_zeros())) as usize;
-        if self.gens[i] == self.generation && self.keys[i] == b {
-            return Ok(self.vals[i]);
+        let slot = &mut self.slots[i];
+        if slot.generation == self.generation && slot.key == b {
+            return Ok(slot.value);
         }
-        let v = f(x)?;
-        (self.keys[i], self.gens[i], self.vals[i]) = (b, self.generation, v);
-        Ok(v)
+        let value = f(x)?;
+        *slot = Slot { key: b, generation: self.generation, value };
+        Ok(value)
     }
 }
 
@@ -527,6 +550,14 @@ impl<'a> RowPhysics<'a> {
     /// (Δp in Pa, fluid density in kg/m³, velocity in m/s, fluid temperature in K) of one row.
     #[inline(always)]
     fn point(&self, row: usize, c: &Cond, m: &mut Memos) -> Result<(f64, f64, f64, f64)> {
+        let (dp, rho_f, t) = self.dp_density(row, c, m)?;
+        Ok((dp, rho_f, c.velocity(self.spec.probe.coefficient, dp, rho_f), t))
+    }
+
+    /// (Δp in Pa, fluid density in kg/m³, fluid temperature in K) of one row: all of
+    /// [`RowPhysics::point`] but the velocity, which a traverse takes a column at a time.
+    #[inline(always)]
+    fn dp_density(&self, row: usize, c: &Cond, m: &mut Memos) -> Result<(f64, f64, f64)> {
         let spec = self.spec;
         let h = self.defl.at(row);
         if !h.is_finite() {
@@ -536,8 +567,7 @@ impl<'a> RowPhysics<'a> {
         let t = self.temp.at(row);
         if self.dp_reading {
             let rho_f = m.rho_f.get(t, |t| c.fluid.density_si(c.p, t))?;
-            let v = c.velocity(spec.probe.coefficient, h, rho_f);
-            return Ok((h, rho_f, v, t));
+            return Ok((h, rho_f, t));
         }
         let tg = self.gauge_t.as_ref().map_or(t, |g| g.at(row));
         let rho_f = m.rho_f.get(t, |t| c.fluid.density_si(c.p, t))?;
@@ -548,8 +578,7 @@ impl<'a> RowPhysics<'a> {
             None
         };
         let dp = spec.manometer.dp_from_densities(h, rho_m, light, rho_f)?;
-        let v = c.velocity(spec.probe.coefficient, dp, rho_f);
-        Ok((dp, rho_f, v, t))
+        Ok((dp, rho_f, t))
     }
 }
 
@@ -574,11 +603,22 @@ struct Scratch {
     v: Vec<f64>,
     keyed: Vec<(f64, f64)>,
     dps: Vec<f64>,
+    rhos: Vec<f64>,
+    vs: Vec<f64>,
 }
 
 impl Scratch {
     fn new() -> Self {
-        Self { memos: Memos::new(), lines: vec![], pos: vec![], v: vec![], keyed: vec![], dps: vec![] }
+        Self {
+            memos: Memos::new(),
+            lines: vec![],
+            pos: vec![],
+            v: vec![],
+            keyed: vec![],
+            dps: vec![],
+            rhos: vec![],
+            vs: vec![],
+        }
     }
 }
 
@@ -612,7 +652,7 @@ impl Kernel<'_> {
                 (h, d * h)
             }
         };
-        let (mut n, mut sum_v, mut sum_rho, mut vmax, mut reversed, mut sum_t) = (0u32, 0.0, 0.0, f64::MIN, 0u32, 0.0);
+        let (mut n, mut sum_rho, mut reversed, mut sum_t) = (0u32, 0.0, 0u32, 0.0);
         let mut sum_sqrt_dp_mm = 0.0;
         let (mut ordered, mut last_line, mut last_s) = (true, f64::MIN, f64::MIN);
         if spec.conditions.is_some() {
@@ -625,6 +665,7 @@ impl Kernel<'_> {
         sc.v.clear();
         sc.keyed.clear();
         sc.dps.clear();
+        sc.rhos.clear();
         for (k, row) in rows.clone().enumerate() {
             let at = |e: Error| Error::Inconsistent {
                 context: "traverse",
@@ -636,10 +677,9 @@ impl Kernel<'_> {
                     message: "the conduit size changes within the traverse".into(),
                 }));
             }
-            let (dp, rho_f, v, t) = self.phys.point(row, cond, &mut sc.memos).map_err(at)?;
-            if spec.uncertainty.is_some() {
-                sc.dps.push(dp);
-            }
+            let (dp, rho_f, t) = self.phys.dp_density(row, cond, &mut sc.memos).map_err(at)?;
+            sc.dps.push(dp);
+            sc.rhos.push(rho_f);
             if spec.method2.is_some() {
                 if dp < 0.0 {
                     return Err(at(Error::Inconsistent {
@@ -650,10 +690,8 @@ impl Kernel<'_> {
                 sum_sqrt_dp_mm += (dp / crate::methods::us_epa::PA_PER_MM_H2O).sqrt();
             }
             n += 1;
-            sum_v += v;
             sum_rho += rho_f;
             sum_t += t;
-            vmax = vmax.max(v);
             reversed += u32::from(dp < 0.0);
             if let Some(pc) = &self.pos {
                 let s = pc.at(row);
@@ -706,9 +744,19 @@ impl Kernel<'_> {
                         None => Position::Radial { r_over_r: 2.0 * s / d - 1.0, angle_deg: 0.0 },
                         Some(_) => Position::Grid { x_over_w: x / d, y_over_h: s / depth },
                     });
-                    sc.v.push(v);
                 }
             }
+        }
+        // The velocities a column at a time (the same values as row by row), then their sum
+        // and maximum in row order.
+        cond.velocities(spec.probe.coefficient, &sc.dps, &sc.rhos, &mut sc.vs);
+        let (mut sum_v, mut vmax) = (0.0, f64::MIN);
+        for &v in &sc.vs {
+            sum_v += v;
+            vmax = vmax.max(v);
+        }
+        if self.integrate && self.pos.is_some() {
+            sc.v.extend_from_slice(&sc.vs);
         }
         if (n as usize) < spec.min_points.max(1) {
             return Err(Error::Inconsistent {
@@ -1145,6 +1193,40 @@ pub(crate) mod tests {
     use crate::instruments::probe::{ProbeKind, VelocityMethod};
     use crate::units::quantity::{Length, Temperature};
     use crate::{HumidAir, UserLiquid};
+
+    #[test]
+    fn the_memo_answers_with_the_functions_own_values_and_forgets_on_clear() {
+        // 5000 temperatures read to 0.1 K (more than the slots, so slots are shared and
+        // overwritten), asked in a scrambled order three times: every answer is f's own value.
+        let f = |t: f64| -> Result<f64> { Ok(101_325.0 / (287.05 * t)) };
+        let keys: Vec<f64> = (0..5000).map(|i| (2731 + i * 7919 % 5000) as f64 / 10.0).collect();
+        let mut m = Memo::new();
+        for _ in 0..3 {
+            for &t in &keys {
+                assert_eq!(m.get(t, f).unwrap().to_bits(), f(t).unwrap().to_bits(), "{t} K");
+            }
+        }
+        // One key asked again and again is computed once; after clear() it is computed anew.
+        let mut once = 0;
+        for _ in 0..10 {
+            m.get(293.2, |t| {
+                once += 1;
+                f(t)
+            })
+            .unwrap();
+        }
+        m.clear();
+        m.get(293.2, |t| {
+            once += 1;
+            f(t)
+        })
+        .unwrap();
+        assert_eq!(once, 2);
+        // A non-finite key is never stored: its error comes back every time.
+        for _ in 0..2 {
+            assert!(m.get(f64::NAN, |_| Err(Error::NotFinite { context: "t", param: "t", value: f64::NAN })).is_err());
+        }
+    }
 
     pub(crate) fn air_spec() -> CampaignSpec {
         let oil =
