@@ -309,12 +309,63 @@ fn in_order(df: DataFrame, columns: &[String], path: &Path) -> Result<DataFrame>
 
 /// An open CSV file being cut into runs of lines.
 struct CsvCursor {
-    reader: BufReader<File>,
-    /// Bytes read but not yet parsed (the part of a line after the last cut).
-    rest: Vec<u8>,
-    /// The buffer of the batch before, kept for the next one.
-    spare: Vec<u8>,
+    file: File,
+    /// Offset in the file of the next byte not yet read.
+    at: u64,
+    /// The run being cut: `buf[..filled]` holds bytes read and not yet parsed (it starts
+    /// with the part line the last cut left). The buffer is kept from batch to batch and
+    /// only grows, so its pages are the process's already and it is never zeroed again.
+    buf: Vec<u8>,
+    filled: usize,
     done: bool,
+}
+
+/// Reads `file` from `offset` into `buf` (the whole of it unless the file ends first) and
+/// gives the bytes read: large reads in up to four pieces at once on rayon's threads, as
+/// the copy from the page cache is a good part of a plain CSV scan's time and one thread
+/// copies at a time otherwise. What is read ends at the first piece that comes up short
+/// (the end of the file).
+fn read_run(file: &File, offset: u64, buf: &mut [u8]) -> std::io::Result<usize> {
+    const PIECE: usize = 1 << 20;
+    fn fill(file: &File, mut offset: u64, mut buf: &mut [u8]) -> std::io::Result<usize> {
+        let mut got = 0;
+        while !buf.is_empty() {
+            #[cfg(unix)]
+            let n = std::os::unix::fs::FileExt::read_at(file, buf, offset);
+            #[cfg(windows)]
+            let n = std::os::windows::fs::FileExt::seek_read(file, buf, offset);
+            match n {
+                Ok(0) => break,
+                Ok(n) => {
+                    got += n;
+                    offset += n as u64;
+                    buf = &mut buf[n..];
+                }
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => return Err(e),
+            }
+        }
+        Ok(got)
+    }
+    if buf.len() < 2 * PIECE {
+        return fill(file, offset, buf);
+    }
+    use rayon::prelude::*;
+    let size = buf.len().div_ceil(4);
+    let got: Vec<(usize, std::io::Result<usize>)> = buf
+        .par_chunks_mut(size)
+        .enumerate()
+        .map(|(k, piece)| (piece.len(), fill(file, offset + (k * size) as u64, piece)))
+        .collect();
+    let mut total = 0;
+    for (len, g) in got {
+        let g = g?;
+        total += g;
+        if g < len {
+            break;
+        }
+    }
+    Ok(total)
 }
 
 /// The batches of a [`TableScan`]: `(frame, work done by this batch)`.
@@ -373,7 +424,6 @@ impl Batches<'_> {
     }
 
     fn next_csv(&mut self, layout: CsvLayout, ends: &[u64]) -> Option<Result<(DataFrame, u64)>> {
-        use std::io::{Seek, SeekFrom};
         loop {
             if self.file >= self.scan.files.len() {
                 return None;
@@ -388,82 +438,78 @@ impl Batches<'_> {
             let target =
                 if self.rows < 4096 { (self.rows * 64).max(4096) } else { (file_len / 16).clamp(1 << 20, 16 << 20) };
             if self.csv.is_none() {
-                let open = || -> std::io::Result<CsvCursor> {
-                    let mut f = File::open(&path)?;
-                    f.seek(SeekFrom::Start(ends[self.file]))?;
-                    Ok(CsvCursor {
-                        reader: BufReader::with_capacity(1 << 20, f),
-                        rest: Vec::new(),
-                        spare: Vec::new(),
-                        done: false,
-                    })
-                };
-                match open() {
-                    Ok(c) => self.csv = Some(c),
+                match File::open(&path) {
+                    Ok(file) => {
+                        self.csv =
+                            Some(CsvCursor { file, at: ends[self.file], buf: Vec::new(), filled: 0, done: false })
+                    }
                     Err(e) => return Some(Err(file_err(&path, format!("cannot open: {e}")))),
                 }
             }
             let cur = self.csv.as_mut()?;
-            // The last batch's buffer again (its pages are already the process's), holding
-            // the part line the last cut left.
-            let mut buf = std::mem::take(&mut cur.spare);
-            buf.clear();
-            buf.extend_from_slice(&cur.rest);
             let mut got = 0u64;
             let mut want = target;
             let cut = loop {
-                if !cur.done && buf.len() < want {
-                    let ask = (want - buf.len()) as u64;
-                    match (&mut cur.reader).take(ask).read_to_end(&mut buf) {
+                if !cur.done && cur.filled < want {
+                    if cur.buf.len() < want {
+                        cur.buf.resize(want, 0);
+                    }
+                    let ask = want - cur.filled;
+                    match read_run(&cur.file, cur.at, &mut cur.buf[cur.filled..want]) {
                         Ok(k) => {
                             got += k as u64;
-                            cur.done = (k as u64) < ask;
+                            cur.at += k as u64;
+                            cur.filled += k;
+                            cur.done = k < ask;
                         }
                         Err(e) => return Some(Err(file_err(&path, format!("cannot read: {e}")))),
                     }
                 }
                 if cur.done {
-                    break buf.len();
+                    break cur.filled;
                 }
-                match cut_point(&buf) {
+                match cut_point(&cur.buf[..cur.filled]) {
                     Some(c) => break c,
                     // One line (or a quoted field) longer than the batch: read on.
-                    None => want = buf.len() * 2,
+                    None => want = cur.filled * 2,
                 }
             };
-            cur.rest.clear();
-            cur.rest.extend_from_slice(&buf[cut..]);
-            buf.truncate(cut);
-            let finished = cur.done && cur.rest.is_empty();
-            if buf.iter().all(|b| b.is_ascii_whitespace()) {
-                if finished {
-                    self.csv = None;
-                    self.file += 1;
-                }
-                continue;
-            }
-            let plain = super::plain_csv::parse(&buf, &self.scan.schema, &self.columns, layout);
+            let run = &cur.buf[..cut];
+            let finished = cur.done && cut == cur.filled;
+            let parsed = if run.iter().all(|b| b.is_ascii_whitespace()) {
+                None
+            } else {
+                Some(parse_run(run, &self.scan.schema, &self.columns, layout, &path))
+            };
+            // The part line after the cut goes to the front for the next run.
+            cur.buf.copy_within(cut..cur.filled, 0);
+            cur.filled -= cut;
             if finished {
                 self.csv = None;
                 self.file += 1;
             }
-            if let Some(df) = plain {
-                if let Some(cur) = self.csv.as_mut() {
-                    cur.spare = buf;
-                }
-                return Some(Ok((df, got)));
+            match parsed {
+                None => continue,
+                Some(r) => return Some(r.map(|df| (df, got))),
             }
-            let parsed = csv_options(layout)
-                .with_has_header(false)
-                .with_schema(Some(self.scan.schema.clone()))
-                .with_columns(Some(self.columns.iter().map(|c| c.as_str().into()).collect()))
-                .into_reader_with_file_handle(std::io::Cursor::new(buf))
-                .finish()
-                .map_err(|e| file_err(&path, format!("not a readable CSV table: {}", shorten(&e.to_string(), 300))));
-            let cols = &self.columns;
-            return Some(parsed.and_then(|df| in_order(df, cols, &path)).map(|df| (df, got)));
         }
     }
+}
+
+/// A run of whole CSV lines as a frame of `columns`: Stagna's plain-CSV parser when the run
+/// is plain, polars' reader otherwise (whose result and errors the user then gets).
+fn parse_run(run: &[u8], schema: &SchemaRef, columns: &[String], layout: CsvLayout, path: &Path) -> Result<DataFrame> {
+    if let Some(df) = super::plain_csv::parse(run, schema, columns, layout) {
+        return Ok(df);
+    }
+    csv_options(layout)
+        .with_has_header(false)
+        .with_schema(Some(schema.clone()))
+        .with_columns(Some(columns.iter().map(|c| c.as_str().into()).collect()))
+        .into_reader_with_file_handle(std::io::Cursor::new(run.to_vec()))
+        .finish()
+        .map_err(|e| file_err(path, format!("not a readable CSV table: {}", shorten(&e.to_string(), 300))))
+        .and_then(|df| in_order(df, columns, path))
 }
 
 impl Batches<'_> {
@@ -520,6 +566,25 @@ mod tests {
         let _ = std::fs::remove_dir_all(&d);
         std::fs::create_dir_all(&d).unwrap();
         d
+    }
+
+    #[test]
+    fn runs_are_read_whole_in_pieces_and_end_at_the_end_of_the_file() {
+        let d = tmp("read-run");
+        let path = d.join("bytes.bin");
+        let data: Vec<u8> = (0..(5 << 20) + 123u32).map(|i| (i.wrapping_mul(2_654_435_761) >> 24) as u8).collect();
+        std::fs::write(&path, &data).unwrap();
+        let f = File::open(&path).unwrap();
+        // (offset, buffer): pieces read at once (≥ 2 MiB), the end inside the last piece or
+        // an earlier one, a small read, a read past the end.
+        for (offset, len) in [(0usize, 4 << 20), (7, 3 << 20), ((3 << 20) + 5, 4 << 20), (11, 1000), (data.len(), 10)] {
+            let mut buf = vec![0xAA; len];
+            let got = read_run(&f, offset as u64, &mut buf).unwrap();
+            let want = len.min(data.len() - offset);
+            assert_eq!(got, want, "offset {offset}, {len} bytes asked");
+            assert!(buf[..got] == data[offset..offset + got], "offset {offset}, {len} bytes asked");
+        }
+        std::fs::remove_dir_all(&d).unwrap();
     }
 
     fn frame(n: usize) -> DataFrame {
