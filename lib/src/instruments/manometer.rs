@@ -235,6 +235,7 @@ impl Manometer {
 
     /// Δp in Pa from h (m), gauge-liquid density ρ_m, light-liquid density (two-liquid
     /// gauges only) and working-fluid density ρ_f: the per-row path of column kernels.
+    #[inline]
     pub fn dp_from_densities(&self, h: f64, rho_m: f64, rho_light: Option<f64>, rho_f: f64) -> Result<f64> {
         let g = self.gravity.si();
         let denser = |rho_m: f64| -> Result<()> {

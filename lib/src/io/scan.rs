@@ -382,8 +382,8 @@ pub struct Batches<'a> {
 /// Where a run of lines may be cut: after the last line end that lies outside quotes
 /// (an even number of `"` before it in `buf`, counting from a line start).
 fn cut_point(buf: &[u8]) -> Option<usize> {
-    if !buf.contains(&b'"') {
-        return buf.iter().rposition(|&b| b == b'\n').map(|i| i + 1);
+    if memchr::memchr(b'"', buf).is_none() {
+        return memchr::memrchr(b'\n', buf).map(|i| i + 1);
     }
     let mut inside = false;
     let mut last = None;
