@@ -180,9 +180,10 @@ impl Isentropic {
     }
 
     /// [`Isentropic::velocity`] of each (Δp, ρ) pair into `v`, the same values to the bit,
-    /// computed so that the compiler can take two rows a step: every row runs the nine
-    /// steps of [`pow1p_m1`]'s series, a row with x ≤ 10⁻³ keeping 1 through the three it
-    /// does not take, and rows past the series' range are done again by `velocity`.
+    /// computed so that the compiler can take two rows a step: every row runs the eight
+    /// nested steps of [`pow1p_m1`]'s nine-term series, a row with x ≤ 10⁻³ (six terms,
+    /// five steps) keeping s = 1 through the first three, and rows past the series' range
+    /// (x > 10⁻²) are done again by `velocity`.
     pub fn velocities(&self, dp: &[f64], rho: &[f64], v: &mut [f64]) {
         let coef: [f64; 9] = std::array::from_fn(|k| (self.e - k as f64) * INV[(k + 1).min(9)]);
         let mut beyond = false;
