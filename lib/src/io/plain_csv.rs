@@ -188,13 +188,71 @@ fn parse_part(buf: &[u8], lo: usize, hi: usize, sep: u8, plan: &[Option<usize>],
             }
             match &mut share[slot] {
                 Share::Int(v) => *v.get_mut(row)? = atoi_simd::parse::<i64, true, true>(f).ok()?,
-                Share::Float(v) => *v.get_mut(row)? = fast_float2::parse::<f64, _>(f).ok()?,
+                Share::Float(v) => {
+                    *v.get_mut(row)? = match short_decimal(f) {
+                        Some(x) => x,
+                        None => fast_float2::parse::<f64, _>(f).ok()?,
+                    }
+                }
                 Share::Text(v) => *v.get_mut(row)? = (start as u32, (start + f.len()) as u32),
             }
         }
         row += 1;
     }
     Some(())
+}
+
+/// Powers of ten that are exact in binary64 (10¹⁵ < 2⁵³).
+const EXACT_POW10: [f64; 16] = [1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15];
+
+/// A short decimal as loggers write it (`-?digits` or `-?digits.digits`, at most 15 digits)
+/// read in one pass, else `None` (the caller then uses `fast-float2`).
+///
+/// The digits make an integer m < 10¹⁵ < 2⁵³ and the k digits after the point a divisor
+/// 10ᵏ, both exact in binary64, so the one IEEE division m / 10ᵏ is the correctly rounded
+/// value of the decimal (Clinger's fast path, W. D. Clinger, "How to read floating point
+/// numbers accurately", PLDI 1990): the same bits `fast-float2` gives, which the tests
+/// check field by field.
+#[inline(always)]
+fn short_decimal(f: &[u8]) -> Option<f64> {
+    let (neg, d) = match f.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        _ => (false, f),
+    };
+    // 15 digits and a point at most.
+    if d.is_empty() || d.len() > 16 {
+        return None;
+    }
+    let mut m: u64 = 0;
+    let mut i = 0;
+    while i < d.len() {
+        let c = d[i].wrapping_sub(b'0');
+        if c > 9 {
+            break;
+        }
+        m = m * 10 + u64::from(c);
+        i += 1;
+    }
+    let mut k = 0;
+    if i < d.len() {
+        // Only a point followed by at least one digit, after at least one digit.
+        if i == 0 || d[i] != b'.' || i + 1 == d.len() {
+            return None;
+        }
+        for &b in &d[i + 1..] {
+            let c = b.wrapping_sub(b'0');
+            if c > 9 {
+                return None;
+            }
+            m = m * 10 + u64::from(c);
+        }
+        k = d.len() - i - 1;
+    }
+    if d.len() - usize::from(k > 0) > 15 {
+        return None;
+    }
+    let v = m as f64 / EXACT_POW10[k];
+    Some(if neg { -v } else { v })
 }
 
 /// The first index from `i` holding `sep` or a line end (or `bytes.len()`), eight bytes at
@@ -286,6 +344,104 @@ mod tests {
         let ours =
             parse(semi.as_bytes(), &s, &cols(&["x"]), CsvLayout { separator: b';', decimal_comma: false }).unwrap();
         assert_eq!(ours.column("x").unwrap().f64().unwrap().get(0), Some(0.5));
+    }
+
+    /// `short_decimal` gives `fast-float2`'s bits or leaves the field to it.
+    fn same_as_fast_float(f: &str) -> Option<f64> {
+        let ours = short_decimal(f.as_bytes());
+        if let Some(x) = ours {
+            let theirs = fast_float2::parse::<f64, _>(f).unwrap_or_else(|_| panic!("{f}: fast-float2 refuses it"));
+            assert_eq!(x.to_bits(), theirs.to_bits(), "{f}");
+        }
+        ours
+    }
+
+    #[test]
+    fn short_decimals_read_as_fast_float_reads_them() {
+        // Taken: plain decimals of up to 15 digits, signs of zero, leading zeros.
+        for f in [
+            "0",
+            "-0",
+            "-0.0",
+            "0.0",
+            "7",
+            "15.2",
+            "8.43",
+            "400.0",
+            "0.1",
+            "0.3",
+            "-273.15",
+            "0123",
+            "00.50",
+            "0.00000000000001",
+            "999999999999999",
+            "99999999999999.9",
+            "-9.99999999999999",
+            "123456789012.345",
+        ] {
+            assert!(same_as_fast_float(f).is_some(), "{f} should be read here");
+        }
+        assert!(same_as_fast_float("-0").unwrap().is_sign_negative());
+        // 300 000 more: integers of 1 to 15 digits with the point anywhere (a fixed
+        // splitmix64 stream), every one read here and equal to fast-float2's bits.
+        let mut state = 0x5EED_u64;
+        for _ in 0..300_000 {
+            state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+            let mut z = state;
+            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+            z ^= z >> 31;
+            let digits = 1 + (z % 15) as usize;
+            let m = (z >> 8) % 10u64.pow(digits as u32);
+            let mut f = format!("{m:0digits$}");
+            let point = (z >> 4) as usize % digits;
+            if point > 0 {
+                f.insert(point, '.');
+            }
+            if z & 1 == 1 {
+                f.insert(0, '-');
+            }
+            assert!(same_as_fast_float(&f).is_some(), "{f}");
+        }
+
+        // Left to fast-float2 (or refused by it): 16 digits or more, exponents, a plus sign,
+        // a point without digits on one side, anything else.
+        for f in [
+            "1234567890123456",
+            "0.000000000000001",
+            "1e5",
+            "1.5E-3",
+            "+1",
+            "1.",
+            ".5",
+            "-",
+            "",
+            "--1",
+            "1.2.3",
+            "1,5",
+            " 1",
+            "1 ",
+            "inf",
+            "NaN",
+            "0x10",
+            "12345678901234567890",
+        ] {
+            assert!(same_as_fast_float(f).is_none(), "{f} should be left to fast-float2");
+        }
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn random_short_decimals_match_fast_float(
+            neg in proptest::bool::ANY,
+            int in "[0-9]{1,15}",
+            frac in proptest::option::of("[0-9]{1,15}"),
+        ) {
+            let f = format!("{}{int}{}", if neg { "-" } else { "" }, frac.as_ref().map(|d| format!(".{d}")).unwrap_or_default());
+            let digits = int.len() + frac.as_ref().map_or(0, |d| d.len());
+            let read = same_as_fast_float(&f);
+            proptest::prop_assert_eq!(read.is_some(), digits <= 15, "{}", f);
+        }
     }
 
     #[test]
