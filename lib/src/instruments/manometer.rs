@@ -296,6 +296,42 @@ impl Manometer {
         })
     }
 
+    /// [`Manometer::dp_from_densities`] a column at a time for the one-liquid gauges: each
+    /// `h[i]` (m) becomes its Δp (Pa), with the same operations in the same order, so the
+    /// same bits. `false` (and `h` partly overwritten) for a two-liquid gauge, or when some
+    /// row's densities are in the wrong order: the caller then takes the rows one by one,
+    /// which names the row and the error.
+    pub fn dp_from_density_columns(&self, h: &mut [f64], rho_m: &[f64], rho_f: &[f64]) -> bool {
+        if rho_m.len() != h.len() || rho_f.len() != h.len() {
+            return false;
+        }
+        let g = self.gravity.si();
+        // The order checks over the whole column first (one well-predicted branch per row
+        // and no early exit), then the arithmetic, which then vectorises.
+        let (ordered, factor, inverted) = match &self.kind {
+            ManometerKind::UTube => (rho_m.iter().zip(rho_f).all(|(m, f)| m > f), g, false),
+            ManometerKind::Inclined { .. } | ManometerKind::Well { .. } => {
+                (rho_m.iter().zip(rho_f).all(|(m, f)| m > f), self.g_factor, false)
+            }
+            ManometerKind::InvertedUTube => (rho_m.iter().zip(rho_f).all(|(m, f)| m < f), g, true),
+            ManometerKind::TwoLiquid { .. } => return false,
+        };
+        if !ordered {
+            return false;
+        }
+        // h·((ρ_m − ρ_f)·g) is the per-row ((ρ_m − ρ_f)·g)·h: IEEE multiplication commutes.
+        if inverted {
+            for ((h, &m), &f) in h.iter_mut().zip(rho_m).zip(rho_f) {
+                *h *= (f - m) * factor;
+            }
+        } else {
+            for ((h, &m), &f) in h.iter_mut().zip(rho_m).zip(rho_f) {
+                *h *= (m - f) * factor;
+            }
+        }
+        true
+    }
+
     /// Light-liquid density of a two-liquid gauge at `t` (None for other kinds).
     pub fn light_density(&self, t: Temperature) -> Result<Option<f64>> {
         match &self.kind {
@@ -582,6 +618,71 @@ mod tests {
             let c = dp(k, user("a", rho + 50.0), (h1 + dh) * 1e3, 1.2);
             proptest::prop_assert!(b > a && c > b);
         }
+    }
+
+    #[test]
+    fn density_columns_give_the_per_row_bits_or_leave_the_rows_to_it() {
+        let liquids = || [user("oil", 826.0), user("water", 998.2), GaugeLiquid::Mercury];
+        let kinds = [
+            ManometerKind::UTube,
+            ManometerKind::InvertedUTube,
+            ManometerKind::Inclined { angle_deg: 30.0, area_ratio: 0.002 },
+            ManometerKind::Well { area_ratio: 0.01 },
+        ];
+        // Deflections of both signs and sizes; densities around the gauge liquids' and
+        // the working fluids' (air, water), so that some rows are in the wrong order.
+        let mut h = Vec::new();
+        let mut rho_m = Vec::new();
+        let mut rho_f = Vec::new();
+        for i in 0..997 {
+            let x = i as f64;
+            h.push((x * 0.37).sin() * 0.2 + 1e-4 * x);
+            rho_m.push([826.0, 998.2, 13_546.0, 1.1][i % 4] + (x * 0.11).cos());
+            rho_f.push([1.2, 998.0, 1.19, 999.0, 13_600.0][i % 5] + 0.01 * (x * 0.7).sin());
+        }
+        for kind in kinds.clone() {
+            for liquid in liquids() {
+                let m = Manometer::new(kind.clone(), liquid, gravity::standard()).unwrap();
+                // Whole columns, and short windows (mostly all in order, or all not).
+                for (lo, hi) in [(0, h.len()), (0, 1), (10, 12), (400, 403), (996, 997)] {
+                    let rows: Vec<_> = (lo..hi).map(|i| m.dp_from_densities(h[i], rho_m[i], None, rho_f[i])).collect();
+                    let mut col = h[lo..hi].to_vec();
+                    let ok = m.dp_from_density_columns(&mut col, &rho_m[lo..hi], &rho_f[lo..hi]);
+                    assert_eq!(ok, rows.iter().all(|r| r.is_ok()), "{kind:?} rows {lo}..{hi}");
+                    if ok {
+                        for (c, r) in col.iter().zip(&rows) {
+                            assert_eq!(c.to_bits(), r.as_ref().unwrap().to_bits(), "{kind:?}");
+                        }
+                    }
+                }
+            }
+        }
+        // A whole column in order (oil over air; air over water in an inverted U-tube) is
+        // taken here, to the bit.
+        for kind in kinds {
+            let m = Manometer::new(kind.clone(), user("oil", 826.0), gravity::standard()).unwrap();
+            let inverted = matches!(kind, ManometerKind::InvertedUTube);
+            let heavy: Vec<f64> = (0..500).map(|i| 826.0 + (i as f64 * 0.3).sin()).collect();
+            let light: Vec<f64> = (0..500).map(|i| 1.2 + 0.01 * (i as f64).cos()).collect();
+            let (gm, gf) = if inverted { (&light, &heavy) } else { (&heavy, &light) };
+            let mut col = h[..500].to_vec();
+            assert!(m.dp_from_density_columns(&mut col, gm, gf), "{kind:?}");
+            for i in 0..500 {
+                let r = m.dp_from_densities(h[i], gm[i], None, gf[i]).unwrap();
+                assert_eq!(col[i].to_bits(), r.to_bits(), "{kind:?} row {i}");
+            }
+        }
+        // NaN densities and mismatched lengths are left to the rows.
+        let m = Manometer::new(ManometerKind::UTube, user("oil", 826.0), gravity::standard()).unwrap();
+        assert!(!m.dp_from_density_columns(&mut [0.01], &[f64::NAN], &[1.2]));
+        assert!(!m.dp_from_density_columns(&mut [0.01, 0.02], &[826.0], &[1.2, 1.2]));
+        let two = Manometer::new(
+            ManometerKind::TwoLiquid { light: user("water", 998.2), area_ratio: 0.01 },
+            user("oil", 1200.0),
+            gravity::standard(),
+        );
+        let two = two.unwrap();
+        assert!(!two.dp_from_density_columns(&mut [0.01], &[826.0], &[1.2]), "two-liquid gauges are left to the rows");
     }
 
     #[test]
