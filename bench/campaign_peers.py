@@ -14,7 +14,8 @@ Every contestant computes the same physics per reading (CIPM-2007 humid-air dens
 oil's density at the reading's temperature, the inclined gauge's Δp, the isentropic pitot
 velocity) and per traverse (points, mean velocity, volume and mass flow, mean density, maximum
 velocity, flatness, reversed points), and prints the sums; the driver checks they agree.
-Runs are interleaved (A B C … A B C …) so that a slow spell of the machine hits all alike;
+Runs are interleaved (every contestant once a round, in another order each round) so that a slow
+spell of the machine hits all alike and no contestant always starts just after the same one;
 the figure is the median wall time, with the peak resident memory of the process (wait4).
 
 Usage: bench/run  (or: python bench/campaign_peers.py --stagna target/release/stagna
@@ -260,8 +261,24 @@ def main():
             times = {k: [] for k in contestants}
             rss = {k: [] for k in contestants}
             sums = {}
-            for _ in range(a.repeat):
-                for name, cmd in contestants.items():
+            # The file in the page cache before the first contestant (a cold first read is
+            # the disk's time, not a contestant's).
+            with open(path, "rb") as f:
+                while f.read(1 << 24):
+                    pass
+            for r in range(a.repeat):
+                # Another order each round: a process that starts just after a large one exits
+                # ran 1.3-1.8x slower on the 2-vCPU VM (system time doubled), so no contestant
+                # may always follow the same one. Round r takes every step-th contestant from
+                # the r-th, with steps coprime to their number: each is preceded by a
+                # different one each round, until the steps repeat.
+                names = list(contestants)
+                k = len(names)
+                steps = [st for st in range(1, k) if math.gcd(st, k) == 1] or [1]
+                step = steps[r % len(steps)]
+                order = [names[(r + j * step) % k] for j in range(k)]
+                for name in order:
+                    cmd = contestants[name]
                     w, m, line = measured(cmd)
                     times[name].append(w)
                     rss[name].append(m)
@@ -274,7 +291,7 @@ def main():
             med = {k: statistics.median(v) for k, v in times.items()}
             results[(size, fmt)] = med
             best_polars = min(med["polars-lazy"], med["polars-stream"])
-            print(f"\n{size:,} readings, {fmt} ({os.path.getsize(path) / 2**20:.0f} MiB on disk; raw bytes of the 6 columns used {raw / 2**20:.0f} MiB); median of {a.repeat}")
+            print(f"\n{size:,} readings, {fmt} ({os.path.getsize(path) / 2**20:.0f} MiB on disk; raw bytes of the 6 columns used {raw / 2**20:.0f} MiB); median of {a.repeat}, order varied each round")
             print(f"  {'contestant':<14} {'wall s':>8} {'peak MiB':>9} {'peak/raw':>9} {'stagna-scan is':>16}")
             for k in contestants:
                 print(f"  {k:<14} {med[k]:8.3f} {max(rss[k]):9.0f} {max(rss[k]) * 2**20 / raw:9.2f} {med[k] / med['stagna-scan']:14.2f}×")
