@@ -723,8 +723,6 @@ impl Kernel<'_> {
             sc.pos.clear();
             sc.dps.clear();
             sc.rhos.clear();
-        }
-        if in_place.is_none() {
             for (k, row) in rows.clone().enumerate() {
                 let at = |e: Error| Error::Inconsistent {
                     context: "traverse",
