@@ -267,11 +267,12 @@ def main():
                 while f.read(1 << 24):
                     pass
             for r in range(a.repeat):
-                # Another order each round: a process that starts just after a large one exits
-                # ran 1.3-1.8x slower on the 2-vCPU VM (system time doubled), so no contestant
-                # may always follow the same one. Round r takes every step-th contestant from
-                # the r-th, with steps coprime to their number: each is preceded by a
-                # different one each round, until the steps repeat.
+                # Another order each round: a process started just after a 3 GB one exited took
+                # 1.39-1.95 s where it took 1.08-1.21 s after an idle moment on the 2-vCPU VM
+                # (system time doubled), so no contestant may always follow the same one.
+                # Round r takes every step-th contestant from the r-th, with steps coprime to
+                # their number: within a round each follows another one than in the round
+                # before, until the steps repeat.
                 names = list(contestants)
                 k = len(names)
                 steps = [st for st in range(1, k) if math.gcd(st, k) == 1] or [1]

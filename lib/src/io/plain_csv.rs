@@ -5,8 +5,8 @@
 //! Loggers write plain CSV: no quotes, one separator, numbers and short labels. For such a
 //! run of lines [`parse`] splits the bytes at line ends into a few parts and parses the
 //! parts on rayon's threads straight into the final columns (integers and floats with the
-//! parsers polars' CSV reader uses, `atoi_simd` and `fast-float2`, so every value is the
-//! same bit for bit).
+//! parsers polars' CSV reader uses, `atoi_simd` and `fast-float2`, and short decimals by one
+//! exact division (`short_decimal`), so every value is the same bit for bit).
 //! Anything outside that plain grammar — a quote, a comment or blank line, an empty field
 //! in a column asked for, a field that does not parse as its column's type, a line of
 //! another width, a decimal comma, a column of another type — makes it return `None`, and
