@@ -707,12 +707,9 @@ impl Kernel<'_> {
             // pressure must not answer from them.
             sc.memos.clear();
         }
-        sc.lines.clear();
-        sc.pos.clear();
+        // Lines, positions, Δp and densities are cleared by whichever rows pass runs.
         sc.v.clear();
         sc.keyed.clear();
-        sc.dps.clear();
-        sc.rhos.clear();
         let in_place = span.and_then(|(lo, hi)| self.rows_in_place(lo, hi, d, depth, sc, cond));
         if let Some((k, rho, back, t, o)) = in_place {
             (n, sum_rho, reversed, sum_t, ordered) = (k, rho, back, t, o);
