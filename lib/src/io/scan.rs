@@ -168,7 +168,16 @@ impl TableScan {
         } else {
             columns.to_vec()
         };
-        Ok(Batches { scan: self, columns, rows: rows.max(1), file: 0, group: 0, offset: 0, csv: None })
+        Ok(Batches {
+            scan: self,
+            columns,
+            rows: rows.max(1),
+            file: 0,
+            group: 0,
+            offset: 0,
+            csv: None,
+            shelf: Arc::default(),
+        })
     }
 }
 
@@ -377,6 +386,8 @@ pub struct Batches<'a> {
     group: usize,
     offset: usize,
     csv: Option<CsvCursor>,
+    /// Column vectors of the runs already reduced, for the next runs (plain CSV).
+    shelf: Arc<super::plain_csv::Shelf>,
 }
 
 /// Where a run of lines may be cut: after the last line end that lies outside quotes
@@ -479,7 +490,7 @@ impl Batches<'_> {
             let parsed = if run.iter().all(|b| b.is_ascii_whitespace()) {
                 None
             } else {
-                Some(parse_run(run, &self.scan.schema, &self.columns, layout, &path))
+                Some(parse_run(run, &self.scan.schema, &self.columns, layout, &path, &self.shelf))
             };
             // The part line after the cut goes to the front for the next run.
             cur.buf.copy_within(cut..cur.filled, 0);
@@ -498,8 +509,15 @@ impl Batches<'_> {
 
 /// A run of whole CSV lines as a frame of `columns`: Stagna's plain-CSV parser when the run
 /// is plain, polars' reader otherwise (whose result and errors the user then gets).
-fn parse_run(run: &[u8], schema: &SchemaRef, columns: &[String], layout: CsvLayout, path: &Path) -> Result<DataFrame> {
-    if let Some(df) = super::plain_csv::parse(run, schema, columns, layout) {
+fn parse_run(
+    run: &[u8],
+    schema: &SchemaRef,
+    columns: &[String],
+    layout: CsvLayout,
+    path: &Path,
+    shelf: &Arc<super::plain_csv::Shelf>,
+) -> Result<DataFrame> {
+    if let Some(df) = super::plain_csv::parse(run, schema, columns, layout, shelf) {
         return Ok(df);
     }
     csv_options(layout)
