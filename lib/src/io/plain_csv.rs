@@ -14,11 +14,7 @@
 //! then the ones a user gets.
 //! Measured on the 10 M-reading bench campaign (2 cores): see DEVELOPERS.md.
 
-use std::sync::Mutex;
-
 use polars::prelude::*;
-use polars_arrow::array::PrimitiveArray;
-use polars_buffer::Buffer;
 use rayon::prelude::*;
 
 use super::table::CsvLayout;
@@ -49,120 +45,13 @@ enum Share<'a> {
 /// Parts smaller than this are not split further (the cost of a task is then noise).
 const MIN_PART: usize = 256 << 10;
 
-/// Number-column vectors handed back by the frames of earlier runs, for the next runs to
-/// parse into.
-///
-/// A scan's runs are alike in size, and each run's frame is dropped (on the reducing
-/// thread) while later runs are parsed. Freed to the allocator, a run's columns (a few MiB
-/// each) went back to the system, and the next run's came as fresh pages that the system
-/// zeroes and maps one fault at a time: on the 10 M-reading bench CSV about a tenth of the
-/// scan's CPU (`perf`, 2026-12-04). A vector parsed into is lent to its column through
-/// polars' `Buffer::from_owner` and comes back here when the last frame or slice using
-/// it is dropped; the shelf itself lives as long as the scan or any such column.
-#[derive(Default)]
-pub(crate) struct Shelf {
-    floats: Mutex<Vec<Vec<f64>>>,
-    ints: Mutex<Vec<Vec<i64>>>,
-}
-
-/// Vectors a shelf keeps of each type (more are freed): the runs in flight in a scan (one
-/// reduced, one carried, two read ahead) of eight number columns.
-const SHELF_KEEPS: usize = 32;
-
-/// The number types a shelf keeps.
-pub(crate) trait Shelved: polars_arrow::types::NativeType + Default {
-    fn place(shelf: &Shelf) -> &Mutex<Vec<Vec<Self>>>;
-}
-
-impl Shelved for f64 {
-    fn place(shelf: &Shelf) -> &Mutex<Vec<Vec<f64>>> {
-        &shelf.floats
-    }
-}
-
-impl Shelved for i64 {
-    fn place(shelf: &Shelf) -> &Mutex<Vec<Vec<i64>>> {
-        &shelf.ints
-    }
-}
-
-impl Shelf {
-    fn list<T: Shelved>(&self) -> std::sync::MutexGuard<'_, Vec<Vec<T>>> {
-        // A panic while the list was held leaves a list of whole vectors: still usable.
-        T::place(self).lock().unwrap_or_else(std::sync::PoisonError::into_inner)
-    }
-
-    /// A vector of `n` elements whose values are left to the caller to write: a kept one
-    /// that holds `n` (the most recently given back that does), else a new one with room
-    /// for runs a little longer (a kept one too small is then freed, so that the shelf
-    /// follows the runs' size).
-    pub(crate) fn take<T: Shelved>(&self, n: usize) -> Vec<T> {
-        let kept = {
-            let mut list = self.list::<T>();
-            match list.iter().rposition(|v| v.capacity() >= n) {
-                Some(i) => Some(list.swap_remove(i)),
-                None => {
-                    list.pop();
-                    None
-                }
-            }
-        };
-        let mut v = kept.unwrap_or_else(|| Vec::with_capacity(n + n / 16));
-        if v.len() >= n {
-            v.truncate(n);
-        } else {
-            v.resize(n, T::default());
-        }
-        v
-    }
-
-    /// `v` as an array whose values come back to this shelf when the array's last user
-    /// drops them.
-    fn lend<T: Shelved>(self: &Arc<Self>, v: Vec<T>, dtype: ArrowDataType) -> PrimitiveArray<T> {
-        PrimitiveArray::new(dtype, Buffer::from_owner(Lent { v, home: self.clone() }), None)
-    }
-
-    /// How many vectors of each type are kept (floats, integers).
-    #[cfg(test)]
-    fn kept(&self) -> (usize, usize) {
-        (self.list::<f64>().len(), self.list::<i64>().len())
-    }
-}
-
-/// A vector on loan to a column, given back to its shelf when dropped.
-struct Lent<T: Shelved> {
-    v: Vec<T>,
-    home: Arc<Shelf>,
-}
-
-impl<T: Shelved> AsRef<[T]> for Lent<T> {
-    fn as_ref(&self) -> &[T] {
-        &self.v
-    }
-}
-
-impl<T: Shelved> Drop for Lent<T> {
-    fn drop(&mut self) {
-        let mut list = self.home.list::<T>();
-        if list.len() < SHELF_KEEPS {
-            list.push(std::mem::take(&mut self.v));
-        }
-    }
-}
-
 /// The run `buf` (whole lines after the header) as a frame of `columns` in that order, or
 /// `None` when it is not plain CSV as the module doc says (the caller then uses polars).
 ///
 /// The rows of each part are counted first (one vectorised pass for line ends), so that
 /// the parts parse straight into their shares of the final columns: no part vectors, no
-/// joining copy. Number columns are vectors from `shelf`, lent to the frame (see [`Shelf`]).
-pub(crate) fn parse(
-    buf: &[u8],
-    schema: &Schema,
-    columns: &[String],
-    layout: CsvLayout,
-    shelf: &Arc<Shelf>,
-) -> Option<DataFrame> {
+/// joining copy.
+pub(crate) fn parse(buf: &[u8], schema: &Schema, columns: &[String], layout: CsvLayout) -> Option<DataFrame> {
     if layout.decimal_comma || layout.separator == b'"' || layout.separator == b'\n' || buf.len() >= u32::MAX as usize {
         return None;
     }
@@ -193,8 +82,8 @@ pub(crate) fn parse(
     let mut cols: Vec<Column> = kinds
         .iter()
         .map(|k| match k {
-            Kind::Int => Column::Int(shelf.take(total)),
-            Kind::Float => Column::Float(shelf.take(total)),
+            Kind::Int => Column::Int(vec![0; total]),
+            Kind::Float => Column::Float(vec![0.0; total]),
             Kind::Text => Column::Text(vec![(0, 0); total]),
         })
         .collect();
@@ -218,8 +107,8 @@ pub(crate) fn parse(
     for (col, name) in cols.into_iter().zip(columns) {
         let name = PlSmallStr::from_str(name);
         let series = match col {
-            Column::Int(v) => Int64Chunked::with_chunk(name, shelf.lend(v, ArrowDataType::Int64)).into_series(),
-            Column::Float(v) => Float64Chunked::with_chunk(name, shelf.lend(v, ArrowDataType::Float64)).into_series(),
+            Column::Int(v) => Int64Chunked::from_vec(name, v).into_series(),
+            Column::Float(v) => Float64Chunked::from_vec(name, v).into_series(),
             Column::Text(r) => {
                 let texts = r
                     .iter()
@@ -443,59 +332,18 @@ mod tests {
         let s = schema();
         assert!(buf.len() > 8 * MIN_PART, "several parts");
         for c in [cols(&["id", "x", "s", "y"]), cols(&["y", "id"]), cols(&["s"])] {
-            let ours = parse(buf, &s, &c, CsvLayout::default(), &Arc::default()).expect("plain");
+            let ours = parse(buf, &s, &c, CsvLayout::default()).expect("plain");
             assert!(ours.equals(&by_polars(buf, &s, &c)), "{c:?}");
         }
         // CRLF line ends and a last line without one.
         let crlf = "1,0.5,a,2\r\n2,1e3,b,3\r\n3,7,c,4";
-        let ours = parse(crlf.as_bytes(), &s, &cols(&["id", "s", "y"]), CsvLayout::default(), &Arc::default()).unwrap();
+        let ours = parse(crlf.as_bytes(), &s, &cols(&["id", "s", "y"]), CsvLayout::default()).unwrap();
         assert!(ours.equals(&by_polars(crlf.as_bytes(), &s, &cols(&["id", "s", "y"]))), "{ours}");
         // Another separator.
         let semi = "1;0.5;a;2\n";
-        let ours = parse(
-            semi.as_bytes(),
-            &s,
-            &cols(&["x"]),
-            CsvLayout { separator: b';', decimal_comma: false },
-            &Arc::default(),
-        )
-        .unwrap();
+        let ours =
+            parse(semi.as_bytes(), &s, &cols(&["x"]), CsvLayout { separator: b';', decimal_comma: false }).unwrap();
         assert_eq!(ours.column("x").unwrap().f64().unwrap().get(0), Some(0.5));
-    }
-
-    #[test]
-    fn shelved_vectors_are_written_over_and_come_back_when_the_last_user_drops_them() {
-        let mut text = String::new();
-        for i in 0..100_000i64 {
-            text.push_str(&format!("{},{},p{},{}\n", i - 50, i as f64 * 0.37, i % 7, 1.0 / (i as f64 + 3.0)));
-        }
-        let (buf, s, c) = (text.as_bytes(), schema(), cols(&["y", "id", "x"]));
-        let shelf: Arc<Shelf> = Arc::default();
-        // Kept vectors full of values no field holds: one longer than a run (cut to it), one
-        // shorter with room for it (grown), one too small (freed, a new one made).
-        shelf.list::<f64>().extend([vec![-1.5; 150_000], vec![-2.5; 10]]);
-        shelf.list::<f64>()[1].reserve(200_000);
-        shelf.list::<i64>().push(vec![i64::MIN; 99_999]);
-        let ours = parse(buf, &s, &c, CsvLayout::default(), &shelf).expect("plain");
-        // Every value written over: the frame is what polars' own reader makes of the run.
-        assert!(ours.equals(&by_polars(buf, &s, &c)), "{ours}");
-        assert_eq!(shelf.kept(), (0, 0), "all three in use or freed");
-        // A slice still using a column holds its vector; the others come back at once.
-        let tail = ours.column("x").unwrap().slice(99_990, 10);
-        drop(ours);
-        assert_eq!(shelf.kept(), (1, 1));
-        drop(tail);
-        assert_eq!(shelf.kept(), (2, 1));
-        // The next run parses into them and again gives polars' reading.
-        let again = parse(&buf[..buf.len() / 2], &s, &c, CsvLayout::default(), &shelf).expect("plain");
-        assert_eq!(shelf.kept(), (0, 0));
-        assert!(again.equals(&by_polars(&buf[..buf.len() / 2], &s, &c)), "{again}");
-        // A shelf keeps at most SHELF_KEEPS vectors of a type.
-        drop(again);
-        let frames: Vec<DataFrame> =
-            (0..SHELF_KEEPS).map(|_| parse(&buf[..1000], &s, &c, CsvLayout::default(), &shelf).unwrap()).collect();
-        drop(frames);
-        assert_eq!(shelf.kept(), (SHELF_KEEPS, SHELF_KEEPS));
     }
 
     /// `short_decimal` gives `fast-float2`'s bits or leaves the field to it.
@@ -618,16 +466,16 @@ mod tests {
             if what == "invalid UTF-8" {
                 bytes[6] = 0xff;
             }
-            assert!(parse(&bytes, &s, &c, plain, &Arc::default()).is_none(), "{what}");
+            assert!(parse(&bytes, &s, &c, plain).is_none(), "{what}");
         }
         let comma = CsvLayout { separator: b';', decimal_comma: true };
         assert!(parse(b"1;0,5;a;2\n", &s, &c, comma).is_none(), "a decimal comma");
-        assert!(parse(b"1,0.5,a,2\n", &Schema::default(), &[], plain, &Arc::default()).is_none(), "no columns");
-        assert!(parse(b"1,0.5,a,2\n", &s, &[], plain, &Arc::default()).is_none(), "none asked for");
+        assert!(parse(b"1,0.5,a,2\n", &Schema::default(), &[], plain).is_none(), "no columns");
+        assert!(parse(b"1,0.5,a,2\n", &s, &[], plain).is_none(), "none asked for");
         let dated = Schema::from_iter([Field::new("ok".into(), DataType::Boolean)]);
-        assert!(parse(b"true\n", &dated, &cols(&["ok"]), plain, &Arc::default()).is_none(), "another type");
+        assert!(parse(b"true\n", &dated, &cols(&["ok"]), plain).is_none(), "another type");
         // An empty field in a column not asked for changes nothing asked for.
-        let ours = parse(b"1,,a,2\n3,,,4\n", &s, &cols(&["y", "id"]), plain, &Arc::default()).unwrap();
+        let ours = parse(b"1,,a,2\n3,,,4\n", &s, &cols(&["y", "id"]), plain).unwrap();
         assert!(ours.equals(&by_polars(b"1,,a,2\n3,,,4\n", &s, &cols(&["y", "id"]))));
     }
 

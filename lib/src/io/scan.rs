@@ -168,16 +168,7 @@ impl TableScan {
         } else {
             columns.to_vec()
         };
-        Ok(Batches {
-            scan: self,
-            columns,
-            rows: rows.max(1),
-            file: 0,
-            group: 0,
-            offset: 0,
-            csv: None,
-            shelf: Arc::default(),
-        })
+        Ok(Batches { scan: self, columns, rows: rows.max(1), file: 0, group: 0, offset: 0, csv: None })
     }
 }
 
@@ -386,8 +377,6 @@ pub struct Batches<'a> {
     group: usize,
     offset: usize,
     csv: Option<CsvCursor>,
-    /// Column vectors of the runs already reduced, for the next runs (plain CSV).
-    shelf: Arc<super::plain_csv::Shelf>,
 }
 
 /// Where a run of lines may be cut: after the last line end that lies outside quotes
@@ -490,7 +479,7 @@ impl Batches<'_> {
             let parsed = if run.iter().all(|b| b.is_ascii_whitespace()) {
                 None
             } else {
-                Some(parse_run(run, &self.scan.schema, &self.columns, layout, &path, &self.shelf))
+                Some(parse_run(run, &self.scan.schema, &self.columns, layout, &path))
             };
             // The part line after the cut goes to the front for the next run.
             cur.buf.copy_within(cut..cur.filled, 0);
@@ -509,15 +498,8 @@ impl Batches<'_> {
 
 /// A run of whole CSV lines as a frame of `columns`: Stagna's plain-CSV parser when the run
 /// is plain, polars' reader otherwise (whose result and errors the user then gets).
-fn parse_run(
-    run: &[u8],
-    schema: &SchemaRef,
-    columns: &[String],
-    layout: CsvLayout,
-    path: &Path,
-    shelf: &Arc<super::plain_csv::Shelf>,
-) -> Result<DataFrame> {
-    if let Some(df) = super::plain_csv::parse(run, schema, columns, layout, shelf) {
+fn parse_run(run: &[u8], schema: &SchemaRef, columns: &[String], layout: CsvLayout, path: &Path) -> Result<DataFrame> {
+    if let Some(df) = super::plain_csv::parse(run, schema, columns, layout) {
         return Ok(df);
     }
     csv_options(layout)
