@@ -160,6 +160,15 @@ fn run_one(
 /// relative to the folder all inputs share, without its extension (`siteX/run.csv` and
 /// `siteY/run.csv` go to `OUT/siteX/run` and `OUT/siteY/run`). Inputs that differ only
 /// in their extension keep it (`run-csv`, `run-parquet`); a file given twice is refused.
+/// The size of a CSV input large enough to be hashed from its scans' reads (over 8 MiB).
+fn large_csv(f: &Path) -> Option<u64> {
+    let csv = f
+        .extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| e.eq_ignore_ascii_case("csv") || e.eq_ignore_ascii_case("txt"));
+    std::fs::metadata(f).ok().map(|m| m.len()).filter(|&n| csv && n > 8 << 20)
+}
+
 pub fn output_dirs(files: &[PathBuf], out: &Path) -> Result<Vec<PathBuf>, String> {
     let abs: Vec<PathBuf> = files
         .iter()
@@ -419,12 +428,23 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     let work = |session: &mut Session, k: usize| -> RunResult {
         let (f, dir, key) = (&files[k], &dirs[k], &chosen_keys[k]);
         let mut hash = None;
+        let csv_size = large_csv(f);
         let mut r = match record(key, "running", None, None).and_then(|()| {
             std::fs::create_dir_all(dir).map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
         }) {
-            // A large input is hashed for the manifest on its own thread while its script
-            // runs; a small one after (a thread per small input cost more than its hash: a
-            // fresh allocator heap for each).
+            // A large CSV input is hashed for the manifest from the bytes the script's scans
+            // read (see stagna::io::tap), and read again after the run only when they did
+            // not cover it; another large input is hashed on its own thread while its
+            // script runs; a small one after (a thread per small input cost more than its
+            // hash: a fresh allocator heap for each).
+            Ok(()) if csv_size.is_some() => {
+                let tap = std::sync::Arc::new(crate::shard::ContentTap::new(csv_size.unwrap_or(0)));
+                let guard = stagna::io::tap::tap_reads(f, tap.clone()).ok();
+                let r = run_one(session, args, &script, Some(f), dir, &protected);
+                drop(guard);
+                hash = tap.digest(f).or_else(|| crate::shard::file_hash(f).ok());
+                r
+            }
             Ok(()) if std::fs::metadata(f).is_ok_and(|m| m.len() > 8 << 20) => std::thread::scope(|sc| {
                 let hashing = sc.spawn(|| crate::shard::file_hash(f).ok());
                 let r = run_one(session, args, &script, Some(f), dir, &protected);

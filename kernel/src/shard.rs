@@ -17,6 +17,7 @@
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
+use std::sync::Mutex;
 
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
@@ -139,6 +140,64 @@ pub fn file_hash(path: &Path) -> std::io::Result<(u64, String)> {
     Ok((size, format!("{:032x}", h.digest128())))
 }
 
+/// An input's size and XXH3-128 built from the bytes the script's CSV scans read (see
+/// `stagna::io::tap`), so that a large CSV input is not read a second time for the
+/// manifest.
+pub struct ContentTap {
+    /// The file's size when the run began.
+    size: u64,
+    state: Mutex<TapState>,
+}
+
+struct TapState {
+    /// The offset the next read must start at to continue the hash.
+    next: u64,
+    hasher: xxhash_rust::xxh3::Xxh3Default,
+    /// A read out of order since the last start from the first byte.
+    broken: bool,
+}
+
+impl ContentTap {
+    /// A tap for a file of `size` bytes.
+    pub fn new(size: u64) -> Self {
+        Self { size, state: Mutex::new(TapState { next: 0, hasher: Default::default(), broken: false }) }
+    }
+
+    fn state(&self) -> std::sync::MutexGuard<'_, TapState> {
+        self.state.lock().unwrap_or_else(std::sync::PoisonError::into_inner)
+    }
+
+    /// Size and hash as [`file_hash`] gives them, when reads covered the file from its
+    /// first byte to its last in order and the file still has its first size; else `None`
+    /// (the caller then reads the file).
+    pub fn digest(&self, path: &Path) -> Option<(u64, String)> {
+        let s = self.state();
+        let whole = !s.broken && s.next == self.size && std::fs::metadata(path).is_ok_and(|m| m.len() == self.size);
+        whole.then(|| (self.size, format!("{:032x}", s.hasher.digest128())))
+    }
+}
+
+impl stagna::io::tap::ReadTap for ContentTap {
+    fn read(&self, offset: u64, bytes: &[u8]) {
+        let mut s = self.state();
+        if s.next == self.size && !s.broken {
+            return; // whole already: a later scan of the same file adds nothing
+        }
+        if offset == 0 {
+            // A scan starting over (an earlier one stopped part way).
+            s.hasher.reset();
+            s.next = 0;
+            s.broken = false;
+        }
+        if offset != s.next || s.next + bytes.len() as u64 > self.size {
+            s.broken = true;
+            return;
+        }
+        s.hasher.update(bytes);
+        s.next += bytes.len() as u64;
+    }
+}
+
 impl Manifest {
     /// A new manifest for a script and shard.
     pub fn new(script: &str, shard: Shard) -> Self {
@@ -199,6 +258,62 @@ mod tests {
         let k8s = |v: &str| (v == "JOB_COMPLETION_INDEX").then(|| "0".to_string());
         assert_eq!(Shard::parse("auto/2", k8s), Ok(Shard { index: 0, count: 2 }));
         assert!(Shard::parse("auto/2", none).unwrap_err().contains("SLURM_ARRAY_TASK_ID"));
+    }
+
+    #[test]
+    fn a_content_tap_hashes_reads_that_cover_the_file_in_order_and_nothing_else() {
+        use stagna::io::tap::ReadTap;
+        let dir = std::env::temp_dir().join(format!("stagna-content-tap-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let f = dir.join("in.csv");
+        let bytes: Vec<u8> = (0..3_000_000u32).map(|i| b"0123456789,.\n"[(i * 7 % 13) as usize]).collect();
+        std::fs::write(&f, &bytes).unwrap();
+        // The oracle: XXH3-128 of the whole file in one call (the crate's one-shot code,
+        // not the streaming state the tap and `file_hash` use).
+        let whole = (bytes.len() as u64, format!("{:032x}", xxhash_rust::xxh3::xxh3_128(&bytes)));
+        assert_eq!(file_hash(&f).unwrap(), whole);
+        let n = bytes.len() as u64;
+        let feed = |tap: &ContentTap, cuts: &[usize]| {
+            let mut at = 0;
+            for &c in cuts.iter().chain([bytes.len()].iter()) {
+                tap.read(at as u64, &bytes[at..c]);
+                at = c;
+            }
+        };
+        // In order, in uneven pieces (a header line, then runs).
+        let tap = ContentTap::new(n);
+        feed(&tap, &[37, 1 << 20, 2_500_001]);
+        assert_eq!(tap.digest(&f), Some(whole.clone()));
+        // A second scan of the same file changes nothing, even one that stops part way.
+        tap.read(0, &bytes[..100]);
+        assert_eq!(tap.digest(&f), Some(whole.clone()));
+        // A scan that stopped part way and one that started over from the first byte.
+        let tap = ContentTap::new(n);
+        feed(&tap, &[37, 1 << 20]);
+        tap.read(0, &bytes[..37]);
+        tap.read(37, &bytes[37..]);
+        assert_eq!(tap.digest(&f), Some(whole.clone()));
+        // Not whole: part of the file, a gap, a range read twice, more than the file held.
+        let part = ContentTap::new(n);
+        part.read(0, &bytes[..1000]);
+        assert_eq!(part.digest(&f), None);
+        let gap = ContentTap::new(n);
+        gap.read(0, &bytes[..1000]);
+        gap.read(2000, &bytes[2000..]);
+        assert_eq!(gap.digest(&f), None);
+        let twice = ContentTap::new(n);
+        twice.read(0, &bytes[..1000]);
+        twice.read(500, &bytes[500..]);
+        assert_eq!(twice.digest(&f), None);
+        let grown = ContentTap::new(n - 10);
+        grown.read(0, &bytes);
+        assert_eq!(grown.digest(&f), None);
+        // Read whole, but the file's size changed since: the caller reads it again.
+        let tap = ContentTap::new(n);
+        feed(&tap, &[]);
+        std::fs::write(&f, &bytes[..1000]).unwrap();
+        assert_eq!(tap.digest(&f), None);
+        let _ = std::fs::remove_dir_all(&dir);
     }
 
     #[test]

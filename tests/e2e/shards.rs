@@ -140,3 +140,55 @@ fn resume_skips_done_inputs_and_redoes_changed_and_interrupted_ones() {
     assert!(!o.status.success() && String::from_utf8_lossy(&o.stderr).contains("not a run manifest"));
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+#[test]
+fn a_large_csv_input_is_hashed_from_the_scripts_reads_or_read_again() {
+    let dir = tempdir("tap");
+    // Over 8 MiB: hashed from the bytes the script's scans read (stagna::io::tap).
+    let f = dir.join("in").join("long-run.csv");
+    std::fs::create_dir_all(f.parent().unwrap_or(&dir)).expect("dir");
+    let mut text = String::from("# Fernleigh weir, logger 3\npoint,dp_pa,t_c\n");
+    for i in 0..700_000 {
+        text.push_str(&format!("P{},{}.{:02},{}\n", i % 24, 100 + i % 37, i % 100, 15 + i % 3));
+    }
+    assert!(text.len() > 8 << 20);
+    std::fs::write(&f, &text).expect("write");
+    // The oracle: XXH3-128 of the file's bytes in one call.
+    let want = format!("{:032x}", xxhash_rust::xxh3::xxh3_128(text.as_bytes()));
+    let scripts = [
+        ("whole", "let t = read_table(input); print(`ran ${t.len}`);"),
+        ("twice", "let t = read_table(input); let u = read_table(input); print(`ran ${t.len + u.len}`);"),
+        // Never reads the input: the runner reads it for the hash.
+        ("unread", "print(`ran ${input_name}`);"),
+    ];
+    for (tag, body) in scripts {
+        let script = dir.join(format!("{tag}.rhai"));
+        std::fs::write(&script, body).expect("script");
+        let out = dir.join(format!("out-{tag}"));
+        let o = stagna(&[
+            "run",
+            script.to_str().unwrap_or_default(),
+            "-o",
+            out.to_str().unwrap_or_default(),
+            f.to_str().unwrap_or_default(),
+        ]);
+        assert!(o.status.success(), "{tag}: {}", String::from_utf8_lossy(&o.stderr));
+        let m = std::fs::read_to_string(out.join(".stagna").join("manifest-shard-0-of-1.json")).expect("manifest");
+        let m: serde_json::Value = serde_json::from_str(&m).expect("json");
+        let entry = &m["inputs"]["long-run.csv"];
+        assert_eq!(entry["status"], "done", "{tag}");
+        assert_eq!(entry["size"], text.len() as u64, "{tag}");
+        assert_eq!(entry["xxh3_128"], want.as_str(), "{tag}");
+    }
+    // A resume knows the input unchanged by that hash.
+    let o = stagna(&[
+        "run",
+        dir.join("whole.rhai").to_str().unwrap_or_default(),
+        "-o",
+        dir.join("out-whole").to_str().unwrap_or_default(),
+        "--resume",
+        f.to_str().unwrap_or_default(),
+    ]);
+    assert!(o.status.success() && ran(&o).is_empty(), "{}", String::from_utf8_lossy(&o.stderr));
+    let _ = std::fs::remove_dir_all(&dir);
+}

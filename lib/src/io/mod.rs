@@ -4,7 +4,8 @@
 //! ([`table`]), draws charts of profiles, trends, budgets and layouts as SVG or PNG
 //! ([`plot`]), shows the library's main types in Rust notebooks ([`evcxr`]) and reads
 //! and writes the record files behind coefficients ([`record`]) and the set-up files of
-//! instruments, sites and campaigns ([`setup`]).
+//! instruments, sites and campaigns ([`setup`]). A [`tap`] shows a caller the bytes CSV scans
+//! read from a file (the batch runner hashes its inputs from them).
 
 pub mod evcxr;
 mod plain_csv;
@@ -13,3 +14,4 @@ pub mod record;
 pub mod scan;
 pub mod setup;
 pub mod table;
+pub mod tap;

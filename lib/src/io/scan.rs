@@ -318,6 +318,8 @@ struct CsvCursor {
     buf: Vec<u8>,
     filled: usize,
     done: bool,
+    /// Shown every byte range read (see [`super::tap`]).
+    tap: Option<Arc<dyn super::tap::ReadTap>>,
 }
 
 /// Reads `file` from `offset` into `buf` (the whole of it unless the file ends first) and
@@ -438,13 +440,21 @@ impl Batches<'_> {
             let target =
                 if self.rows < 4096 { (self.rows * 64).max(4096) } else { (file_len / 16).clamp(1 << 20, 16 << 20) };
             if self.csv.is_none() {
-                match File::open(&path) {
-                    Ok(file) => {
-                        self.csv =
-                            Some(CsvCursor { file, at: ends[self.file], buf: Vec::new(), filled: 0, done: false })
-                    }
+                let at = ends[self.file];
+                let file = match File::open(&path) {
+                    Ok(file) => file,
                     Err(e) => return Some(Err(file_err(&path, format!("cannot open: {e}")))),
+                };
+                // A tap sees the lines up to the end of the header first.
+                let tap = super::tap::tap_for(&path);
+                if let Some(t) = &tap {
+                    let mut head = vec![0; at as usize];
+                    match read_run(&file, 0, &mut head) {
+                        Ok(n) => t.read(0, &head[..n]),
+                        Err(e) => return Some(Err(file_err(&path, format!("cannot read: {e}")))),
+                    }
                 }
+                self.csv = Some(CsvCursor { file, at, buf: Vec::new(), filled: 0, done: false, tap });
             }
             let cur = self.csv.as_mut()?;
             let mut got = 0u64;
@@ -457,6 +467,9 @@ impl Batches<'_> {
                     let ask = want - cur.filled;
                     match read_run(&cur.file, cur.at, &mut cur.buf[cur.filled..want]) {
                         Ok(k) => {
+                            if let Some(t) = &cur.tap {
+                                t.read(cur.at, &cur.buf[cur.filled..cur.filled + k]);
+                            }
                             got += k as u64;
                             cur.at += k as u64;
                             cur.filled += k;
