@@ -156,10 +156,6 @@ fn run_one(
     }
 }
 
-/// One output subfolder per input file, unique across the batch: the input's path
-/// relative to the folder all inputs share, without its extension (`siteX/run.csv` and
-/// `siteY/run.csv` go to `OUT/siteX/run` and `OUT/siteY/run`). Inputs that differ only
-/// in their extension keep it (`run-csv`, `run-parquet`); a file given twice is refused.
 /// The size of a CSV input large enough to be hashed from its scans' reads (over 8 MiB).
 fn large_csv(f: &Path) -> Option<u64> {
     let csv = f
@@ -169,6 +165,10 @@ fn large_csv(f: &Path) -> Option<u64> {
     std::fs::metadata(f).ok().map(|m| m.len()).filter(|&n| csv && n > 8 << 20)
 }
 
+/// One output subfolder per input file, unique across the batch: the input's path
+/// relative to the folder all inputs share, without its extension (`siteX/run.csv` and
+/// `siteY/run.csv` go to `OUT/siteX/run` and `OUT/siteY/run`). Inputs that differ only
+/// in their extension keep it (`run-csv`, `run-parquet`); a file given twice is refused.
 pub fn output_dirs(files: &[PathBuf], out: &Path) -> Result<Vec<PathBuf>, String> {
     let abs: Vec<PathBuf> = files
         .iter()
@@ -428,35 +428,35 @@ pub fn run(args: &RunArgs) -> Result<i32, Box<dyn std::error::Error>> {
     let work = |session: &mut Session, k: usize| -> RunResult {
         let (f, dir, key) = (&files[k], &dirs[k], &chosen_keys[k]);
         let mut hash = None;
-        let csv_size = large_csv(f);
-        let mut r = match record(key, "running", None, None).and_then(|()| {
+        let started = record(key, "running", None, None).and_then(|()| {
             std::fs::create_dir_all(dir).map_err(|e| format!("{}: cannot create folder: {e}", dir.display()))
-        }) {
+        });
+        let mut r = match (started, large_csv(f)) {
             // A large CSV input is hashed for the manifest from the bytes the script's scans
             // read (see stagna::io::tap), and read again after the run only when they did
             // not cover it; another large input is hashed on its own thread while its
             // script runs; a small one after (a thread per small input cost more than its
             // hash: a fresh allocator heap for each).
-            Ok(()) if csv_size.is_some() => {
-                let tap = std::sync::Arc::new(crate::shard::ContentTap::new(csv_size.unwrap_or(0)));
+            (Ok(()), Some(size)) => {
+                let tap = std::sync::Arc::new(crate::shard::ContentTap::new(size));
                 let guard = stagna::io::tap::tap_reads(f, tap.clone()).ok();
                 let r = run_one(session, args, &script, Some(f), dir, &protected);
                 drop(guard);
                 hash = tap.digest(f).or_else(|| crate::shard::file_hash(f).ok());
                 r
             }
-            Ok(()) if std::fs::metadata(f).is_ok_and(|m| m.len() > 8 << 20) => std::thread::scope(|sc| {
+            (Ok(()), None) if std::fs::metadata(f).is_ok_and(|m| m.len() > 8 << 20) => std::thread::scope(|sc| {
                 let hashing = sc.spawn(|| crate::shard::file_hash(f).ok());
                 let r = run_one(session, args, &script, Some(f), dir, &protected);
                 hash = hashing.join().ok().flatten();
                 r
             }),
-            Ok(()) => {
+            (Ok(()), None) => {
                 let r = run_one(session, args, &script, Some(f), dir, &protected);
                 hash = crate::shard::file_hash(f).ok();
                 r
             }
-            Err(e) => RunResult { printed: vec![], error: Some(e) },
+            (Err(e), _) => RunResult { printed: vec![], error: Some(e) },
         };
         let status = if r.error.is_some() { "failed" } else { "done" };
         if let Err(e) = record(key, status, r.error.clone(), hash) {

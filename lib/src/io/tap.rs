@@ -57,11 +57,12 @@ pub fn tap_reads(path: &Path, tap: Arc<dyn ReadTap>) -> std::io::Result<TapGuard
 
 /// The tap registered for the file at `path`, if any (the first registered when several).
 pub(crate) fn tap_for(path: &Path) -> Option<Arc<dyn ReadTap>> {
-    if taps().is_empty() {
+    let list = taps();
+    if list.is_empty() {
         return None; // the usual case: no path to resolve
     }
     let path = std::fs::canonicalize(path).ok()?;
-    taps().iter().find(|e| e.path == path).map(|e| e.tap.clone())
+    list.iter().find(|e| e.path == path).map(|e| e.tap.clone())
 }
 
 #[cfg(test)]
