@@ -50,6 +50,8 @@ pub mod columns;
 pub mod error;
 pub mod progress;
 pub mod steps;
+#[cfg(test)]
+mod testdir;
 
 // The flat module paths of release 0.1, kept so that existing Rust code and
 // notebooks (`stagna::probe::Probe`, `stagna::table::read_table`) keep compiling.

@@ -435,10 +435,7 @@ mod tests {
     }
 
     fn tmp(name: &str) -> PathBuf {
-        let d = std::env::temp_dir().join(format!("stagna-stream-{}-{name}", std::process::id()));
-        let _ = std::fs::remove_dir_all(&d);
-        std::fs::create_dir_all(&d).expect("temporary folder");
-        d
+        crate::testdir::fresh("stream", name)
     }
 
     /// 60 traverses of 4 to 7 points in a 500 mm duct, keys rising; traverse 17 has a

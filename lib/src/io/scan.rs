@@ -575,10 +575,7 @@ mod tests {
     use crate::io::table::{write_csv, write_parquet};
 
     fn tmp(name: &str) -> PathBuf {
-        let d = std::env::temp_dir().join(format!("stagna-scan-{}-{name}", std::process::id()));
-        let _ = std::fs::remove_dir_all(&d);
-        std::fs::create_dir_all(&d).unwrap();
-        d
+        crate::testdir::fresh("scan", name)
     }
 
     #[test]
