@@ -298,9 +298,9 @@ impl Manometer {
 
     /// [`Manometer::dp_from_densities`] a column at a time for the one-liquid gauges: each
     /// `h[i]` (m) becomes its Δp (Pa), with the same operations in the same order, so the
-    /// same bits. `false` (and `h` partly overwritten) for a two-liquid gauge, or when some
-    /// row's densities are in the wrong order: the caller then takes the rows one by one,
-    /// which names the row and the error.
+    /// same bits. `false` (and `h` untouched) for a two-liquid gauge, or when some row's
+    /// densities are in the wrong order: the caller then takes the rows one by one, which
+    /// names the row and the error.
     pub fn dp_from_density_columns(&self, h: &mut [f64], rho_m: &[f64], rho_f: &[f64]) -> bool {
         if rho_m.len() != h.len() || rho_f.len() != h.len() {
             return false;
@@ -308,13 +308,16 @@ impl Manometer {
         let g = self.gravity.si();
         // The order checks over the whole column first (one well-predicted branch per row
         // and no early exit), then the arithmetic, which then vectorises.
-        let (ordered, factor, inverted) = match &self.kind {
-            ManometerKind::UTube => (rho_m.iter().zip(rho_f).all(|(m, f)| m > f), g, false),
-            ManometerKind::Inclined { .. } | ManometerKind::Well { .. } => {
-                (rho_m.iter().zip(rho_f).all(|(m, f)| m > f), self.g_factor, false)
-            }
-            ManometerKind::InvertedUTube => (rho_m.iter().zip(rho_f).all(|(m, f)| m < f), g, true),
+        let (factor, inverted) = match &self.kind {
+            ManometerKind::UTube => (g, false),
+            ManometerKind::Inclined { .. } | ManometerKind::Well { .. } => (self.g_factor, false),
+            ManometerKind::InvertedUTube => (g, true),
             ManometerKind::TwoLiquid { .. } => return false,
+        };
+        let ordered = if inverted {
+            rho_m.iter().zip(rho_f).all(|(m, f)| m < f)
+        } else {
+            rho_m.iter().zip(rho_f).all(|(m, f)| m > f)
         };
         if !ordered {
             return false;
